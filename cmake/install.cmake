@@ -1,0 +1,36 @@
+# Install rules: headers, exported targets, package config, version file and
+# pkg-config file.
+include(CMakePackageConfigHelpers)
+
+set(KINDLING_CMAKE_DIR ${CMAKE_INSTALL_DATADIR}/cmake/kindling)
+
+install(DIRECTORY ${PROJECT_SOURCE_DIR}/include/kindling
+        DESTINATION ${CMAKE_INSTALL_INCLUDEDIR})
+
+install(TARGETS kindling EXPORT kindlingTargets)
+install(EXPORT kindlingTargets NAMESPACE kindling:: DESTINATION ${KINDLING_CMAKE_DIR})
+if(TARGET kindling_eigen)
+  install(TARGETS kindling_eigen EXPORT kindlingEigenTargets)
+  install(EXPORT kindlingEigenTargets NAMESPACE kindling:: DESTINATION ${KINDLING_CMAKE_DIR})
+endif()
+if(TARGET kindling_xtensor)
+  install(TARGETS kindling_xtensor EXPORT kindlingXtensorTargets)
+  install(EXPORT kindlingXtensorTargets NAMESPACE kindling:: DESTINATION ${KINDLING_CMAKE_DIR})
+endif()
+
+configure_package_config_file(
+  ${PROJECT_SOURCE_DIR}/cmake/kindlingConfig.cmake.in
+  ${PROJECT_BINARY_DIR}/kindlingConfig.cmake
+  INSTALL_DESTINATION ${KINDLING_CMAKE_DIR})
+# Header-only: the version file must not depend on the architecture.
+write_basic_package_version_file(
+  ${PROJECT_BINARY_DIR}/kindlingConfigVersion.cmake
+  COMPATIBILITY SameMajorVersion ARCH_INDEPENDENT)
+install(FILES ${PROJECT_BINARY_DIR}/kindlingConfig.cmake
+              ${PROJECT_BINARY_DIR}/kindlingConfigVersion.cmake
+        DESTINATION ${KINDLING_CMAKE_DIR})
+
+configure_file(${PROJECT_SOURCE_DIR}/cmake/kindling.pc.in
+               ${PROJECT_BINARY_DIR}/kindling.pc @ONLY)
+install(FILES ${PROJECT_BINARY_DIR}/kindling.pc
+        DESTINATION ${CMAKE_INSTALL_DATADIR}/pkgconfig)
