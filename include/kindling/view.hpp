@@ -22,6 +22,7 @@
 #include <stdexcept>
 #include <string>
 #include <type_traits>
+#include <utility>
 
 namespace kindling {
 
@@ -304,8 +305,11 @@ inline void check_strides(const region& part, const strides& steps) {
     const std::int64_t s = steps[d];
     return s < 0 ? std::uint64_t(0) - static_cast<std::uint64_t>(s) : static_cast<std::uint64_t>(s);
   };
-  std::sort(order.begin(), order.begin() + static_cast<std::ptrdiff_t>(used),
-            [&](std::size_t a, std::size_t b) { return magnitude(a) < magnitude(b); });
+  for (std::size_t k = 1; k < used; ++k) {  // insertion sort of at most max_rank entries
+    for (std::size_t j = k; j > 0 && magnitude(order[j]) < magnitude(order[j - 1]); --j) {
+      std::swap(order[j], order[j - 1]);
+    }
+  }
   std::uint64_t span = 0;  // farthest element reached by the faster dimensions
   for (std::size_t k = 0; k < used; ++k) {
     const std::size_t d = order[k];
