@@ -412,6 +412,13 @@ class strided_view {
     return strided_view(data_ + shift, global_, inner, steps_);
   }
 
+  /// The same memory and strides, now holding the region at `offset` of a larger
+  /// global shape (the region's extent stays this view's). This is how a shard, or a
+  /// block of a bigger matrix adapted from another library, says where it sits.
+  strided_view as_part_of(const shape& global, const shape& offset) const {
+    return strided_view(data_, global, region(offset, part_.extent()), steps_);
+  }
+
  private:
   static const shape& checked(const shape& global) {
     detail::check_global_shape(global, "shape");
