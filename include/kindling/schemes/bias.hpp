@@ -1,0 +1,128 @@
+// kindling/schemes/bias.hpp: rules for bias vectors.
+//
+// Biases start at zero (common practice): the weights already break the symmetry
+// between units. The other rules set a bias so that a unit starts where it should:
+//   sigmoid_target_bias: a sigmoid unit whose mean activation should start at p (for
+//     units that should start mostly off, p small): b = logit(p) = log(p / (1 - p)).
+//   rare_class_bias: the output bias of a class of prior π, so that the first losses are
+//     not swamped by the common class: b = -log((1 - π) / π) (Lin et al., ICCV 2017).
+//   forget_gate_bias: the forget block of a packed LSTM bias at 1, the other blocks at 0
+//     (Gers, Schmidhuber & Cummins 2000; Jozefowicz et al., ICML 2015).
+// Every rule is also a scheme (scheme.hpp), so it can be used with initialize().
+#ifndef KINDLING_SCHEMES_BIAS_HPP
+#define KINDLING_SCHEMES_BIAS_HPP
+
+#include <cstdint>
+#include <limits>
+#include <string>
+
+#include "../detail/dmath.hpp"
+#include "constant.hpp"
+
+namespace kindling {
+
+namespace detail {
+inline void require_vector(const shape& global, const char* rule) {
+  if (global.rank() != 1) {
+    throw std::invalid_argument(std::string("kindling::") + rule + ": argument 'shape' = " + global.text() +
+                                ", expected a bias vector (rank 1)");
+  }
+}
+inline void require_probability(double p, const char* rule, const char* argument) {
+  if (!std::isfinite(p) || !(p > 0) || !(p < 1)) {
+    throw std::domain_error(std::string("kindling::") + rule + ": argument '" + argument + "' = " +
+                            argument_text(p) + ", expected a probability strictly between 0 and 1");
+  }
+}
+// log(p / (1 - p)) with the library's own log, so the bias has the same bits everywhere.
+inline double logit(double p) { return detail::log(p) - detail::log(1.0 - p); }
+}  // namespace detail
+
+/// b = logit(target): a sigmoid unit starts with mean activation `target`.
+struct sigmoid_target_bias {
+  double target = 0.5;
+  std::string name() const { return "sigmoid-target-bias"; }
+  double value() const {
+    detail::require_probability(target, "sigmoid_target_bias", "target");
+    return detail::logit(target);
+  }
+  void check(const shape& g, const weight_info& w) const {
+    detail::require_vector(g, "sigmoid_target_bias");
+    constant{value()}.check(g, w);
+  }
+  template <class E, class Exec>
+  void write(const strided_view<E>& v, const weight_info& w, const stream& s, Exec&& exec) const {
+    constant{value()}.write(v, w, s, std::forward<Exec>(exec));
+  }
+};
+
+/// b = -log((1 - prior) / prior) (Lin et al., ICCV 2017, sec. 4.1).
+struct rare_class_bias {
+  double prior = 0.01;
+  std::string name() const { return "rare-class-bias"; }
+  double value() const {
+    detail::require_probability(prior, "rare_class_bias", "prior");
+    return -(detail::log(1.0 - prior) - detail::log(prior));
+  }
+  void check(const shape& g, const weight_info& w) const {
+    detail::require_vector(g, "rare_class_bias");
+    constant{value()}.check(g, w);
+  }
+  template <class E, class Exec>
+  void write(const strided_view<E>& v, const weight_info& w, const stream& s, Exec&& exec) const {
+    constant{value()}.write(v, w, s, std::forward<Exec>(exec));
+  }
+};
+
+/// A packed LSTM bias of `blocks` equal blocks: block `forget_block` is `value`, the
+/// rest 0. Gate order differs between code bases; the forget block's index is an
+/// argument (default 1: input, forget, cell, output).
+struct forget_gate_bias {
+  std::uint64_t blocks = 4;
+  std::uint64_t forget_block = 1;
+  double value = 1;
+
+  std::string name() const { return "forget-gate-bias"; }
+  void check(const shape& g, const weight_info&) const {
+    detail::require_vector(g, "forget_gate_bias");
+    detail::require_finite_argument(value, "forget_gate_bias", "value");
+    if (blocks == 0 || g[0] % blocks != 0) {
+      throw std::invalid_argument("kindling::forget_gate_bias: argument 'blocks' = " + std::to_string(blocks) +
+                                  ", expected a divisor >= 1 of the bias length " + std::to_string(g[0]));
+    }
+    if (forget_block >= blocks) {
+      throw std::invalid_argument("kindling::forget_gate_bias: argument 'forget_block' = " +
+                                  std::to_string(forget_block) + ", expected a block index below " +
+                                  std::to_string(blocks));
+    }
+  }
+  template <class E, class Exec>
+  void write(const strided_view<E>& v, const weight_info&, const stream&, Exec&& exec) const {
+    using compute = compute_type_t<E>;
+    const std::uint64_t width = v.global_shape()[0] / blocks;
+    const std::uint64_t lo = forget_block * width, hi = lo + width;
+    const auto c = static_cast<compute>(value);
+    const auto gen = [=](std::uint64_t first, std::size_t n, compute* out) {
+      for (std::size_t k = 0; k < n; ++k) {
+        const std::uint64_t i = first + k;
+        out[k] = (i >= lo && i < hi) ? c : compute(0);
+      }
+    };
+    const double inf = std::numeric_limits<double>::infinity();
+    fill_generated(v, element_bounds{-inf, inf, false, false}, gen, std::forward<Exec>(exec));
+  }
+};
+
+/// Sets a bias vector by one of the rules above (or zeros, constant). No stream is
+/// needed: bias rules draw nothing.
+template <class E, class Rule, class Exec = serial_executor>
+void initialize_bias(const strided_view<E>& v, const Rule& rule, Exec&& exec = Exec{}) {
+  const weight_info none{fans{1, 1, 1}, weight_layout::out_in};
+  detail::require_vector(v.global_shape(), "initialize_bias");
+  rule.check(v.global_shape(), none);
+  rule.write(v, none, stream::root(0), std::forward<Exec>(exec));
+}
+
+}  // namespace kindling
+
+#endif  // KINDLING_SCHEMES_BIAS_HPP
