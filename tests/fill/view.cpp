@@ -3,6 +3,8 @@
 
 #include <doctest/doctest.h>
 
+#include "../support/errors.hpp"
+
 #include <cstdint>
 #include <stdexcept>
 #include <string>
@@ -14,26 +16,8 @@ using kindling::storage_order;
 using kindling::strided_view;
 using kindling::strides;
 
-namespace {
-
-// Runs f, which must throw Expected, and returns the message.
-template <class Expected, class F>
-std::string message_of(F&& f) {
-  try {
-    f();
-  } catch (const Expected& e) {
-    return e.what();
-  } catch (const std::exception& e) {
-    FAIL("threw the wrong exception type: " << e.what());
-    return {};
-  }
-  FAIL("expected an exception, none was thrown");
-  return {};
-}
-
-bool contains(const std::string& text, const std::string& part) { return text.find(part) != std::string::npos; }
-
-}  // namespace
+using kindling_test::mentions;
+using kindling_test::message_of;
 
 TEST_CASE("a shape holds up to max_rank extents and counts its elements") {
   const shape s{7, 13, 3};
@@ -53,20 +37,20 @@ TEST_CASE("a shape holds up to max_rank extents and counts its elements") {
 TEST_CASE("a shape rejects a rank above max_rank, negative extents and overflowing counts") {
   SUBCASE("rank 9 is a length_error naming the argument and the rank") {
     const std::string m = message_of<std::length_error>([] { shape s{1, 1, 1, 1, 1, 1, 1, 1, 1}; });
-    CHECK_MESSAGE(contains(m, "'shape' has 9 entries"), m);
-    CHECK_MESSAGE(contains(m, "at most 8"), m);
+    CHECK_MESSAGE(mentions(m, "'shape' has 9 entries"), m);
+    CHECK_MESSAGE(mentions(m, "at most 8"), m);
     const std::vector<int> nine(9, 1);
     CHECK_THROWS_AS(shape(nine.begin(), nine.end()), std::length_error);
   }
   SUBCASE("a negative extent is an invalid_argument naming its value") {
     const int rows = -3;
     const std::string m = message_of<std::invalid_argument>([&] { shape s{rows, 4}; });
-    CHECK_MESSAGE(contains(m, "'shape' has entry -3 at position 0"), m);
+    CHECK_MESSAGE(mentions(m, "'shape' has entry -3 at position 0"), m);
   }
   SUBCASE("an element count beyond 2^64 - 1 is a length_error") {
     const shape s{std::uint64_t{1} << 32, std::uint64_t{1} << 32};
     const std::string m = message_of<std::length_error>([&] { (void)s.element_count(); });
-    CHECK_MESSAGE(contains(m, "[4294967296, 4294967296]"), m);
+    CHECK_MESSAGE(mentions(m, "[4294967296, 4294967296]"), m);
     // 2^32 (2^32 - 1) = 2^64 - 2^32 still fits.
     CHECK((shape{std::uint64_t{1} << 32, (std::uint64_t{1} << 32) - 1}.element_count()) == 0xffffffff00000000u);
   }
@@ -116,9 +100,22 @@ TEST_CASE("sub() narrows a view to a region of it in global coordinates, sharing
   CHECK(inner.data() == memory.data() + 3 * 8 + 5);
   SUBCASE("a region outside the view is refused") {
     const std::string m = message_of<std::invalid_argument>([&] { (void)part.sub(region({1, 3}, {2, 2})); });
-    CHECK_MESSAGE(contains(m, "'region' (offset [1, 3] extent [2, 2]) of sub() leaves"), m);
+    CHECK_MESSAGE(mentions(m, "'region' (offset [1, 3] extent [2, 2]) of sub() leaves"), m);
     CHECK_THROWS_AS((void)part.sub(region({2, 5}, {3, 3})), std::invalid_argument);
   }
+}
+
+TEST_CASE("as_part_of() places a view's memory as a region of a larger global shape") {
+  std::vector<float> memory(3 * 5);
+  const strided_view<float> shard(memory.data(), {3, 5}, storage_order::column_major);
+  const strided_view<float> placed = shard.as_part_of({10, 20}, {4, 15});
+  CHECK(placed.global_shape() == shape{10, 20});
+  CHECK(placed.part() == region({4, 15}, {3, 5}));
+  CHECK(placed.memory_strides() == strides{1, 3});
+  CHECK(placed.data() == memory.data());
+  const std::string m = message_of<std::invalid_argument>([&] { (void)shard.as_part_of({10, 20}, {8, 15}); });
+  CHECK_MESSAGE(mentions(m, "covers indices 8..8+3-1 of dimension 0"), m);
+  CHECK_THROWS_AS((void)shard.as_part_of({10, 20, 1}, {0, 0, 0}), std::invalid_argument);
 }
 
 TEST_CASE("a writable view converts to a read-only one over the same memory") {
@@ -149,25 +146,25 @@ TEST_CASE("a view rejects each bad argument with an exception naming it") {
   const std::vector<float> before = memory;
   SUBCASE("rank 0") {
     const std::string m = message_of<std::invalid_argument>([&] { strided_view<float> v(memory.data(), shape{}); });
-    CHECK_MESSAGE(contains(m, "'shape' has rank 0"), m);
+    CHECK_MESSAGE(mentions(m, "'shape' has rank 0"), m);
   }
   SUBCASE("a zero extent") {
     const std::string m = message_of<std::invalid_argument>([&] { strided_view<float> v(memory.data(), {4, 0}); });
-    CHECK_MESSAGE(contains(m, "'shape' = [4, 0] has extent 0 in dimension 1"), m);
+    CHECK_MESSAGE(mentions(m, "'shape' = [4, 0] has extent 0 in dimension 1"), m);
   }
   SUBCASE("an element count that overflows") {
     const std::string m = message_of<std::length_error>(
         [&] { strided_view<float> v(memory.data(), {std::uint64_t{1} << 40, std::uint64_t{1} << 40}); });
-    CHECK_MESSAGE(contains(m, "2^64 - 1"), m);
+    CHECK_MESSAGE(mentions(m, "2^64 - 1"), m);
   }
   SUBCASE("a null pointer") {
     const std::string m = message_of<std::invalid_argument>([&] { strided_view<float> v(nullptr, {4, 4}); });
-    CHECK_MESSAGE(contains(m, "'data' is a null pointer for a region of 16 elements"), m);
+    CHECK_MESSAGE(mentions(m, "'data' is a null pointer for a region of 16 elements"), m);
   }
   SUBCASE("a region that leaves the global shape") {
     const std::string m = message_of<std::invalid_argument>(
         [&] { strided_view<float> v(memory.data(), {8, 8}, region({6, 0}, {3, 8})); });
-    CHECK_MESSAGE(contains(m, "'region' (offset [6, 0] extent [3, 8]) covers indices 6..6+3-1 of dimension 0"), m);
+    CHECK_MESSAGE(mentions(m, "'region' (offset [6, 0] extent [3, 8]) covers indices 6..6+3-1 of dimension 0"), m);
     CHECK_THROWS_AS(strided_view<float>(memory.data(), {8, 8}, region({8, 0}, {1, 1})), std::invalid_argument);
     // An offset near 2^64 must not wrap around into the shape.
     CHECK_THROWS_AS(strided_view<float>(memory.data(), {8, 8}, region({~std::uint64_t{0}, 0}, {2, 1})),
@@ -176,23 +173,23 @@ TEST_CASE("a view rejects each bad argument with an exception naming it") {
   SUBCASE("an empty region") {
     const std::string m = message_of<std::invalid_argument>(
         [&] { strided_view<float> v(memory.data(), {8, 8}, region({0, 0}, {0, 8})); });
-    CHECK_MESSAGE(contains(m, "extent 0 in dimension 0"), m);
+    CHECK_MESSAGE(mentions(m, "extent 0 in dimension 0"), m);
   }
   SUBCASE("a region of another rank") {
     const std::string m = message_of<std::invalid_argument>(
         [&] { strided_view<float> v(memory.data(), {8, 8}, region({0}, {8})); });
-    CHECK_MESSAGE(contains(m, "expected rank 2 like the global shape [8, 8]"), m);
+    CHECK_MESSAGE(mentions(m, "expected rank 2 like the global shape [8, 8]"), m);
   }
   SUBCASE("strides of another rank") {
     const std::string m = message_of<std::invalid_argument>(
         [&] { strided_view<float> v(memory.data(), {8, 8}, region::whole({8, 8}), strides{1}); });
-    CHECK_MESSAGE(contains(m, "'strides' = [1] has rank 1; expected rank 2"), m);
+    CHECK_MESSAGE(mentions(m, "'strides' = [1] has rank 1; expected rank 2"), m);
   }
   SUBCASE("strides that alias two elements") {
     // (0, 2) and (1, 0) both land 2 elements from the start.
     const std::string m = message_of<std::invalid_argument>(
         [&] { strided_view<float> v(memory.data(), {4, 4}, region::whole({4, 4}), strides{2, 1}); });
-    CHECK_MESSAGE(contains(m, "'strides' = [2, 1] makes two elements"), m);
+    CHECK_MESSAGE(mentions(m, "'strides' = [2, 1] makes two elements"), m);
     CHECK_THROWS_AS(strided_view<float>(memory.data(), {4, 4}, region::whole({4, 4}), strides{0, 1}),
                     std::invalid_argument);
     CHECK_THROWS_AS(strided_view<float>(memory.data(), {4, 4}, region::whole({4, 4}), strides{-1, 1}),
@@ -202,7 +199,7 @@ TEST_CASE("a view rejects each bad argument with an exception naming it") {
     const std::string m = message_of<std::length_error>([&] {
       strided_view<float> v(memory.data(), {4, 4}, region::whole({4, 4}), strides{std::int64_t{1} << 62, 1});
     });
-    CHECK_MESSAGE(contains(m, "spans more than 2^63 - 1 elements"), m);
+    CHECK_MESSAGE(mentions(m, "spans more than 2^63 - 1 elements"), m);
   }
   CHECK_MESSAGE(memory == before, "a refused view must leave the memory as it was");
 }
