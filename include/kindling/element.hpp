@@ -1,0 +1,218 @@
+// Element types a parameter can be stored in, and the last step of a value's path:
+// compute type -> element type, rounded to nearest-even and kept inside the bounds of
+// the distribution it was drawn from.
+//
+//   element    compute type   words per element (DEVELOPERS.md "Element index and words")
+//   float      float          1
+//   double     double         2
+//   float16    float          1     IEEE 754-2008 binary16, rounded from float
+//   bfloat16   float          1     8-bit exponent, 7-bit fraction, rounded from float
+//
+// float16 and bfloat16 are storage types (their bit pattern); the Eigen adapter bit-casts
+// Eigen::half and Eigen::bfloat16 to them.
+#ifndef KINDLING_ELEMENT_HPP
+#define KINDLING_ELEMENT_HPP
+
+#include <cstdint>
+#include <limits>
+
+#include "kindling/detail/dmath.hpp"
+
+namespace kindling {
+
+struct float16 {
+  std::uint16_t bits;
+};
+struct bfloat16 {
+  std::uint16_t bits;
+};
+
+// The interval a distribution's values lie in; lo = -inf / hi = +inf when unbounded.
+struct element_bounds {
+  double lo;
+  double hi;
+  bool lo_open;
+  bool hi_open;
+};
+
+inline constexpr element_bounds unbounded{-std::numeric_limits<double>::infinity(),
+                                          std::numeric_limits<double>::infinity(), true, true};
+
+// ---- float <-> float16 / bfloat16 ---------------------------------------------------
+
+// binary16 from binary32, round to nearest, ties to even; overflow gives infinity, NaN
+// stays NaN (quiet, sign and top payload bits kept).
+inline float16 round_to_float16(float x) noexcept {
+  const std::uint32_t b = detail::bits_of(x);
+  const auto sign = static_cast<std::uint16_t>((b >> 16) & 0x8000u);
+  const std::uint32_t a = b & 0x7fffffffu;
+  if (a >= 0x7f800000u) {  // inf or NaN
+    const std::uint32_t nan = a > 0x7f800000u ? (0x0200u | ((a >> 13) & 0x03ffu)) : 0u;
+    return {static_cast<std::uint16_t>(sign | 0x7c00u | nan)};
+  }
+  if (a >= 0x47800000u) return {static_cast<std::uint16_t>(sign | 0x7c00u)};  // >= 2^16
+  std::uint32_t h;
+  if (a >= 0x38800000u) {  // >= 2^-14: normal in binary16; rebias the exponent
+    h = (a >> 13) - (112u << 10);
+    const std::uint32_t rest = a & 0x1fffu;
+    // A carry out of the fraction correctly bumps the exponent (up to infinity).
+    if (rest > 0x1000u || (rest == 0x1000u && (h & 1u))) ++h;
+  } else {  // binary16 subnormal (units of 2^-24) or zero
+    const std::uint32_t e = a >> 23;
+    const std::uint32_t shift = 126u - e;  // value = m * 2^(e - 150) = (m >> shift) * 2^-24
+    if (e == 0 || shift > 24u) {
+      h = 0;  // below 2^-25: rounds to zero
+    } else {
+      const std::uint32_t m = (a & 0x7fffffu) | 0x800000u;
+      h = m >> shift;
+      const std::uint32_t rest = m & ((1u << shift) - 1u);
+      const std::uint32_t half = 1u << (shift - 1u);
+      if (rest > half || (rest == half && (h & 1u))) ++h;
+    }
+  }
+  return {static_cast<std::uint16_t>(sign | h)};
+}
+
+// binary16 -> binary32 is exact.
+inline float to_float(float16 x) noexcept {
+  const std::uint32_t sign = static_cast<std::uint32_t>(x.bits & 0x8000u) << 16;
+  const std::uint32_t e = (x.bits >> 10) & 0x1fu;
+  const std::uint32_t m = x.bits & 0x03ffu;
+  if (e == 0) {  // zero or subnormal: m * 2^-24, exact in float
+    const float v = static_cast<float>(m) * 0x1p-24f;
+    return sign ? -v : v;
+  }
+  if (e == 31) return detail::float_from_bits(sign | 0x7f800000u | (m << 13));
+  return detail::float_from_bits(sign | ((e + 112u) << 23) | (m << 13));
+}
+
+// bfloat16 from binary32, round to nearest, ties to even (on the dropped 16 bits).
+inline bfloat16 round_to_bfloat16(float x) noexcept {
+  const std::uint32_t b = detail::bits_of(x);
+  if ((b & 0x7fffffffu) > 0x7f800000u) return {static_cast<std::uint16_t>((b >> 16) | 0x0040u)};
+  const std::uint32_t rounded = b + 0x7fffu + ((b >> 16) & 1u);
+  return {static_cast<std::uint16_t>(rounded >> 16)};
+}
+
+inline float to_float(bfloat16 x) noexcept {
+  return detail::float_from_bits(static_cast<std::uint32_t>(x.bits) << 16);
+}
+
+namespace detail {
+
+// One representable step up / down for a sign-magnitude bit pattern (IEEE layout) of
+// width U with sign bit `sign`: the neighbours in the order of the real line.
+template <class U>
+constexpr U step_up_bits(U b, U sign) noexcept {
+  if (b == sign) return U{1};  // -0 -> smallest positive
+  return (b & sign) ? static_cast<U>(b - 1u) : static_cast<U>(b + 1u);
+}
+template <class U>
+constexpr U step_down_bits(U b, U sign) noexcept {
+  if (b == 0) return static_cast<U>(sign | 1u);  // +0 -> smallest negative
+  return (b & sign) ? static_cast<U>(b + 1u) : static_cast<U>(b - 1u);
+}
+
+// 1: above the bounds (or on an open upper bound), -1: below, 0: inside (or NaN).
+inline int side_of(double v, const element_bounds& bd) noexcept {
+  if (v > bd.hi || (bd.hi_open && v == bd.hi)) return 1;
+  if (v < bd.lo || (bd.lo_open && v == bd.lo)) return -1;
+  return 0;
+}
+
+// How each element type is stored: its bit pattern, the rounding from the compute
+// type, and the exact value of a pattern.
+template <class E>
+struct element_codec;
+
+template <>
+struct element_codec<float> {
+  using bits = std::uint32_t;
+  static constexpr bits sign = 0x80000000u;
+  static bits round(float v) noexcept { return bits_of(v); }
+  static float make(bits b) noexcept { return float_from_bits(b); }
+  static double value(bits b) noexcept { return static_cast<double>(float_from_bits(b)); }
+};
+template <>
+struct element_codec<double> {
+  using bits = std::uint64_t;
+  static constexpr bits sign = 0x8000000000000000u;
+  static bits round(double v) noexcept { return bits_of(v); }
+  static double make(bits b) noexcept { return double_from_bits(b); }
+  static double value(bits b) noexcept { return double_from_bits(b); }
+};
+template <>
+struct element_codec<float16> {
+  using bits = std::uint16_t;
+  static constexpr bits sign = 0x8000u;
+  static bits round(float v) noexcept { return round_to_float16(v).bits; }
+  static float16 make(bits b) noexcept { return {b}; }
+  static double value(bits b) noexcept { return static_cast<double>(to_float(float16{b})); }
+};
+template <>
+struct element_codec<bfloat16> {
+  using bits = std::uint16_t;
+  static constexpr bits sign = 0x8000u;
+  static bits round(float v) noexcept { return round_to_bfloat16(v).bits; }
+  static bfloat16 make(bits b) noexcept { return {b}; }
+  static double value(bits b) noexcept { return static_cast<double>(to_float(bfloat16{b})); }
+};
+
+// The members every element_traits shares. from_compute rounds to nearest even, then a
+// value outside the bounds (or on an open bound) moves one representable step toward
+// the inside: it is outside only by rounding, so one step suffices whenever the
+// interval holds a representable value of E. NaN passes through.
+template <class E, class Compute, unsigned Words>
+struct element_traits_base {
+  using compute_type = Compute;
+  static constexpr unsigned words = Words;
+  static E from_compute(Compute v, const element_bounds& b) noexcept {
+    using codec = element_codec<E>;
+    typename codec::bits x = codec::round(v);
+    const int side = side_of(codec::value(x), b);
+    if (side > 0) x = step_down_bits(x, codec::sign);
+    if (side < 0) x = step_up_bits(x, codec::sign);
+    return codec::make(x);
+  }
+};
+
+}  // namespace detail
+
+// ---- element traits -----------------------------------------------------------------
+// compute_type: the type values are computed in; name: the element type's short name;
+// words: 32-bit counter words per element (DEVELOPERS.md "Element index and words");
+// from_compute(v, bounds): the element for v; to_double(e): its exact value.
+
+template <class E>
+struct element_traits;
+
+template <>
+struct element_traits<float> : detail::element_traits_base<float, float, 1> {
+  static constexpr const char* name = "f32";
+  static double to_double(float v) noexcept { return static_cast<double>(v); }
+};
+
+template <>
+struct element_traits<double> : detail::element_traits_base<double, double, 2> {
+  static constexpr const char* name = "f64";
+  static double to_double(double v) noexcept { return v; }
+};
+
+template <>
+struct element_traits<float16> : detail::element_traits_base<float16, float, 1> {
+  static constexpr const char* name = "f16";
+  static double to_double(float16 v) noexcept { return static_cast<double>(to_float(v)); }
+};
+
+template <>
+struct element_traits<bfloat16> : detail::element_traits_base<bfloat16, float, 1> {
+  static constexpr const char* name = "bf16";
+  static double to_double(bfloat16 v) noexcept { return static_cast<double>(to_float(v)); }
+};
+
+template <class E>
+using compute_type_t = typename element_traits<E>::compute_type;
+
+}  // namespace kindling
+
+#endif  // KINDLING_ELEMENT_HPP
