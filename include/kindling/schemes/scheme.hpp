@@ -15,6 +15,7 @@
 #define KINDLING_SCHEMES_SCHEME_HPP
 
 #include <cmath>
+#include <cstdio>
 #include <cstdint>
 #include <stdexcept>
 #include <string>
@@ -42,23 +43,23 @@ inline std::vector<std::uint64_t> shape_vector(const shape& s) {
   return std::vector<std::uint64_t>(s.begin(), s.end());
 }
 
-inline std::string number_text(double x) {
+inline std::string argument_text(double x) {
   char buffer[64];
   std::snprintf(buffer, sizeof buffer, "%.17g", x);
   return buffer;
 }
 
 // Arguments of schemes: one message style for every failure.
-inline void require_finite(double value, const char* scheme, const char* argument) {
+inline void require_finite_argument(double value, const char* scheme, const char* argument) {
   if (!std::isfinite(value)) {
     throw std::domain_error(std::string("kindling::") + scheme + ": argument '" + argument +
-                            "' = " + number_text(value) + ", expected a finite number");
+                            "' = " + argument_text(value) + ", expected a finite number");
   }
 }
-inline void require_positive_finite(double value, const char* scheme, const char* argument) {
+inline void require_positive_argument(double value, const char* scheme, const char* argument) {
   if (!std::isfinite(value) || !(value > 0)) {
     throw std::domain_error(std::string("kindling::") + scheme + ": argument '" + argument +
-                            "' = " + number_text(value) + ", expected a finite number > 0");
+                            "' = " + argument_text(value) + ", expected a finite number > 0");
   }
 }
 inline void require_fans(const fans& f, const char* scheme) {
