@@ -89,6 +89,19 @@ TEST_CASE("Map, Ref and Block of Eigen objects are filled through their strides"
     CHECK(matches_row_major(big.block(2, 3, 6, 9), reference));
     CHECK_MESSAGE((big.array() == 42.0f).count() == 600 - 54, "only the block may be written");
   }
+  SUBCASE("a transposed matrix is a cols x rows tensor") {
+    Eigen::MatrixXf m(9, 6);
+    kindling::fill(m.transpose(), d, pump);
+    CHECK(kindling::view_of(m.transpose()).global_shape() == shape{6, 9});
+    CHECK(matches_row_major(m.transpose(), reference));
+  }
+  SUBCASE("a read-only Ref gives a read-only view of the same memory") {
+    const Eigen::MatrixXf m = Eigen::MatrixXf::Zero(6, 9);
+    const Eigen::Ref<const Eigen::MatrixXf> ref = m;
+    const strided_view<const float> v = kindling::view_of(ref);
+    CHECK(v.data() == m.data());
+    CHECK(v.memory_strides() == kindling::strides{1, 6});
+  }
   SUBCASE("a vector is the same as a rank-1 tensor of its size") {
     const auto bias = raw_fill<float>({54}, d, pump);
     Eigen::VectorXf column(54);
