@@ -20,7 +20,7 @@
 //                          u2 = u(slot 2k+1), r = sqrt(-2 log(1 - u1)) (1 - u1 exact,
 //                          in (0, 1]), (sin, cos) = sincos_2pi(u2);
 //                          slot 2k: fma(s, r cos, m), slot 2k+1: fma(s, r sin, m).
-//   truncated normal (m, s, cut [a, b]): see truncated_normal_prepared below.
+//   truncated normal (m, s, cut [a, b]): inversion, see truncated_normal_kernel below.
 //
 // log, sincos_2pi, Phi and Phi^-1 are kindling's own (detail/dmath.hpp), so the bits are
 // the same under every compiler, flag set and CPU.
