@@ -40,9 +40,10 @@
 //
 // Reproducibility. The Gaussian matrix is bit-exact everywhere (format v1). The QR is
 // not: Eigen's blocked Householder code and matrix products sum in an order that
-// depends on the SIMD width (-march), on fused multiply-add contraction and on the
-// product blocking Eigen picks from the CPU's cache sizes. So the values are
-// deterministic for a given build on a given machine, and across builds and machines
+// depends on the SIMD width (-march), on fused multiply-add contraction, on the
+// product blocking Eigen picks from the CPU's cache sizes and, when Eigen runs its
+// products on OpenMP threads, on its thread count. So the values are deterministic for
+// a given build on a given machine (and Eigen thread count), and across builds and machines
 // they agree to within 1e-8 * |gain| per entry before rounding to the element type
 // (float results then differ by at most one unit in the last place, in the rare entry
 // that sits near a rounding boundary). The difference is about 1e-16 times the
