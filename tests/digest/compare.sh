@@ -72,7 +72,13 @@ for k in "${!configs[@]}"; do
   fi
 done
 
+# And against the frozen format-v1 lines.
+if ! diff -u --label "format_v1.txt" --label "${names[0]}" "$here/format_v1.txt" "$work/out.0"; then
+  echo "DIFFERENT: ${names[0]} against the frozen format-v1 lines" >&2
+  status=1
+fi
+
 if [ "$status" = 0 ]; then
-  echo "digest: all ${#configs[@]} builds print the same $lines lines"
+  echo "digest: all ${#configs[@]} builds print the same $lines lines, equal to format_v1.txt"
 fi
 exit "$status"
