@@ -1,0 +1,312 @@
+// kindling/propagate/stack.hpp: a description of a layer stack -- widths, activations,
+// weight variance (from a scheme or given), bias variance -- that the analytic
+// propagation (mean_field.hpp, linear.hpp), the measured pass (measure.hpp) and the
+// diagnostics (diagnose.hpp) share.
+//
+// Layer l (1-based in the formulas below, 0-based in code) computes
+//   h_l = W_l a_{l-1} + b_l,   a_l = phi_l(h_l),   a_0 = the input x,
+// W_l with i.i.d. zero-mean entries of variance Var W_l, b_l with variance sigma_b,l^2.
+// Dense layers take their fans from `dense`; convolutions from `convolution` (fan_in =
+// in/groups * receptive field, fan_out = out/groups * receptive field): the analyses
+// only need the fans, the measured pass only handles dense layers.
+#pragma once
+
+#include <cmath>
+#include <cstdint>
+#include <functional>
+#include <optional>
+#include <stdexcept>
+#include <string>
+#include <type_traits>
+#include <utility>
+#include <vector>
+
+#include "../fan.hpp"
+#include "../gain.hpp"
+#include "../random/sample.hpp"
+#include "../schemes/fixed.hpp"
+#include "../schemes/scheme.hpp"
+
+namespace kindling {
+
+namespace detail {
+
+
+
+// Normal mass beyond |z| = 13 is 1.2e-38; if f(x)^2 times the density there is not
+// negligible against the whole integral, the second moment does not exist (or the
+// range misses it), and any number the quadrature gives is meaningless.
+template <class F>
+double checked_moment(const F& f, std::optional<double> kink, double variance, const char* where,
+                      const char* what, const std::string& name) {
+  const double split = kink.value_or(0.0);
+  const double m = gaussian_expectation_split(f, split, 0.0, variance);
+  if (variance == 0.0) return m;
+  const double sd = std::sqrt(variance);
+  constexpr double edge_density = 1.0279773571668917e-37;  // exp(-13^2/2)/sqrt(2 pi)
+  const double tail = (std::fabs(f(13.0 * sd)) + std::fabs(f(-13.0 * sd))) * edge_density;
+  bool ok = std::isfinite(m) && std::isfinite(tail);
+  if (ok && tail > 1e-12 * std::fabs(m)) {
+    // m may be ~0 by cancellation (a mean): judge the tail against E|f| instead.
+    const double scale =
+        gaussian_expectation_split([&f](double x) { return std::fabs(f(x)); }, split, 0.0, variance);
+    ok = std::isfinite(scale) && tail <= 1e-12 * scale;
+  }
+  if (!ok) {
+    throw std::domain_error(std::string(where) + ": " + what + " of activation '" + name +
+                            "' at variance " + argument_text(variance) +
+                            " does not exist (the integrand does not decay under the normal "
+                            "density), expected an activation with finite second moments");
+  }
+  return m;
+}
+
+}  // namespace detail
+
+/// An activation as the analyses see it: phi, phi' and where phi has a kink.
+/// Built from a gain.hpp `activation` (implicitly) or from any pair of callables.
+class nonlinearity {
+ public:
+  nonlinearity(const activation& a)  // NOLINT: implicit, an activation is a nonlinearity
+      : name_(a.name()), value_([a](double x) { return a(x); }),
+        slope_([a](double x) { return a.derivative(x); }), kink_(a.kink()), builtin_(a) {}
+
+  /// Any callable phi with its derivative; `kink` where either is not smooth.
+  static nonlinearity custom(std::string name, std::function<double(double)> phi,
+                             std::function<double(double)> derivative,
+                             std::optional<double> kink = std::nullopt) {
+    if (!phi || !derivative) {
+      throw std::invalid_argument("kindling::nonlinearity::custom: argument '" +
+                                  std::string(!phi ? "phi" : "derivative") +
+                                  "' is empty, expected a callable");
+    }
+    if (kink && !std::isfinite(*kink)) {
+      throw std::domain_error("kindling::nonlinearity::custom: argument 'kink' = " +
+                              detail::argument_text(*kink) + ", expected a finite number");
+    }
+    return nonlinearity(std::move(name), std::move(phi), std::move(derivative), kink);
+  }
+
+  const std::string& name() const noexcept { return name_; }
+  std::optional<double> kink() const noexcept { return kink_; }
+  /// The gain.hpp activation this was made from, if any.
+  const std::optional<activation>& builtin() const noexcept { return builtin_; }
+  double operator()(double x) const { return value_(x); }
+  double slope(double x) const { return slope_(x); }
+
+  /// E[phi(sqrt(q) z)^2], z ~ N(0, 1), by the split Gauss-Legendre rule of gain.hpp
+  /// (accurate to ~1e-15 also for tanh at large q, where Gauss-Hermite loses digits).
+  double second_moment(double q) const {
+    const auto f = [this](double x) { const double y = value_(x); return y * y; };
+    return detail::checked_moment(f, kink_, q, "kindling::nonlinearity::second_moment",
+                                  "E[phi(x)^2]", name_);
+  }
+  /// E[phi'(sqrt(q) z)^2].
+  double slope_second_moment(double q) const {
+    const auto f = [this](double x) { const double y = slope_(x); return y * y; };
+    return detail::checked_moment(f, kink_, q, "kindling::nonlinearity::slope_second_moment",
+                                  "E[phi'(x)^2]", name_);
+  }
+  /// E[phi(sqrt(q) z)].
+  double mean(double q) const {
+    return detail::checked_moment(value_, kink_, q, "kindling::nonlinearity::mean", "E[phi(x)]",
+                                  name_);
+  }
+  /// d/dq E[phi(sqrt(q) z)^2] = E[phi(x) phi'(x) x] / q at x = sqrt(q) z (Stein's lemma).
+  double second_moment_slope(double q) const {
+    if (q <= 0.0) {
+      const double d = slope_(0.0);  // the q -> 0 limit for phi(0) = 0: phi'(0)^2
+      return d * d;
+    }
+    const auto f = [this](double x) { return value_(x) * slope_(x) * x; };
+    return detail::checked_moment(f, kink_, q, "kindling::nonlinearity::second_moment_slope",
+                                  "E[phi(x) phi'(x) x]", name_) / q;
+  }
+
+ private:
+  nonlinearity(std::string name, std::function<double(double)> phi,
+               std::function<double(double)> derivative, std::optional<double> kink)
+      : name_(std::move(name)), value_(std::move(phi)), slope_(std::move(derivative)),
+        kink_(kink) {}
+
+  std::string name_;
+  std::function<double(double)> value_;
+  std::function<double(double)> slope_;
+  std::optional<double> kink_;
+  std::optional<activation> builtin_;
+};
+
+namespace detail {
+template <class S, class = void>
+struct has_variance : std::false_type {};
+template <class S>
+struct has_variance<S, std::void_t<decltype(std::declval<const S&>().variance(fans{}))>>
+    : std::true_type {};
+}  // namespace detail
+
+/// Per-element variance of the weights a scheme draws for these fans. Found through
+/// the scheme's variance(fans) (Glorot, He, LeCun, variance_scaling) and overloads of
+/// weight_variance_of (fixed_normal, fixed_uniform here; orthogonal in measure.hpp).
+template <class Scheme, std::enable_if_t<detail::has_variance<Scheme>::value, int> = 0>
+double weight_variance_of(const Scheme& scheme, const fans& f) {
+  return scheme.variance(f);
+}
+
+/// One layer of a stack.
+struct stack_layer {
+  std::string label;             // "layer1", ... unless given; weights use label + ".weight"
+  kindling::fans fans;           // fan_in, fan_out of W_l
+  std::uint64_t in_width = 0;    // features (channels) into the layer
+  std::uint64_t width = 0;       // features (channels) out of it
+  bool dense = true;             // false: a convolution, analysed through its fans only
+  nonlinearity act = activation::identity();
+  double weight_variance = 0;    // Var W_l per element
+  double bias_variance = 0;      // sigma_b,l^2
+  std::string scheme;            // the scheme's name, or "normal(variance)"
+  /// Fills the [width, in_width] weight from a stream (dense layers), as the scheme does.
+  std::function<void(const strided_view<double>&, const stream&)> draw;
+
+  /// sigma_w^2 of the mean-field papers: fan_in Var W (forward), fan_out Var W (backward).
+  double forward_scale() const { return static_cast<double>(fans.fan_in) * weight_variance; }
+  double backward_scale() const { return static_cast<double>(fans.fan_out) * weight_variance; }
+};
+
+/// A stack of layers fed by an input of `input_width` features whose entries have
+/// second moment `input_second_moment` (E[x^2]; 1 for standardized data).
+class layer_stack {
+ public:
+  explicit layer_stack(std::uint64_t input_width, double input_second_moment = 1.0)
+      : input_width_(input_width), input_moment_(input_second_moment) {
+    detail::require_positive(input_width, "kindling::layer_stack", "input_width");
+    if (!(std::isfinite(input_second_moment) && input_second_moment > 0.0)) {
+      throw std::domain_error("kindling::layer_stack: argument 'input_second_moment' = " +
+                              detail::argument_text(input_second_moment) +
+                              ", expected a finite number > 0");
+    }
+  }
+
+  /// A dense layer of `width` units after the current top, weights drawn by `scheme`.
+  template <class Scheme>
+  layer_stack& add_dense(std::uint64_t width, const nonlinearity& act, const Scheme& scheme,
+                         double bias_variance = 0.0, std::string label = {}) {
+    constexpr const char* where = "kindling::layer_stack::add_dense";
+    detail::require_positive(width, where, "width");
+    const dense d(top_width(), width);
+    const double v = weight_variance_of(scheme, d.layer_fans());
+    stack_layer layer = make(where, d.layer_fans(), width, act, v, bias_variance, std::move(label));
+    layer.scheme = scheme.name();
+    const std::uint64_t in = top_width();
+    layer.draw = [scheme, in, width](const strided_view<double>& w, const stream& s) {
+      initialize(w, dense(in, width), scheme, s);
+    };
+    layers_.push_back(std::move(layer));
+    return *this;
+  }
+
+  /// A dense layer whose weights are N(0, weight_variance) (a distribution, no scheme).
+  layer_stack& add_dense_with_variance(std::uint64_t width, const nonlinearity& act,
+                                       double weight_variance, double bias_variance = 0.0,
+                                       std::string label = {}) {
+    constexpr const char* where = "kindling::layer_stack::add_dense_with_variance";
+    detail::require_positive(width, where, "width");
+    const dense d(top_width(), width);
+    stack_layer layer =
+        make(where, d.layer_fans(), width, act, weight_variance, bias_variance, std::move(label));
+    layer.scheme = "normal(" + detail::argument_text(weight_variance) + ")";
+    const double sd = std::sqrt(weight_variance);
+    layer.draw = [sd](const strided_view<double>& w, const stream& s) {
+      fill(w, dist::normal{0.0, sd}, s);
+    };
+    layers_.push_back(std::move(layer));
+    return *this;
+  }
+
+  /// A convolution after the current top (its in_channels must be the top width);
+  /// analysed through its fans, not runnable by measure.hpp.
+  template <class Scheme>
+  layer_stack& add_convolution(const convolution& conv, const nonlinearity& act,
+                               const Scheme& scheme, double bias_variance = 0.0,
+                               std::string label = {}) {
+    constexpr const char* where = "kindling::layer_stack::add_convolution";
+    if (conv.in_channels() != top_width()) {
+      throw std::invalid_argument(std::string(where) + ": argument 'conv' has in_channels = " +
+                                  std::to_string(conv.in_channels()) +
+                                  ", expected the width of the layer below, " +
+                                  std::to_string(top_width()));
+    }
+    const double v = weight_variance_of(scheme, conv.layer_fans());
+    stack_layer layer =
+        make(where, conv.layer_fans(), conv.out_channels(), act, v, bias_variance, std::move(label));
+    layer.dense = false;
+    layer.scheme = scheme.name();
+    layers_.push_back(std::move(layer));
+    return *this;
+  }
+
+  std::uint64_t input_width() const noexcept { return input_width_; }
+  double input_second_moment() const noexcept { return input_moment_; }
+  std::size_t depth() const noexcept { return layers_.size(); }
+  bool empty() const noexcept { return layers_.empty(); }
+  const std::vector<stack_layer>& layers() const noexcept { return layers_; }
+  const stack_layer& operator[](std::size_t i) const { return layers_.at(i); }
+  std::uint64_t top_width() const noexcept {
+    return layers_.empty() ? input_width_ : layers_.back().width;
+  }
+
+  /// Throws std::invalid_argument naming `where` if the stack has no layers.
+  void require_layers(const char* where) const {
+    if (layers_.empty()) {
+      throw std::invalid_argument(std::string(where) +
+                                  ": argument 'stack' has no layers, expected at least one");
+    }
+  }
+
+ private:
+  stack_layer make(const char* where, const fans& f, std::uint64_t width, const nonlinearity& act,
+                   double weight_variance, double bias_variance, std::string label) const {
+    if (!(std::isfinite(weight_variance) && weight_variance >= 0.0)) {
+      throw std::domain_error(std::string(where) + ": argument 'weight_variance' = " +
+                              detail::argument_text(weight_variance) +
+                              ", expected a finite number >= 0");
+    }
+    if (!(std::isfinite(bias_variance) && bias_variance >= 0.0)) {
+      throw std::domain_error(std::string(where) + ": argument 'bias_variance' = " +
+                              detail::argument_text(bias_variance) +
+                              ", expected a finite number >= 0");
+    }
+    stack_layer layer;
+    layer.label = label.empty() ? "layer" + std::to_string(layers_.size() + 1) : std::move(label);
+    layer.fans = f;
+    layer.in_width = top_width();
+    layer.width = width;
+    layer.act = act;
+    layer.weight_variance = weight_variance;
+    layer.bias_variance = bias_variance;
+    return layer;
+  }
+
+  std::uint64_t input_width_;
+  double input_moment_;
+  std::vector<stack_layer> layers_;
+};
+
+/// Fixed normal weights: stddev^2. The analyses assume zero-mean weights.
+inline double weight_variance_of(const fixed_normal& s, const fans&) {
+  if (s.mean != 0.0) {
+    throw std::domain_error("kindling::weight_variance_of: argument 'scheme' is fixed_normal with mean = " +
+                            detail::argument_text(s.mean) + ", expected mean 0 (propagation assumes "
+                            "zero-mean weights)");
+  }
+  return s.stddev * s.stddev;
+}
+/// Fixed uniform weights on [lo, hi) with lo = -hi: (hi - lo)^2 / 12.
+inline double weight_variance_of(const fixed_uniform& s, const fans&) {
+  if (s.lo != -s.hi) {
+    throw std::domain_error("kindling::weight_variance_of: argument 'scheme' is fixed_uniform on [" +
+                            detail::argument_text(s.lo) + ", " + detail::argument_text(s.hi) +
+                            "), expected a range symmetric about 0 (zero-mean weights)");
+  }
+  return (s.hi - s.lo) * (s.hi - s.lo) / 12.0;
+}
+
+}  // namespace kindling

@@ -1,0 +1,175 @@
+// Tests of propagate/stack.hpp, mean_field.hpp and linear.hpp against published values.
+#include "kindling/propagate/linear.hpp"
+#include "kindling/propagate/mean_field.hpp"
+#include "kindling/schemes/variance_scaling.hpp"
+
+#include <doctest/doctest.h>
+
+#include <cmath>
+
+#include "../support/errors.hpp"
+
+using namespace kindling;
+using kindling_test::mentions;
+using kindling_test::message_of;
+
+TEST_CASE("ReLU with sigma_w^2 = 2, sigma_b^2 = 0 keeps the variance and has chi = 1 (He et al. 2015)") {
+  layer_stack s(256);
+  for (int i = 0; i < 30; ++i) s.add_dense(256, activation::relu(), he_normal{});
+  const auto rows = predict(s);
+  // He et al. 2015, eq. 10: Var y_l = Var y_1 for n Var w = 2; and chi = 2 * 1/2.
+  // q_1 = 2 E[x^2] = 2 (the input is not a ReLU output), then constant.
+  for (std::size_t l = 1; l < rows.size(); ++l) {
+    CHECK_MESSAGE(rows[l].preactivation_variance == doctest::Approx(2.0).epsilon(1e-13),
+                  "q_l constant, expected 2 at layer " << l);
+  }
+  for (std::size_t l = 0; l + 1 < rows.size(); ++l) {
+    CHECK_MESSAGE(rows[l].chi == doctest::Approx(1.0).epsilon(1e-13), "chi = 1 expected");
+    CHECK(rows[l].gradient_variance == doctest::Approx(0.5).epsilon(1e-12));
+  }
+  CHECK(rows.back().warnings.empty());
+  const fixed_point_result f = length_fixed_point(activation::relu(), 2.0, 0.0, 3.0);
+  CHECK(f.converged);
+  CHECK(f.q == doctest::Approx(3.0).epsilon(1e-13));  // every q is a fixed point
+  CHECK(f.chi == doctest::Approx(1.0).epsilon(1e-13));
+}
+
+TEST_CASE("the length map and chi match closed forms for ReLU and identity") {
+  // ReLU: E[relu(sqrt(q) z)^2] = q/2, E[relu'^2] = 1/2 (He et al. 2015, sec. 2.2).
+  CHECK(length_map(activation::relu(), 3.0, 1.5, 0.2) == doctest::Approx(1.5 * 1.5 + 0.2).epsilon(1e-14));
+  CHECK(backward_factor(activation::relu(), 3.0, 1.5) == doctest::Approx(0.75).epsilon(1e-14));
+  // identity: q -> sigma_w^2 q + sigma_b^2, fixed point sigma_b^2 / (1 - sigma_w^2).
+  const fixed_point_result f = length_fixed_point(activation::identity(), 0.5, 0.3);
+  CHECK(f.converged);
+  CHECK(f.q == doctest::Approx(0.6).epsilon(1e-12));
+  CHECK(f.chi == doctest::Approx(0.5).epsilon(1e-14));
+  CHECK(f.correlation_depth == doctest::Approx(1.0 / std::log(2.0)).epsilon(1e-12));  // -1/ln chi
+  CHECK(f.length_depth == doctest::Approx(1.0 / std::log(2.0)).epsilon(1e-9));
+  const fixed_point_result d = length_fixed_point(activation::relu(), 2.5, 0.0);
+  CHECK(d.diverged);
+  CHECK_FALSE(d.converged);
+}
+
+TEST_CASE("tanh ordered phase: q* is a fixed point, chi < 1 and xi_c = -1/ln chi (Schoenholz et al. 2017)") {
+  const nonlinearity t = activation::tanh();
+  const fixed_point_result f = length_fixed_point(t, 1.5, 0.3);
+  REQUIRE(f.converged);
+  CHECK(length_map(t, f.q, 1.5, 0.3) == doctest::Approx(f.q).epsilon(1e-12));
+  CHECK(f.chi < 1.0);
+  CHECK(f.correlation_depth == doctest::Approx(-1.0 / std::log(f.chi)).epsilon(1e-12));
+  // F'(q*) checked against a central difference of the length map.
+  const double h = 1e-5;
+  const double slope = (length_map(t, f.q + h, 1.5, 0.3) - length_map(t, f.q - h, 1.5, 0.3)) / (2 * h);
+  CHECK(f.length_slope == doctest::Approx(slope).epsilon(1e-7));
+}
+
+TEST_CASE("SELU with LeCun normal has the fixed point mean 0, variance 1 (Klambauer et al. 2017)") {
+  const nonlinearity selu = activation::selu();
+  // Klambauer et al. 2017, sec. 3: for omega = 0, tau = 1 the map (mu, nu) -> (0, 1) has
+  // (0, 1) as fixed point: E[selu(z)] = 0 and E[selu(z)^2] = 1 for z ~ N(0, 1).
+  CHECK(std::fabs(selu.mean(1.0)) < 1e-7);  // the published constants are rounded
+  CHECK(selu.second_moment(1.0) == doctest::Approx(1.0).epsilon(1e-7));
+  layer_stack s(300);
+  for (int i = 0; i < 20; ++i) s.add_dense(300, activation::selu(), lecun_normal{});
+  const auto rows = predict(s);
+  for (const auto& r : rows) CHECK(r.preactivation_variance == doctest::Approx(1.0).epsilon(1e-6));
+  const fixed_point_result f = length_fixed_point(selu, 1.0, 0.0, 4.0);
+  CHECK(f.converged);
+  CHECK(f.q == doctest::Approx(1.0).epsilon(1e-7));  // attracting: reached from q = 4
+}
+
+TEST_CASE("an identity stack reproduces Glorot's linear products exactly (Glorot & Bengio 2010, sec. 4.2)") {
+  layer_stack s(30, 2.0);
+  s.add_dense(50, activation::identity(), glorot_uniform{})
+      .add_dense(20, activation::identity(), glorot_normal{})
+      .add_dense(70, activation::identity(), lecun_normal{})
+      .add_dense(10, activation::identity(), he_uniform{});
+  // Hand-written products: Var W = 2/(in+out), 2/(in+out), 1/in, 2/in.
+  const double v[] = {2.0 / 80, 2.0 / 70, 1.0 / 20, 2.0 / 70};
+  const double n_in[] = {30, 50, 20, 70}, n_out[] = {50, 20, 70, 10};
+  const linear_products p = glorot_products(s, 3.0);
+  const auto rows = predict(s, {10.0, 3.0});
+  double fwd = 2.0;
+  for (int i = 0; i < 4; ++i) {
+    fwd *= n_in[i] * v[i];
+    CHECK(p.forward[static_cast<std::size_t>(i)] == doctest::Approx(fwd).epsilon(1e-15));
+    CHECK(rows[static_cast<std::size_t>(i)].preactivation_variance == doctest::Approx(fwd).epsilon(1e-14));
+  }
+  double bwd = 3.0;
+  for (int i = 3; i >= 0; --i) {
+    CHECK(p.backward[static_cast<std::size_t>(i)] == doctest::Approx(bwd).epsilon(1e-15));
+    CHECK(rows[static_cast<std::size_t>(i)].gradient_variance == doctest::Approx(bwd).epsilon(1e-14));
+    bwd *= n_out[i] * v[i];
+  }
+}
+
+TEST_CASE("growth and shrinkage beyond the warning factor are reported per layer") {
+  layer_stack s(100);
+  for (int i = 0; i < 12; ++i) s.add_dense_with_variance(100, activation::relu(), 2.5 / 100);
+  const auto rows = predict(s, {5.0, 1.0});
+  // forward ratio 1.25^l: above 5 from l = 8 (1.25^8 = 5.96) on.
+  CHECK(rows[6].warnings.empty());
+  REQUIRE_FALSE(rows[8].warnings.empty());
+  CHECK(mentions(rows[8].warnings[0], "pre-activation variance grew"));
+  layer_stack t(100);
+  for (int i = 0; i < 12; ++i) t.add_dense_with_variance(100, activation::tanh(), 0.5 / 100);
+  CHECK(mentions(predict(t).back().warnings.at(0), "shrank"));
+}
+
+TEST_CASE("convolution layers enter through their fans") {
+  layer_stack s(16);
+  s.add_convolution(convolution(16, 32, {3, 3}), activation::relu(), he_normal{})
+      .add_convolution(convolution(32, 32, {3, 3}), activation::relu(), he_normal{});
+  const auto rows = predict(s);
+  CHECK(rows[0].forward_scale == doctest::Approx(2.0));  // fan_in 144 * 2/144
+  CHECK(rows[1].preactivation_variance == doctest::Approx(2.0));  // 2 * E[relu(sqrt(2) z)^2]
+  CHECK(rows[0].chi == doctest::Approx(1.0));  // fan_out 288 == fan_in 288 for layer 2
+  CHECK_FALSE(s[0].dense);
+}
+
+TEST_CASE("a callable activation works like a built-in one") {
+  const nonlinearity mine = nonlinearity::custom(
+      "my_tanh", [](double x) { return std::tanh(x); },
+      [](double x) { return 1.0 - std::tanh(x) * std::tanh(x); });
+  const nonlinearity ref = activation::tanh();
+  CHECK(mine.second_moment(2.3) == doctest::Approx(ref.second_moment(2.3)).epsilon(1e-15));
+  CHECK(mine.slope_second_moment(2.3) == doctest::Approx(ref.slope_second_moment(2.3)).epsilon(1e-15));
+}
+
+TEST_CASE("bad input to the stack and the maps is refused with a message naming the argument") {
+  using kindling_test::message_of;
+  CHECK(mentions(message_of<std::invalid_argument>([] { layer_stack s(0); }), "'input_width' = 0"));
+  CHECK(mentions(message_of<std::invalid_argument>([] { layer_stack(4).add_dense(0, activation::relu(), he_normal{}); }),
+                 "'width' = 0"));
+  CHECK(mentions(message_of<std::domain_error>([] { layer_stack(4).add_dense_with_variance(3, activation::relu(), -1.0); }),
+                 "'weight_variance' = -1"));
+  CHECK(mentions(message_of<std::domain_error>([] { layer_stack(4).add_dense(3, activation::relu(), he_normal{}, -0.5); }),
+                 "'bias_variance' = -0.5"));
+  CHECK(mentions(message_of<std::domain_error>([] { layer_stack(4, 0.0); }), "'input_second_moment' = 0"));
+  CHECK(mentions(message_of<std::invalid_argument>([] { predict(layer_stack(4)); }), "no layers"));
+  CHECK(mentions(message_of<std::invalid_argument>([] { glorot_products(layer_stack(4)); }), "no layers"));
+  CHECK(mentions(message_of<std::domain_error>([] { length_map(activation::tanh(), -1.0, 1.0, 0.0); }), "'q' = -1"));
+  CHECK(mentions(message_of<std::domain_error>([] { length_fixed_point(activation::tanh(), 1.0, -2.0); }), "'sigma_b2' = -2"));
+  CHECK(mentions(message_of<std::invalid_argument>([] {
+                   layer_stack(4).add_convolution(convolution(8, 8, {3}), activation::relu(), he_normal{});
+                 }),
+                 "in_channels = 8"));
+  CHECK(mentions(message_of<std::domain_error>([] {
+                   layer_stack s(4);
+                   predict(s.add_dense(3, activation::relu(), he_normal{}), {0.5, 1.0});
+                 }),
+                 "'options.warn_factor' = 0.5"));
+  // exp(x^2) has E[phi(x)^2] = infinity for Var x >= 1/4.
+  const nonlinearity wild = nonlinearity::custom("exp_square", [](double x) { return std::exp(x * x); },
+                                                 [](double x) { return 2 * x * std::exp(x * x); });
+  const std::string m = message_of<std::domain_error>([&] { (void)wild.second_moment(1.0); });
+  CHECK(mentions(m, "exp_square"));
+  CHECK(mentions(m, "does not exist"));
+  CHECK(mentions(message_of<std::domain_error>([&] {
+                   layer_stack s(4);
+                   predict(s.add_dense(3, wild, he_normal{}));
+                 }),
+                 "does not exist"));
+  CHECK(mentions(message_of<std::invalid_argument>([] { nonlinearity::custom("x", nullptr, [](double) { return 1.0; }); }),
+                 "'phi' is empty"));
+}
