@@ -1,0 +1,118 @@
+// kindling/audit/detail/declared.hpp: a declared element distribution (the four of
+// random/sample.hpp) as the audits need it: its CDF, mean, variance, fourth central
+// moment, bounds and a short text.
+#ifndef KINDLING_AUDIT_DETAIL_DECLARED_HPP
+#define KINDLING_AUDIT_DETAIL_DECLARED_HPP
+
+#include <algorithm>
+#include <cmath>
+#include <string>
+
+#include "../../detail/dmath.hpp"
+#include "../../element.hpp"
+#include "../../random/sample.hpp"
+#include "../result.hpp"
+
+namespace kindling::detail {
+
+enum class declared_family { uniform, normal, truncated_normal };
+
+struct declared {
+  declared_family family = declared_family::normal;
+  double a = 0, b = 1;            // uniform: [a, b); normal and truncated: mean, sigma
+  double cut_lo = 0, cut_hi = 0;  // truncated: cuts in units of sigma
+  double mass = 1, phi_lo = 0;    // truncated: Φ(cut_hi) - Φ(cut_lo), Φ(cut_lo)
+  double mean = 0, variance = 1, fourth = 3;  // fourth central moment
+  element_bounds bounds = unbounded;
+
+  double cdf(double x) const {
+    switch (family) {
+      case declared_family::uniform: return std::min(1.0, std::max(0.0, (x - a) / (b - a)));
+      case declared_family::normal: return normal_cdf((x - a) / b);
+      case declared_family::truncated_normal: {
+        const double z = (x - a) / b;
+        if (z <= cut_lo) return 0.0;
+        if (z >= cut_hi) return 1.0;
+        return std::min(1.0, std::max(0.0, (normal_cdf(z) - phi_lo) / mass));
+      }
+    }
+    return 0.0;
+  }
+  double stddev() const { return std::sqrt(variance); }
+
+  std::string text() const {
+    switch (family) {
+      case declared_family::uniform: return "U(" + short_number(a) + ", " + short_number(b) + ")";
+      case declared_family::normal: return "N(" + short_number(a) + ", " + short_number(b) + "²)";
+      case declared_family::truncated_normal:
+        return "N(" + short_number(a) + ", " + short_number(b) + "²) cut to [" + short_number(cut_lo) +
+               "σ, " + short_number(cut_hi) + "σ]";
+    }
+    return "";
+  }
+};
+
+inline declared declare(const dist::uniform& d) {
+  validate(d);
+  declared r;
+  r.family = declared_family::uniform;
+  r.a = d.lo;
+  r.b = d.hi;
+  const double w = d.hi - d.lo;
+  r.mean = 0.5 * (d.lo + d.hi);
+  r.variance = w * w / 12;           // uniform: Var = w²/12, μ4 = w⁴/80 (standard formulas)
+  r.fourth = w * w * w * w / 80;
+  r.bounds = bounds_of(d);
+  return r;
+}
+inline declared declare(const dist::symmetric_uniform& d) {
+  declared r = declare(dist::uniform{-d.bound, d.bound});
+  r.bounds = bounds_of(d);
+  return r;
+}
+inline declared declare(const dist::normal& d) {
+  validate(d);
+  declared r;
+  r.family = declared_family::normal;
+  r.a = d.mean;
+  r.b = d.stddev;
+  r.mean = d.mean;
+  r.variance = d.stddev * d.stddev;
+  r.fourth = 3 * r.variance * r.variance;
+  r.bounds = bounds_of(d);
+  return r;
+}
+// Raw moments of the standard normal cut to [lo, hi] by the recurrence
+// m_k = (k-1) m_{k-2} - (hi^{k-1} φ(hi) - lo^{k-1} φ(lo)) / Z (integration by parts;
+// Johnson, Kotz & Balakrishnan, Continuous Univariate Distributions vol. 1, ch. 13).
+inline declared declare(const dist::truncated_normal& d) {
+  validate(d);
+  declared r;
+  r.family = declared_family::truncated_normal;
+  r.a = d.mean;
+  r.b = d.stddev;
+  r.cut_lo = d.cut_lo;
+  r.cut_hi = d.cut_hi;
+  r.phi_lo = std::isinf(d.cut_lo) ? 0.0 : normal_cdf(d.cut_lo);
+  r.mass = (std::isinf(d.cut_hi) ? 1.0 : normal_cdf(d.cut_hi)) - r.phi_lo;
+  auto edge = [&](int power) {  // hi^p φ(hi) - lo^p φ(lo), zero at infinite cuts
+    const double h = std::isinf(d.cut_hi) ? 0.0 : std::pow(d.cut_hi, power) * normal_pdf(d.cut_hi);
+    const double l = std::isinf(d.cut_lo) ? 0.0 : std::pow(d.cut_lo, power) * normal_pdf(d.cut_lo);
+    return (h - l) / r.mass;
+  };
+  const double m1 = -edge(0);
+  const double m2 = 1 - edge(1);
+  const double m3 = 2 * m1 - edge(2);
+  const double m4 = 3 * m2 - edge(3);
+  const double var = m2 - m1 * m1;
+  const double c4 = m4 - 4 * m1 * m3 + 6 * m1 * m1 * m2 - 3 * m1 * m1 * m1 * m1;
+  r.mean = d.mean + d.stddev * m1;
+  r.variance = d.stddev * d.stddev * var;
+  r.fourth = std::pow(d.stddev, 4) * c4;
+  r.bounds = bounds_of(d);
+  return r;
+}
+
+}  // namespace kindling::detail
+
+#endif  // KINDLING_AUDIT_DETAIL_DECLARED_HPP

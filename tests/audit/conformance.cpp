@@ -1,0 +1,196 @@
+// Tests of audit/conformance.hpp: power against the mistakes it is for (wrong fans,
+// wrong shape), size over many seeds, non-finite values and bad input. The expected
+// variances are the published formulas (REFERENCES.md: Glorot & Bengio 2010 eq. 12/16,
+// He et al. 2015); fixed seeds keep every verdict deterministic, and each test states
+// its false-alarm rate over random seeds.
+#include "kindling/audit/conformance.hpp"
+
+#include <doctest/doctest.h>
+
+#include <cmath>
+#include <limits>
+#include <string>
+#include <vector>
+
+#include "../support/errors.hpp"
+#include "kindling/schemes/fixed.hpp"
+
+using namespace kindling;
+using kindling_test::mentions;
+using kindling_test::message_of;
+
+namespace {
+
+template <class Scheme>
+std::vector<float> made_by(const dense& layer, const Scheme& scheme, std::uint64_t seed) {
+  const auto s = layer.weight_shape();
+  std::vector<float> w(s[0] * s[1]);
+  initialize(strided_view<float>(w.data(), shape(s[0], s[1])), layer, scheme, make_stream(seed, "pump.encoder.weight"));
+  return w;
+}
+
+strided_view<const float> view_of(const std::vector<float>& w, const dense& layer) {
+  const auto s = layer.weight_shape();
+  return strided_view<const float>(w.data(), shape(s[0], s[1]));
+}
+
+}  // namespace
+
+TEST_CASE("a tensor made by a scheme conforms to that scheme") {
+  // False-alarm rate over random seeds: at most alpha = 0.001 (Bonferroni over 3 checks).
+  const dense layer(512, 128);
+  SUBCASE("He normal") {
+    const auto w = made_by(layer, he_normal{}, 1);
+    const audit_report r = check_scheme(view_of(w, layer), layer, he_normal{});
+    CHECK_MESSAGE(r, r.explain());
+    CHECK(r.findings().size() == 5);  // finite, bounds, ks, mean, variance
+    CHECK(mentions(r.explain(), "He normal with fan-in 512: all 5 checks passed"));
+  }
+  SUBCASE("Glorot uniform") {
+    const auto w = made_by(layer, glorot_uniform{}, 2);
+    const audit_report r = check_scheme(view_of(w, layer), layer, glorot_uniform{});
+    CHECK_MESSAGE(r, r.explain());
+  }
+  SUBCASE("a truncated normal rule") {
+    const variance_scaling rule{1, fan_basis::out, draw_shape::truncated_normal, 2};
+    const auto w = made_by(layer, rule, 3);
+    CHECK_MESSAGE(check_scheme(view_of(w, layer), layer, rule), check_scheme(view_of(w, layer), layer, rule).explain());
+  }
+  SUBCASE("a fixed uniform, checked as a distribution") {
+    const auto w = made_by(layer, fixed_uniform{-0.5, 2.0}, 4);
+    const audit_report r = check_distribution(view_of(w, layer), dist::uniform{-0.5, 2.0});
+    CHECK_MESSAGE(r, r.explain());
+  }
+  SUBCASE("float16 values of a normal") {
+    std::vector<float16> h(128 * 512);
+    const strided_view<float16> v(h.data(), shape(128, 512));
+    initialize(v, layer, lecun_normal{}, make_stream(5, "x"));
+    CHECK_MESSAGE(check_scheme(v, layer, lecun_normal{}), check_scheme(v, layer, lecun_normal{}).explain());
+  }
+}
+
+TEST_CASE("a fan-in off by a factor of two fails and the message names the fan that fits") {
+  // He normal for fan-in 1024, claimed for fan-in 2048: sd ratio √2 (0.0442 against
+  // sqrt(2/2048) = 0.03125, printed 0.0312 and 1.42x at three digits) over 65536 values,
+  // about 180 standard errors, so the miss rate over random seeds is 0 to any precision.
+  const dense made(1024, 64), claimed(2048, 32);
+  const auto w = made_by(made, he_normal{}, 11);
+  const strided_view<const float> v(w.data(), shape(32, 2048));
+  const audit_report r = check_scheme(v, claimed, he_normal{});
+  CHECK_FALSE(r);
+  REQUIRE(r.find("variance") != nullptr);
+  CHECK_FALSE(r.find("variance")->passed);
+  const std::string why = r.find("variance")->sentence;
+  CHECK_MESSAGE(mentions(why, "is 1.42x the 0.0312 expected for He normal with fan-in 2048"), why);
+  CHECK_MESSAGE(mentions(why, "the value matches fan-in 1024 (1/2 times the declared)"), why);
+  MESSAGE(r.explain());
+}
+
+TEST_CASE("a fan-out used for a fan-in is named as this layer's fan-out") {
+  const dense layer(300, 100);
+  const auto w = made_by(layer, he_normal(0, fan_basis::out), 12);
+  const audit_report r = check_scheme(view_of(w, layer), layer, he_normal{});
+  CHECK_FALSE(r);
+  CHECK_MESSAGE(mentions(r.explain(), "matches fan-out 100 of this layer"), r.explain());
+}
+
+TEST_CASE("power: Glorot passes as Glorot and fails as He, and a normal is told from a uniform") {
+  // 10^4 values or more, 20 seeds each: every one must be caught. The He variance is
+  // 2/fan_in against Glorot's 2/(fan_in + fan_out), so with fan_out = fan_in / 4 the
+  // sd ratio is 1.12, about 14 standard errors at n = 16384: the miss rate per seed is
+  // below 1e-20. A normal against a uniform of the same variance: KS D ≈ 0.03 against
+  // a critical value ≈ 0.016 at alpha/3, miss rate per seed below 1e-6.
+  const dense layer(256, 64);
+  int glorot_ok = 0, he_rejected = 0, shape_rejected = 0;
+  for (std::uint64_t seed = 100; seed < 120; ++seed) {
+    const auto w = made_by(layer, glorot_uniform{}, seed);
+    glorot_ok += check_scheme(view_of(w, layer), layer, glorot_uniform{}) ? 1 : 0;
+    he_rejected += check_scheme(view_of(w, layer), layer, he_uniform{}) ? 0 : 1;
+    const auto n = made_by(layer, glorot_normal{}, seed);
+    const audit_report r = check_scheme(view_of(n, layer), layer, glorot_uniform{});
+    shape_rejected += (!r.find("ks")->passed) ? 1 : 0;
+  }
+  CHECK(glorot_ok == 20);  // false alarms: binomial(20, <= 0.001); P(any) <= 0.02
+  CHECK(he_rejected == 20);
+  CHECK(shape_rejected == 20);
+  SUBCASE("the failing KS sentence names the shape through the kurtosis") {
+    const auto n = made_by(layer, glorot_normal{}, 7);
+    const audit_report r = check_scheme(view_of(n, layer), layer, glorot_uniform{});
+    CHECK_MESSAGE(mentions(r.find("ks")->sentence, "the values do not follow Glorot uniform"), r.explain());
+    CHECK_MESSAGE(mentions(r.find("ks")->sentence, "against the 1.8 of the declared shape"), r.explain());
+  }
+}
+
+TEST_CASE("size: a correct tensor fails at about the nominal rate over many seeds") {
+  // 200 seeds at alpha = 0.01: failures ~ Binomial(200, <= 0.01), mean <= 2.
+  // P(X >= 8) = 0.0011 for p = 0.01, so "fewer than 8" fails on a correct check about
+  // once in a thousand random seed ranges. The other direction: KS p-values of a
+  // correct tensor are uniform, so the count below 0.1 is Binomial(200, 0.1) (mean 20,
+  // sd 4.2); [8, 34] holds with probability 0.996 and fails if the p-values are
+  // systematically too large (an over-conservative test) or too small.
+  const dense layer(40, 25);  // 1000 values, exact KS
+  int failures = 0, ks_below_tenth = 0;
+  const audit_options at_01{0.01, weight_layout::out_in};
+  for (std::uint64_t seed = 0; seed < 200; ++seed) {
+    const auto w = made_by(layer, he_normal{}, 5000 + seed);
+    const audit_report r = check_scheme(view_of(w, layer), layer, he_normal{}, at_01);
+    failures += r ? 0 : 1;
+    ks_below_tenth += r.find("ks")->p_value < 0.1 ? 1 : 0;
+  }
+  MESSAGE("failures " << failures << " of 200; KS p < 0.1 in " << ks_below_tenth);
+  CHECK(failures < 8);
+  CHECK(ks_below_tenth >= 8);
+  CHECK(ks_below_tenth <= 34);
+}
+
+TEST_CASE("values outside the declared bounds fail the bound check with the farthest one") {
+  std::vector<double> w(1000);
+  fill(strided_view<double>(w.data(), shape(10, 100)), dist::symmetric_uniform{1.0}, make_stream(3, "b"));
+  w[517] = 1.25;
+  const audit_report r = check_distribution(strided_view<const double>(w.data(), shape(10, 100)),
+                                            dist::symmetric_uniform{1.0});
+  CHECK_FALSE(r.find("bounds")->passed);
+  CHECK_MESSAGE(mentions(r.find("bounds")->sentence, "1 of 1000 values lie outside (-1, 1)"), r.explain());
+  CHECK_MESSAGE(mentions(r.find("bounds")->sentence, "the farthest is 1.25 (unit 5, connection 17)"), r.explain());
+}
+
+TEST_CASE("non-finite values are reported as such and never counted") {
+  std::vector<float> w(64 * 64, 0.01f);
+  fill(strided_view<float>(w.data(), shape(64, 64)), dist::normal{0, 0.1}, make_stream(1, "n"));
+  w[70] = std::numeric_limits<float>::quiet_NaN();
+  w[71] = std::numeric_limits<float>::infinity();
+  const audit_report r = check_distribution(strided_view<const float>(w.data(), shape(64, 64)), dist::normal{0, 0.1});
+  CHECK_FALSE(r);
+  CHECK(r.findings().size() == 1);
+  CHECK_MESSAGE(mentions(r.explain(), "2 of 4096 values are not finite (1 NaN, 1 infinite; the first, NaN, at flat index 70)"),
+                r.explain());
+}
+
+TEST_CASE("a region of a tensor can be checked on its own") {
+  std::vector<float> w(200 * 100);
+  const strided_view<float> whole(w.data(), shape(200, 100));
+  initialize(whole, dense(100, 200), he_uniform{}, make_stream(8, "r"));
+  const strided_view<float> half = whole.sub(region(shape(100, 0), shape(100, 100)));
+  CHECK(check_scheme(half, dense(100, 200), he_uniform{}));
+  CHECK_FALSE(check_scheme(half, dense(100, 200), he_normal{}));
+}
+
+TEST_CASE("bad input to the conformance checks is refused before anything is read") {
+  std::vector<float> w(8 * 4, 0.1f);
+  const strided_view<const float> v(w.data(), shape(8, 4));
+  SUBCASE("alpha outside (0, 1)") {
+    audit_options o;
+    o.alpha = 0;
+    CHECK(mentions(message_of<std::domain_error>([&] { (void)check_distribution(v, dist::normal{0, 1}, o); }),
+                   "argument 'alpha' = 0, expected a significance level in (0, 1)"));
+    o.alpha = 1.5;
+    CHECK(mentions(message_of<std::domain_error>([&] { (void)check_scheme(v, dense(4, 8), he_normal{}, o); }),
+                   "'alpha' = 1.5"));
+  }
+  SUBCASE("a shape that is not the layer's") {
+    CHECK(!message_of<std::invalid_argument>([&] { (void)check_scheme(v, dense(5, 8), he_normal{}); }).empty());
+  }
+  SUBCASE("an invalid declared distribution") {
+    CHECK(!message_of<std::domain_error>([&] { (void)check_distribution(v, dist::normal{0, -1}); }).empty());
+  }
+}
