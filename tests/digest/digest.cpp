@@ -12,6 +12,7 @@
 #include <string>
 #include <vector>
 
+#include "kindling/kindling.hpp"
 #include "kindling/element.hpp"
 #include "kindling/fill.hpp"
 #include "kindling/random/sample.hpp"
@@ -123,6 +124,32 @@ int main() {
     kindling::fill(strided_view<float>(memory.data(), {5000}), dist::uniform{0.0, 1.0}, st.indexed(3),
                    kindling::domain::positions);
     print("uniform_f32_5000_indexed3_positions", digest(memory));
+  }
+  // Schemes: their parameters (bounds, standard deviations, sparse positions, bias
+  // logits) come from fans through sqrt, division and the library's own log.
+  {
+    const kindling::stream model = kindling::stream::root(20261202);
+    std::vector<float> conv(16 * 3 * 7);
+    kindling::initialize(strided_view<float>(conv.data(), {16, 3, 7}), kindling::convolution(3, 16, {7}),
+                         kindling::he_normal{0.1}, model.named("conv1.weight"));
+    print("scheme_he_normal_leaky_f32_16x3x7", digest(conv));
+    std::vector<kindling::bfloat16> lstm(96 * 32);
+    kindling::initialize(strided_view<kindling::bfloat16>(lstm.data(), {96, 32}), kindling::packed_dense::lstm(32, 24),
+                         kindling::glorot_uniform{}, model.named("lstm.w_ih"));
+    print("scheme_glorot_uniform_packed_lstm_bf16_96x32", digest(lstm));
+    std::vector<double> trunc(50 * 40);
+    kindling::initialize(strided_view<double>(trunc.data(), {50, 40}), kindling::dense(40, 50),
+                         kindling::variance_scaling{2.0, kindling::fan_basis::average,
+                                                    kindling::draw_shape::truncated_normal, 2.0},
+                         model.named("dense.w"));
+    print("scheme_variance_scaling_truncated_f64_50x40", digest(trunc));
+    std::vector<float> sparse(30 * 200);
+    kindling::initialize(strided_view<float>(sparse.data(), {30, 200}), kindling::dense(200, 30),
+                         kindling::sparse{15, 1.0}, model.named("sparse.w"));
+    print("scheme_sparse15_f32_30x200", digest(sparse));
+    std::vector<double> bias(8);
+    kindling::initialize_bias(strided_view<double>(bias.data(), {8}), kindling::sigmoid_target_bias{0.03});
+    print("scheme_sigmoid_target_bias_f64_8", digest(bias));
   }
   return 0;
 }
