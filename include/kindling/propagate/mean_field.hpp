@@ -35,9 +35,11 @@ inline void require_variance(double v, const char* where, const char* argument) 
 }
 inline double depth_scale(double slope) {
   // -1 / ln(slope); infinite at slope 1 (and for slope > 1, the scale of departure).
+  // |ln slope| < 1e-12 is 1 to the quadrature's accuracy (~1e-15 a moment) and counts
+  // as infinite: a depth of 1e12 layers means nothing else.
   if (!(slope > 0.0)) return 0.0;
   const double l = std::log(slope);
-  if (l == 0.0) return std::numeric_limits<double>::infinity();
+  if (std::fabs(l) < 1e-12) return std::numeric_limits<double>::infinity();
   return 1.0 / std::fabs(l);
 }
 }  // namespace detail
