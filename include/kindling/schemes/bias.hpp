@@ -36,42 +36,46 @@ inline void require_probability(double p, const char* rule, const char* argument
 }
 // log(p / (1 - p)) with the library's own log, so the bias has the same bits everywhere.
 inline double logit(double p) { return detail::log(p) - detail::log(1.0 - p); }
+
+// Shared body of the rules that set every element to one computed value.
+template <class Self>
+struct constant_bias {
+  void check(const shape& g, const weight_info& w) const {
+    require_vector(g, Self::rule);
+    constant{self().value()}.check(g, w);
+  }
+  template <class E, class Exec>
+  void write(const strided_view<E>& v, const weight_info& w, const stream& s, Exec&& exec) const {
+    constant{self().value()}.write(v, w, s, std::forward<Exec>(exec));
+  }
+  const Self& self() const { return static_cast<const Self&>(*this); }
+};
 }  // namespace detail
 
 /// b = logit(target): a sigmoid unit starts with mean activation `target`.
-struct sigmoid_target_bias {
+struct sigmoid_target_bias : detail::constant_bias<sigmoid_target_bias> {
   double target = 0.5;
+  sigmoid_target_bias() = default;
+  explicit sigmoid_target_bias(double p) : target(p) {}
   std::string name() const { return "sigmoid-target-bias"; }
   double value() const {
     detail::require_probability(target, "sigmoid_target_bias", "target");
     return detail::logit(target);
   }
-  void check(const shape& g, const weight_info& w) const {
-    detail::require_vector(g, "sigmoid_target_bias");
-    constant{value()}.check(g, w);
-  }
-  template <class E, class Exec>
-  void write(const strided_view<E>& v, const weight_info& w, const stream& s, Exec&& exec) const {
-    constant{value()}.write(v, w, s, std::forward<Exec>(exec));
-  }
+  static constexpr const char* rule = "sigmoid_target_bias";
 };
 
 /// b = -log((1 - prior) / prior) (Lin et al., ICCV 2017, sec. 4.1).
-struct rare_class_bias {
+struct rare_class_bias : detail::constant_bias<rare_class_bias> {
   double prior = 0.01;
+  rare_class_bias() = default;
+  explicit rare_class_bias(double p) : prior(p) {}
   std::string name() const { return "rare-class-bias"; }
   double value() const {
     detail::require_probability(prior, "rare_class_bias", "prior");
     return -(detail::log(1.0 - prior) - detail::log(prior));
   }
-  void check(const shape& g, const weight_info& w) const {
-    detail::require_vector(g, "rare_class_bias");
-    constant{value()}.check(g, w);
-  }
-  template <class E, class Exec>
-  void write(const strided_view<E>& v, const weight_info& w, const stream& s, Exec&& exec) const {
-    constant{value()}.write(v, w, s, std::forward<Exec>(exec));
-  }
+  static constexpr const char* rule = "rare_class_bias";
 };
 
 /// A packed LSTM bias of `blocks` equal blocks: block `forget_block` is `value`, the
