@@ -1,0 +1,118 @@
+// Fill throughput against baselines measured in the same run (bench/ratios turns the
+// medians into the ratios of the performance issue). 64 MiB of float unless noted; the
+// buffer is touched before timing and kept alive with DoNotOptimize.
+#include <benchmark/benchmark.h>
+
+#include <Eigen/Dense>
+#include <algorithm>
+#include <random>
+#include <vector>
+
+#include "kindling/eigen.hpp"
+#include "kindling/kindling.hpp"
+#include "kindling/schemes/orthogonal.hpp"
+
+namespace {
+
+constexpr std::uint64_t rows = 4096, cols = 4096;  // 16 Mi floats = 64 MiB
+const kindling::dense layer(cols, rows);
+
+template <class E>
+std::vector<E>& buffer() {
+  static std::vector<E> b(rows * cols, E{});  // touched once by the value-initialization
+  return b;
+}
+
+void set_bytes(benchmark::State& state, std::size_t element_size) {
+  state.SetBytesProcessed(static_cast<int64_t>(state.iterations()) * static_cast<int64_t>(rows * cols * element_size));
+}
+
+void std_fill(benchmark::State& state) {
+  auto& b = buffer<float>();
+  for (auto _ : state) {
+    std::fill(b.begin(), b.end(), 0.5f);
+    benchmark::DoNotOptimize(b.data());
+    benchmark::ClobberMemory();
+  }
+  set_bytes(state, sizeof(float));
+}
+
+template <class E, class Scheme>
+void scheme_fill(benchmark::State& state, Scheme scheme) {
+  auto& b = buffer<E>();
+  const kindling::strided_view<E> v(b.data(), kindling::shape(rows, cols));
+  const auto s = kindling::make_stream(1, "bench.w");
+  const auto threads = static_cast<std::size_t>(state.range(0));
+  for (auto _ : state) {
+    if (threads == 1) {
+      kindling::initialize(v, layer, scheme, s);
+    } else {
+      kindling::initialize(v, layer, scheme, s, kindling::thread_executor(threads));
+    }
+    benchmark::DoNotOptimize(b.data());
+    benchmark::ClobberMemory();
+  }
+  set_bytes(state, sizeof(E));
+}
+
+void glorot_uniform_f32(benchmark::State& state) { scheme_fill<float>(state, kindling::glorot_uniform{}); }
+void he_normal_f32(benchmark::State& state) { scheme_fill<float>(state, kindling::he_normal{}); }
+void glorot_uniform_bf16(benchmark::State& state) { scheme_fill<kindling::bfloat16>(state, kindling::glorot_uniform{}); }
+void he_normal_bf16(benchmark::State& state) { scheme_fill<kindling::bfloat16>(state, kindling::he_normal{}); }
+
+void mt19937_uniform(benchmark::State& state) {
+  auto& b = buffer<float>();
+  const float bound = std::sqrt(6.0f / (rows + cols));
+  for (auto _ : state) {
+    std::mt19937 g(1);
+    std::uniform_real_distribution<float> d(-bound, bound);
+    for (float& x : b) x = d(g);
+    benchmark::DoNotOptimize(b.data());
+    benchmark::ClobberMemory();
+  }
+  set_bytes(state, sizeof(float));
+}
+
+void mt19937_normal(benchmark::State& state) {
+  auto& b = buffer<float>();
+  const float sd = std::sqrt(2.0f / cols);
+  for (auto _ : state) {
+    std::mt19937 g(1);
+    std::normal_distribution<float> d(0.0f, sd);
+    for (float& x : b) x = d(g);
+    benchmark::DoNotOptimize(b.data());
+    benchmark::ClobberMemory();
+  }
+  set_bytes(state, sizeof(float));
+}
+
+void orthogonal_512(benchmark::State& state) {
+  Eigen::MatrixXf q(512, 512);
+  const auto s = kindling::make_stream(1, "bench.q");
+  for (auto _ : state) {
+    kindling::initialize(kindling::view_of(q), kindling::dense(512, 512), kindling::orthogonal{}, s);
+    benchmark::DoNotOptimize(q.data());
+  }
+}
+
+void eigen_qr_512(benchmark::State& state) {
+  const Eigen::MatrixXd a = Eigen::MatrixXd::Random(512, 512);
+  for (auto _ : state) {
+    Eigen::HouseholderQR<Eigen::MatrixXd> qr(a);
+    Eigen::MatrixXd q = qr.householderQ();
+    benchmark::DoNotOptimize(q.data());
+  }
+}
+
+}  // namespace
+
+BENCHMARK(std_fill)->Unit(benchmark::kMillisecond)->UseRealTime();
+BENCHMARK(glorot_uniform_f32)->Arg(1)->Unit(benchmark::kMillisecond)->UseRealTime();
+BENCHMARK(he_normal_f32)->Arg(1)->Arg(2)->Unit(benchmark::kMillisecond)->UseRealTime();
+BENCHMARK(glorot_uniform_bf16)->Arg(1)->Unit(benchmark::kMillisecond)->UseRealTime();
+BENCHMARK(he_normal_bf16)->Arg(1)->Unit(benchmark::kMillisecond)->UseRealTime();
+BENCHMARK(mt19937_uniform)->Unit(benchmark::kMillisecond)->UseRealTime();
+BENCHMARK(mt19937_normal)->Unit(benchmark::kMillisecond)->UseRealTime();
+BENCHMARK(orthogonal_512)->Unit(benchmark::kMillisecond)->UseRealTime();
+BENCHMARK(eigen_qr_512)->Unit(benchmark::kMillisecond)->UseRealTime();
+BENCHMARK_MAIN();
