@@ -28,7 +28,7 @@ namespace kindling {
 
 namespace detail {
 
-inline constexpr double pi = 3.14159265358979323846;
+inline constexpr double ks_pi = 3.14159265358979323846;
 
 // Durbin's matrix H (m x m) raised to the power n with a decimal exponent kept apart,
 // as in Marsaglia, Tsang & Wang's mPower: values are rescaled by 1e-140 when the
@@ -75,10 +75,10 @@ inline double kolmogorov_limit_survival(double x) {
   if (!(x > 0)) return 1.0;
   if (x < 1.0) {
     // Jacobi-theta form, fast for small x.
-    const double c = -detail::pi * detail::pi / (8 * x * x);
+    const double c = -detail::ks_pi * detail::ks_pi / (8 * x * x);
     double sum = 0;
     for (int k = 1; k <= 7; k += 2) sum += std::exp(c * k * k);  // k = 2j - 1
-    return 1.0 - std::sqrt(2 * detail::pi) / x * sum;
+    return 1.0 - std::sqrt(2 * detail::ks_pi) / x * sum;
   }
   double sum = 0, sign = 1;
   for (int k = 1; k <= 100; ++k) {
