@@ -12,8 +12,9 @@
 // (for Gaussian W with rows w_i ~ N(0, s I): Var[(1/n) sum_i w_i' C w_i] = 2 s^2 tr(C^2)/n
 // -- the variance of a Gaussian quadratic form), with C the second-moment matrix of the
 // layer's input, estimated from the batch without bias (off-diagonal Gram entries).  Layers add up: forward spread_l = sqrt(sum_{k<=l} v_k);
-// gradients also collect the terms of the layers above.  A layer `agrees` when
-//   |measured - predicted| <= z predicted sqrt(se_rel^2 + spread^2),   z = options.z.
+// gradients also collect the terms of the layers above.  The deviations are
+// multiplicative (layers multiply), so a layer `agrees` when
+//   |ln(measured / predicted)| <= z sqrt(se_rel^2 + spread^2),   z = options.z.
 // With z = 4 and Gaussian errors one comparison raises a false alarm with probability
 // 6e-5 over random seeds (the tests use fixed seeds, so they are deterministic).
 //
@@ -168,7 +169,7 @@ struct layer_comparison {
   layer_prediction predicted;
   measurement preactivation;
   measurement gradient;
-  double preactivation_tolerance = 0;  // relative
+  double preactivation_tolerance = 0;  // on |ln(measured / predicted)|
   double gradient_tolerance = 0;
   bool agrees = false;
 };
@@ -289,8 +290,8 @@ propagation_report compare_propagation(const layer_stack& stack, std::uint64_t b
     c.preactivation_tolerance = detail::relative_band(c.preactivation, options.z);
     c.gradient_tolerance = detail::relative_band(c.gradient, options.z);
     const double qp = c.predicted.preactivation_variance, gp = c.predicted.gradient_variance;
-    c.agrees = std::fabs(c.preactivation.mean - qp) <= c.preactivation_tolerance * qp &&
-               std::fabs(c.gradient.mean - gp) <= c.gradient_tolerance * gp;
+    c.agrees = std::fabs(std::log(c.preactivation.mean / qp)) <= c.preactivation_tolerance &&
+               std::fabs(std::log(c.gradient.mean / gp)) <= c.gradient_tolerance;
     report.layers.push_back(std::move(c));
   }
   return report;
