@@ -52,7 +52,7 @@ TEST_CASE("a tensor made by a scheme conforms to that scheme") {
     CHECK_MESSAGE(r, r.explain());
   }
   SUBCASE("a truncated normal rule") {
-    const variance_scaling rule{1, fan_basis::out, draw_shape::truncated_normal, 2};
+    const fan_scaled rule{1, fan_basis::out, draw_shape::truncated_normal, 2};
     const auto w = made_by(layer, rule, 3);
     CHECK_MESSAGE(check_scheme(view_of(w, layer), layer, rule), check_scheme(view_of(w, layer), layer, rule).explain());
   }

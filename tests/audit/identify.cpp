@@ -38,7 +38,7 @@ TEST_CASE("identification names the scheme and the fan that made a tensor") {
       {identify_made_by(he_normal(0, fan_basis::out), 5), "He normal", "fan-out 128"},
       {identify_made_by(lecun_uniform{}, 6), "LeCun uniform", "fan-in 512"},
       {identify_made_by(lecun_normal{}, 7), "LeCun normal", "fan-in 512"},
-      {identify_made_by(variance_scaling{2, fan_basis::in, draw_shape::truncated_normal, 2}, 8), "He truncated normal",
+      {identify_made_by(fan_scaled{2, fan_basis::in, draw_shape::truncated_normal, 2}, 8), "He truncated normal",
        "fan-in 512"},
   };
   for (const expected& c : cases) {

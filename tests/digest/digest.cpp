@@ -139,10 +139,10 @@ int main() {
     print("scheme_glorot_uniform_packed_lstm_bf16_96x32", digest(lstm));
     std::vector<double> trunc(50 * 40);
     kindling::initialize(strided_view<double>(trunc.data(), {50, 40}), kindling::dense(40, 50),
-                         kindling::variance_scaling{2.0, kindling::fan_basis::average,
+                         kindling::fan_scaled{2.0, kindling::fan_basis::average,
                                                     kindling::draw_shape::truncated_normal, 2.0},
                          model.named("dense.w"));
-    print("scheme_variance_scaling_truncated_f64_50x40", digest(trunc));
+    print("scheme_fan_scaled_truncated_f64_50x40", digest(trunc));
     std::vector<float> sparse(30 * 200);
     kindling::initialize(strided_view<float>(sparse.data(), {30, 200}), kindling::dense(200, 30),
                          kindling::sparse{15, 1.0}, model.named("sparse.w"));

@@ -20,7 +20,7 @@ using kindling_test::ks_distance;
 
 namespace {
 
-std::vector<double> draw(const fans& f, const variance_scaling& rule, std::uint64_t n, const char* name) {
+std::vector<double> draw(const fans& f, const fan_scaled& rule, std::uint64_t n, const char* name) {
   std::vector<double> out(static_cast<std::size_t>(n));
   initialize(strided_view<double>(out.data(), shape(n)), weight_info{f, weight_layout::out_in}, rule,
              make_stream(2024, name));
@@ -102,7 +102,7 @@ TEST_CASE("lecun_normal and lecun_uniform have variance 1/fan_in (LeCun et al. 1
 TEST_CASE("truncated variance scaling draws values whose variance is scale/fan, cut at 2 sigma") {
   // Truncated standard normal on [-2, 2]: sd 0.8796256610342398 (scipy.stats.truncnorm(-2, 2)).
   const fans f{400, 400, 1};
-  const variance_scaling rule{2.0, fan_basis::in, draw_shape::truncated_normal, 2.0};
+  const fan_scaled rule{2.0, fan_basis::in, draw_shape::truncated_normal, 2.0};
   const auto x = draw(f, rule, 200000, "truncated");
   const double var = 2.0 / 400;
   const double sigma = std::sqrt(var) / 0.8796256610342398;
@@ -153,7 +153,7 @@ TEST_CASE("LeCun normal with SELU units keeps mean 0 and variance 1 (Klambauer e
   CHECK(kindling_test::variance_of(a) == doctest::Approx(1.0).epsilon(0.06));
 }
 
-TEST_CASE("variance_scaling rejects bad arguments before writing") {
+TEST_CASE("fan_scaled rejects bad arguments before writing") {
   std::vector<float> w(12, 7.0f);
   const strided_view<float> v(w.data(), shape(3, 4));
   SUBCASE("zero fans") {
@@ -163,7 +163,7 @@ TEST_CASE("variance_scaling rejects bad arguments before writing") {
     CHECK_THROWS_AS(initialize(v, dense(4, 3), glorot_uniform(std::nan("")), make_stream(1, "w")), std::domain_error);
   }
   SUBCASE("negative scale") {
-    const variance_scaling rule{-1.0, fan_basis::in, draw_shape::normal, 2.0};
+    const fan_scaled rule{-1.0, fan_basis::in, draw_shape::normal, 2.0};
     CHECK_THROWS_AS(initialize(v, dense(4, 3), rule, make_stream(1, "w")), std::domain_error);
   }
   SUBCASE("a layer that does not fit the view") {

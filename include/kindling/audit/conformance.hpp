@@ -79,7 +79,7 @@ struct fan_hint {
 };
 
 inline std::string fan_text(fan_basis b, const fans& f) {
-  const variance_scaling rule{1, b, draw_shape::normal, 2};
+  const fan_scaled rule{1, b, draw_shape::normal, 2};
   std::string text = std::string(basis_name(b)) + " " + short_number(rule.fan(f), 6);
   if (b == fan_basis::average) {
     text += " (fan-in " + std::to_string(f.fan_in) + ", fan-out " + std::to_string(f.fan_out) + ")";
@@ -207,7 +207,7 @@ inline audit_report conformance(const gathered& g, const declared& d, double alp
         // Which fan would give the variance seen? Prefer one of this layer's fans.
         std::string match;
         for (fan_basis b : {fan_basis::in, fan_basis::out, fan_basis::average}) {
-          const variance_scaling rule{hint->scale, b, draw_shape::normal, 2};
+          const fan_scaled rule{hint->scale, b, draw_shape::normal, 2};
           if (b != hint->basis && std::fabs(rule.variance(hint->fans) - m.variance) <= half) {
             match = "; the value matches " + fan_text(b, hint->fans) + " of this layer";
             break;
@@ -220,7 +220,7 @@ inline audit_report conformance(const gathered& g, const declared& d, double alp
           const double fan_lo = hint->scale / (m.variance + seen_half);
           const double fan_hi = m.variance > seen_half ? hint->scale / (m.variance - seen_half)
                                                        : std::numeric_limits<double>::infinity();
-          const double declared_fan = variance_scaling{hint->scale, hint->basis, draw_shape::normal, 2}.fan(hint->fans);
+          const double declared_fan = fan_scaled{hint->scale, hint->basis, draw_shape::normal, 2}.fan(hint->fans);
           const char* basis = basis_name(hint->basis);
           for (double factor : {0.5, 2.0, 0.25, 4.0, 0.125, 8.0}) {
             const double candidate = declared_fan * factor;
@@ -263,8 +263,8 @@ template <class S>
 struct has_rule<S, std::void_t<decltype(std::declval<const S&>().rule())>> : std::true_type {};
 
 template <class Scheme>
-bool scaling_rule_of(const Scheme& scheme, variance_scaling* out) {
-  if constexpr (std::is_same<Scheme, variance_scaling>::value) {
+bool scaling_rule_of(const Scheme& scheme, fan_scaled* out) {
+  if constexpr (std::is_same<Scheme, fan_scaled>::value) {
     *out = scheme;
     return true;
   } else if constexpr (has_rule<Scheme>::value) {
@@ -279,7 +279,7 @@ bool scaling_rule_of(const Scheme& scheme, variance_scaling* out) {
 
 template <class Scheme>
 std::string scheme_subject(const Scheme& scheme, const fans& f) {
-  variance_scaling rule;
+  fan_scaled rule;
   if (scaling_rule_of(scheme, &rule)) {
     return display_name(scheme.name()) + " with " + fan_text(rule.basis, f);
   }
@@ -312,7 +312,7 @@ audit_report check_scheme(const strided_view<E>& v, const weight_info& w, const 
   const std::string subject = detail::scheme_subject(scheme, w.fans);
   const detail::declared declared =
       detail::visit_distribution(scheme.distribution(w.fans), [](const auto& d) { return detail::declare(d); });
-  variance_scaling rule;
+  fan_scaled rule;
   detail::fan_hint hint;
   const bool scaling = detail::scaling_rule_of(scheme, &rule);
   if (scaling) hint = detail::fan_hint{rule.scale, rule.basis, w.fans};

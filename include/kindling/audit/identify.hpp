@@ -20,7 +20,7 @@ namespace kindling {
 struct scheme_candidate {
   std::string scheme;        // e.g. "He normal"
   std::string fan;           // e.g. "fan-in 512"
-  variance_scaling rule;     // the candidate as a rule (scale, basis, draw, cut)
+  fan_scaled rule;     // the candidate as a rule (scale, basis, draw, cut)
   double ks_statistic = 1;   // D_n to the candidate's CDF
   double score = 0;          // KS p-value
   std::string text() const { return scheme + " with " + fan + " (score " + detail::short_number(score) + ")"; }
@@ -35,7 +35,7 @@ struct identification {
 
 namespace detail {
 
-inline std::string candidate_name(const variance_scaling& r) {
+inline std::string candidate_name(const fan_scaled& r) {
   const char* draw = r.draw == draw_shape::uniform ? "uniform" : r.draw == draw_shape::normal ? "normal"
                                                                                                 : "truncated normal";
   if (r.scale == 2 && r.basis != fan_basis::average) return std::string("He ") + draw;
@@ -74,7 +74,7 @@ inline identification identify(const gathered& g, const fans& f) {
   for (double scale : {1.0, 2.0}) {
     for (fan_basis b : {fan_basis::in, fan_basis::out, fan_basis::average}) {
       for (draw_shape d : {draw_shape::uniform, draw_shape::normal, draw_shape::truncated_normal}) {
-        const variance_scaling rule{scale, b, d, 2};
+        const fan_scaled rule{scale, b, d, 2};
         const declared dd = visit_distribution(rule.distribution(f), [](const auto& x) { return declare(x); });
         scheme_candidate c;
         c.scheme = candidate_name(rule);

@@ -145,7 +145,7 @@ struct has_variance<S, std::void_t<decltype(std::declval<const S&>().variance(fa
 }  // namespace detail
 
 /// Per-element variance of the weights a scheme draws for these fans. Found through
-/// the scheme's variance(fans) (Glorot, He, LeCun, variance_scaling) and overloads of
+/// the scheme's variance(fans) (Glorot, He, LeCun, fan_scaled) and overloads of
 /// weight_variance_of (fixed_normal, fixed_uniform here; orthogonal in measure.hpp).
 template <class Scheme, std::enable_if_t<detail::has_variance<Scheme>::value, int> = 0>
 double weight_variance_of(const Scheme& scheme, const fans& f) {

@@ -33,13 +33,13 @@ inline const char* basis_name(fan_basis b) noexcept {
 }
 
 /// The general rule; the named schemes below are instances.
-struct variance_scaling {
+struct fan_scaled {
   double scale = 1;
   fan_basis basis = fan_basis::in;
   draw_shape draw = draw_shape::normal;
   double cut = 2;  // for truncated_normal: where the underlying normal is cut, in its σ
 
-  std::string name() const { return "variance-scaling"; }
+  std::string name() const { return "fan-scaled"; }
 
   /// The fan that divides the scale.
   double fan(const fans& f) const noexcept {
@@ -55,11 +55,11 @@ struct variance_scaling {
   double variance(const fans& f) const { return scale / fan(f); }
 
   void check_arguments(const fans& f) const {
-    detail::require_positive_argument(scale, "variance_scaling", "scale");
+    detail::require_positive_argument(scale, "fan_scaled", "scale");
     if (draw == draw_shape::truncated_normal) {
-      detail::require_positive_argument(cut, "variance_scaling", "cut");
+      detail::require_positive_argument(cut, "fan_scaled", "cut");
     }
-    detail::require_fans(f, "variance_scaling");
+    detail::require_fans(f, "fan_scaled");
   }
   void check(const shape&, const weight_info& w) const { check_arguments(w.fans); }
 
@@ -85,7 +85,7 @@ struct variance_scaling {
 };
 
 namespace detail {
-// Shared body of the named instances: each says how it maps to variance_scaling.
+// Shared body of the named instances: each says how it maps to fan_scaled.
 template <class Self>
 struct named_scaling {
   void check(const shape& g, const weight_info& w) const { rule().check(g, w); }
@@ -95,7 +95,7 @@ struct named_scaling {
   }
   auto distribution(const fans& f) const { return rule().distribution(f); }
   double variance(const fans& f) const { return rule().variance(f); }
-  variance_scaling rule() const { return static_cast<const Self&>(*this).as_variance_scaling(); }
+  fan_scaled rule() const { return static_cast<const Self&>(*this).as_fan_scaled(); }
 };
 
 inline double he_scale(double slope) {
@@ -111,7 +111,7 @@ struct glorot_uniform : detail::named_scaling<glorot_uniform> {
   glorot_uniform() = default;
   explicit glorot_uniform(double g) : gain(g) {}
   std::string name() const { return "glorot-uniform"; }
-  variance_scaling as_variance_scaling() const {
+  fan_scaled as_fan_scaled() const {
     detail::require_positive_argument(gain, "glorot_uniform", "gain");
     return {gain * gain, fan_basis::average, draw_shape::uniform, 2};
   }
@@ -123,7 +123,7 @@ struct glorot_normal : detail::named_scaling<glorot_normal> {
   glorot_normal() = default;
   explicit glorot_normal(double g) : gain(g) {}
   std::string name() const { return "glorot-normal"; }
-  variance_scaling as_variance_scaling() const {
+  fan_scaled as_fan_scaled() const {
     detail::require_positive_argument(gain, "glorot_normal", "gain");
     return {gain * gain, fan_basis::average, draw_shape::normal, 2};
   }
@@ -138,7 +138,7 @@ struct he_uniform : detail::named_scaling<he_uniform> {
   he_uniform() = default;
   explicit he_uniform(double a, fan_basis b = fan_basis::in) : slope(a), basis(b) {}
   std::string name() const { return "he-uniform"; }
-  variance_scaling as_variance_scaling() const {
+  fan_scaled as_fan_scaled() const {
     return {detail::he_scale(slope), basis, draw_shape::uniform, 2};
   }
 };
@@ -149,7 +149,7 @@ struct he_normal : detail::named_scaling<he_normal> {
   he_normal() = default;
   explicit he_normal(double a, fan_basis b = fan_basis::in) : slope(a), basis(b) {}
   std::string name() const { return "he-normal"; }
-  variance_scaling as_variance_scaling() const {
+  fan_scaled as_fan_scaled() const {
     return {detail::he_scale(slope), basis, draw_shape::normal, 2};
   }
 };
@@ -158,12 +158,12 @@ struct he_normal : detail::named_scaling<he_normal> {
 /// is the variance that gives the self-normalizing fixed point (Klambauer et al. 2017).
 struct lecun_uniform : detail::named_scaling<lecun_uniform> {
   std::string name() const { return "lecun-uniform"; }
-  variance_scaling as_variance_scaling() const { return {1, fan_basis::in, draw_shape::uniform, 2}; }
+  fan_scaled as_fan_scaled() const { return {1, fan_basis::in, draw_shape::uniform, 2}; }
 };
 
 struct lecun_normal : detail::named_scaling<lecun_normal> {
   std::string name() const { return "lecun-normal"; }
-  variance_scaling as_variance_scaling() const { return {1, fan_basis::in, draw_shape::normal, 2}; }
+  fan_scaled as_fan_scaled() const { return {1, fan_basis::in, draw_shape::normal, 2}; }
 };
 
 }  // namespace kindling
