@@ -33,7 +33,7 @@
 // matrix made as above for rows = out, cols = in. The paper takes out >= in; both are
 // accepted here (orthonormal columns if out >= in, orthonormal rows if out < in).
 // With g groups (read off the fans, fan_out = out/g * receptive_field, as in
-// identity.hpp) the centre tap of group k is its own (out/g) x (in/g) matrix, drawn
+// detail/centre_tap.hpp) the centre tap of group k is its own (out/g) x (in/g) matrix, drawn
 // from the stream itself when g = 1 and from s.indexed(k) when g > 1; the centre tap
 // with g = 1 therefore equals orthogonal{gain} of a dense [out, in] weight on the
 // same stream.
@@ -74,7 +74,7 @@
 #include "../random/stream.hpp"
 #include "../view.hpp"
 #include "detail/unit_matrix.hpp"
-#include "identity.hpp"
+#include "detail/centre_tap.hpp"
 #include "scheme.hpp"
 
 namespace kindling {
