@@ -33,6 +33,7 @@
 #include <cstdint>
 #include <exception>
 #include <functional>
+#include <limits>
 #include <mutex>
 #include <stdexcept>
 #include <string>
@@ -144,17 +145,130 @@ inline std::size_t fill_task_count(std::uint64_t elements) noexcept {
   return static_cast<std::size_t>((elements + fill_chunk_elements - 1) / fill_chunk_elements);
 }
 
+// element_traits<E>::from_compute with the bounds turned into two thresholds in the
+// compute type C, the same result bit for bit: "above the bounds (or on an open upper
+// bound)" holds for an upward-closed set of values, so it is t > hi_max with hi_max the
+// largest C value not above, for the exact value t (in C) of the rounded element; the
+// same below with lo_min. Bounds that give no such thresholds (never those of a valid
+// distribution) keep from_compute.
+// Element types without a codec (an adapter's own type, forwarding its traits) keep
+// from_compute.
+template <class E, class = void>
+struct element_rounder {
+  using compute = compute_type_t<E>;
+  element_bounds bounds;
+  compute hi_max{}, lo_min{};
+  bool thresholds = false;
+  explicit element_rounder(const element_bounds& b) noexcept : bounds(b) {}
+  E operator()(compute v) const noexcept { return element_traits<E>::from_compute(v, bounds); }
+};
+
+template <class E>
+struct element_rounder<E, std::void_t<decltype(element_codec<E>::sign)>> {
+  using compute = compute_type_t<E>;
+  using codec = element_codec<E>;
+  element_bounds bounds;
+  compute hi_max, lo_min;
+  bool thresholds;
+
+  explicit element_rounder(const element_bounds& b) noexcept
+      : bounds(b), hi_max(limit(b, true)), lo_min(limit(b, false)) {
+    thresholds = hi_max == hi_max && lo_min == lo_min && lo_min <= hi_max;
+  }
+
+  static compute exact_value(typename codec::bits x) noexcept {
+    if constexpr (std::is_same<E, float16>::value) {
+      return to_float(float16{x});
+    } else if constexpr (std::is_same<E, bfloat16>::value) {
+      return to_float(bfloat16{x});
+    } else {
+      return codec::make(x);
+    }
+  }
+
+  E operator()(compute v) const noexcept {
+    if (!thresholds) return element_traits<E>::from_compute(v, bounds);
+    typename codec::bits x = codec::round(v);
+    const compute t = exact_value(x);
+    if (t > hi_max) {
+      x = step_down_bits(x, codec::sign);
+    } else if (t < lo_min) {
+      x = step_up_bits(x, codec::sign);
+    }
+    return codec::make(x);
+  }
+
+ private:
+  // The largest (upper) / smallest (lower) value of C that is not outside on that side.
+  static compute limit(const element_bounds& b, bool upper) noexcept {
+    using cbits = typename element_codec<compute>::bits;
+    constexpr cbits sign = element_codec<compute>::sign;
+    const auto outside = [&](compute t) {
+      const double d = static_cast<double>(t);
+      return upper ? (d > b.hi || (b.hi_open && d == b.hi)) : (d < b.lo || (b.lo_open && d == b.lo));
+    };
+    const auto inward = [&](compute t) {
+      const cbits x = bits_of(t);
+      return element_codec<compute>::make(upper ? step_down_bits(x, sign) : step_up_bits(x, sign));
+    };
+    const auto outward = [&](compute t) {
+      const cbits x = bits_of(t);
+      return element_codec<compute>::make(upper ? step_up_bits(x, sign) : step_down_bits(x, sign));
+    };
+    const compute inf = std::numeric_limits<compute>::infinity();
+    compute t = static_cast<compute>(upper ? b.hi : b.lo);
+    for (int k = 0; k < 4 && t == t && outside(t); ++k) t = inward(t);
+    if (t != t || outside(t)) return std::numeric_limits<compute>::quiet_NaN();
+    for (int k = 0; k < 4 && t != (upper ? inf : -inf); ++k) {
+      const compute next = outward(t);
+      if (next != next || outside(next)) return t;
+      t = next;
+    }
+    return t == (upper ? inf : -inf) ? t : std::numeric_limits<compute>::quiet_NaN();
+  }
+};
+
+// Elements rounded and stored to contiguous memory: the vector paths of
+// random/detail/lanes.hpp for float and bfloat16, the rounder for the rest.
+template <class E>
+void store_contiguous(const element_rounder<E>& rounder, instruction_set isa,
+                      const compute_type_t<E>* src, E* dst, std::size_t n, bool stream) noexcept {
+  std::size_t k = 0;
+  if constexpr (std::is_same<E, float>::value || std::is_same<E, bfloat16>::value) {
+    if (rounder.thresholds) {
+      // Non-temporal stores need aligned vectors: the elements up to a 64-byte boundary
+      // go one by one.
+      if (stream) {
+        const auto misaligned = reinterpret_cast<std::uintptr_t>(dst) % 64;
+        const std::size_t head =
+            misaligned % sizeof(E) != 0 ? n : std::min(n, ((64 - misaligned) % 64) / sizeof(E));
+        for (; k < head; ++k) dst[k] = rounder(src[k]);
+        stream = head < n;
+      }
+      if constexpr (std::is_same<E, float>::value) {
+        k += round_store_f32(isa, src + k, dst + k, n - k, rounder.hi_max, rounder.lo_min, stream);
+      } else {
+        k += round_store_bf16(isa, src + k, reinterpret_cast<std::uint16_t*>(dst + k), n - k,
+                              rounder.hi_max, rounder.lo_min, stream);
+      }
+    }
+  }
+  (void)isa, (void)stream;
+  for (; k < n; ++k) dst[k] = rounder(src[k]);
+}
+
 // Fills local row-major indices [first_local, first_local + count) of the view's region.
 // gen(global_first, n, out) writes the compute-type values of global indices
 // global_first .. global_first + n - 1 (n <= fill_buffer_elements).
 template <class E, class Gen>
-void fill_chunk(const strided_view<E>& v, const element_bounds& bounds, const Gen& gen,
-                std::uint64_t first_local, std::uint64_t count) {
+void fill_chunk(const strided_view<E>& v, const element_rounder<E>& rounder, bool stream,
+                const Gen& gen, std::uint64_t first_local, std::uint64_t count) {
   using compute = compute_type_t<E>;
   const std::size_t rank = v.rank();
   const shape& global = v.global_shape();
   const shape& extent = v.part().extent();
   const shape& offset = v.part().offset();
+  const instruction_set isa = best_instruction_set();
 
   // Global row-major strides, and the length of a global run: the innermost dimension
   // times every outer dimension the region covers whole, up to the first one it cuts.
@@ -176,33 +290,54 @@ void fill_chunk(const strided_view<E>& v, const element_bounds& bounds, const Ge
     rest /= extent[d];
     at += static_cast<std::ptrdiff_t>(index[d]) * static_cast<std::ptrdiff_t>(v.stride(d));
   }
+  // Step the local index in row-major order, carrying into outer dimensions.
+  const auto step = [&]() {
+    for (std::size_t d = rank; d-- > 0;) {
+      at += static_cast<std::ptrdiff_t>(v.stride(d));
+      if (++index[d] < extent[d]) break;
+      at -= static_cast<std::ptrdiff_t>(extent[d]) * static_cast<std::ptrdiff_t>(v.stride(d));
+      index[d] = 0;
+    }
+  };
+  const std::size_t inner = rank - 1;
+  const bool inner_contiguous = v.stride(inner) == 1;
 
   std::array<compute, fill_buffer_elements> buffer;
   E* const data = v.data();
   std::uint64_t local = first_local;
   std::uint64_t remaining = count;
+  bool streamed = false;
   while (remaining > 0) {
     std::uint64_t global_index = 0;
     for (std::size_t d = 0; d < rank; ++d) global_index += (offset[d] + index[d]) * global_step[d];
     std::uint64_t n = std::min(remaining, run_length - local % run_length);
     n = std::min<std::uint64_t>(n, fill_buffer_elements - global_index % fill_buffer_elements);
     gen(global_index, static_cast<std::size_t>(n), buffer.data());
-    for (std::size_t k = 0; k < n; ++k) {
-      data[at] = element_traits<E>::from_compute(buffer[k], bounds);
-      // Step the local index in row-major order, carrying into outer dimensions.
-      for (std::size_t d = rank; d-- > 0;) {
-        at += static_cast<std::ptrdiff_t>(v.stride(d));
-        if (++index[d] < extent[d]) break;
-        at -= static_cast<std::ptrdiff_t>(extent[d]) * static_cast<std::ptrdiff_t>(v.stride(d));
-        index[d] = 0;
+    if (inner_contiguous && index[inner] + n <= extent[inner]) {
+      // The n elements are adjacent in memory: store them in one go, then step past them.
+      store_contiguous(rounder, isa, buffer.data(), data + at, static_cast<std::size_t>(n), stream);
+      streamed = streamed || stream;
+      index[inner] += n - 1;
+      at += static_cast<std::ptrdiff_t>(n - 1);
+      step();
+    } else {
+      for (std::size_t k = 0; k < n; ++k) {
+        data[at] = rounder(buffer[k]);
+        step();
       }
     }
     local += n;
     remaining -= n;
   }
+  if (streamed) store_fence();
 }
 
 }  // namespace detail
+
+/// Fills of at least this many bytes store with non-temporal (cache-bypassing) writes
+/// where the CPU has them: such a tensor does not stay in cache anyway, and bypassing
+/// it saves reading every line before writing it. The values are the same either way.
+inline constexpr std::uint64_t fill_streaming_bytes = std::uint64_t{16} << 20;
 
 /// Fills a view from a generator of global runs: gen(global_first, n, out) must write
 /// the compute-type values of global row-major indices global_first .. +n-1 to out
@@ -215,9 +350,11 @@ void fill_generated(const strided_view<E>& v, const element_bounds& bounds, cons
                     Exec&& exec = Exec{}) {
   static_assert(!std::is_const<E>::value, "fill needs a view of writable elements");
   const std::uint64_t total = v.size();
+  const detail::element_rounder<E> rounder(bounds);
+  const bool stream = total * sizeof(E) >= fill_streaming_bytes;
   const std::function<void(std::size_t)> task = [&](std::size_t k) {
     const std::uint64_t first = static_cast<std::uint64_t>(k) * fill_chunk_elements;
-    detail::fill_chunk(v, bounds, gen, first, std::min(fill_chunk_elements, total - first));
+    detail::fill_chunk(v, rounder, stream, gen, first, std::min(fill_chunk_elements, total - first));
   };
   std::forward<Exec>(exec)(detail::fill_task_count(total), task);
 }
@@ -226,13 +363,16 @@ void fill_generated(const strided_view<E>& v, const element_bounds& bounds, cons
 /// those of the view's region in the full global shape, whatever the strides, the
 /// region and the executor. d is validated first (validate(d) throws); the view was
 /// validated when it was made; on any throw before the executor runs, nothing is written.
+/// The distribution is validated and prepared (parameters rounded, truncation
+/// probabilities computed) once per call, not per buffer.
 template <class E, class D, class Exec = serial_executor>
 void fill(const strided_view<E>& v, const D& d, const stream& s, std::uint32_t dom = domain::values,
           Exec&& exec = Exec{}) {
   validate(d);
   using compute = compute_type_t<E>;
-  const auto gen = [&d, &s, dom](std::uint64_t first, std::size_t n, compute* out) {
-    generate(d, s, dom, first, n, out);
+  const auto kernel = detail::prepare<compute>(d);
+  const auto gen = [&kernel, &s, dom](std::uint64_t first, std::size_t n, compute* out) {
+    detail::generate_run(kernel, s, dom, first, n, out);
   };
   fill_generated(v, bounds_of(d), gen, std::forward<Exec>(exec));
 }

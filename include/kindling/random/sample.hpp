@@ -39,6 +39,7 @@
 
 #include "kindling/detail/dmath.hpp"
 #include "kindling/element.hpp"
+#include "kindling/random/detail/lanes.hpp"
 #include "kindling/random/stream.hpp"
 
 namespace kindling {
@@ -284,22 +285,66 @@ truncated_normal_kernel<C> prepare(const dist::truncated_normal& d) {
           static_cast<C>(c.mass)};
 }
 
-// The element -> (block, slot) walk shared by every distribution. A run may start and
-// end anywhere; each group it touches is computed into a local buffer laid out by r
-// (r = 16 slot + lane, so a 16-lane path stores it without a transpose), each needed
-// block exactly once, and the covered part is copied out.
+// Whole groups of a float kernel on a vector path (random/detail/lanes.hpp); false when
+// the path or the compute type has none, and the caller takes the scalar walk.
+inline bool vector_groups(instruction_set isa, const uniform_kernel<float>& k,
+                          const philox4x32_key& key, std::uint32_t domain, std::uint64_t g0,
+                          std::uint64_t count, float* out) noexcept {
+  return groups_f32(isa, uniform_f32_params{k.lo, k.width, k.hi, next_below(k.hi)}, key, domain,
+                    g0, count, out);
+}
+inline bool vector_groups(instruction_set isa, const symmetric_uniform_kernel<float>& k,
+                          const philox4x32_key& key, std::uint32_t domain, std::uint64_t g0,
+                          std::uint64_t count, float* out) noexcept {
+  return groups_f32(isa, symmetric_f32_params{k.bound}, key, domain, g0, count, out);
+}
+inline bool vector_groups(instruction_set isa, const normal_kernel<float>& k,
+                          const philox4x32_key& key, std::uint32_t domain, std::uint64_t g0,
+                          std::uint64_t count, float* out) noexcept {
+  return groups_f32(isa, normal_f32_params{k.mean, k.stddev}, key, domain, g0, count, out);
+}
+inline bool vector_groups(instruction_set isa, const truncated_normal_kernel<float>& k,
+                          const philox4x32_key& key, std::uint32_t domain, std::uint64_t g0,
+                          std::uint64_t count, float* out) noexcept {
+  return groups_f32(isa,
+                    truncated_f32_params{k.mean, k.stddev, k.cut_lo, k.cut_hi, k.lower, k.upper,
+                                         k.mass},
+                    key, domain, g0, count, out);
+}
 template <class C, class Kernel>
-void generate_run(const Kernel& kernel, const stream& s, std::uint32_t domain, std::uint64_t first,
-                  std::size_t n, C* out) noexcept {
+bool vector_groups(instruction_set, const Kernel&, const philox4x32_key&, std::uint32_t,
+                   std::uint64_t, std::uint64_t, C*) noexcept {
+  return false;
+}
+
+// The element -> (block, slot) walk shared by every distribution, on instruction set
+// `isa` (instruction_set_available(isa) must hold; every path gives the same bits). A
+// run may start and end anywhere. The whole groups inside it go to the vector path of
+// the kernel when there is one, written straight to out; every other group is computed
+// into a local buffer laid out by r (r = 16 slot + lane), its 16 blocks' words by
+// group_words and the kernel applied block by block, and the covered part copied out.
+template <class C, class Kernel>
+void generate_run_on(instruction_set isa, const Kernel& kernel, const stream& s,
+                     std::uint32_t domain, std::uint64_t first, std::size_t n, C* out) noexcept {
   constexpr unsigned per_block = elements_per_block<C>;
   constexpr std::uint64_t per_group = elements_per_group<C>;
+  const philox4x32_key key = s.philox_key();
   const std::uint64_t end = first + n;
   std::uint64_t i = first;
   while (i < end) {
     const std::uint64_t g = i / per_group;
     const std::uint64_t base = g * per_group;
+    if (i == base && end - i >= per_group) {
+      const std::uint64_t whole = (end - i) / per_group;
+      if (vector_groups(isa, kernel, key, domain, g, whole, out + (i - first))) {
+        i += whole * per_group;
+        continue;
+      }
+    }
     const auto r0 = static_cast<unsigned>(i - base);
     const auto r1 = static_cast<unsigned>(std::min<std::uint64_t>(end - base, per_group));
+    std::uint32_t words[64];
+    group_words(isa, key, domain, g, words);
     C group[per_group];
     for (unsigned lane = 0; lane < 16; ++lane) {
       bool needed = false;
@@ -308,13 +353,22 @@ void generate_run(const Kernel& kernel, const stream& s, std::uint32_t domain, s
         needed = needed || (r >= r0 && r < r1);
       }
       if (!needed) continue;
+      const philox4x32_counter block{words[lane], words[16 + lane], words[32 + lane],
+                                     words[48 + lane]};
       C values[per_block];
-      kernel(s.block(domain, 16 * g + lane), values);
+      kernel(block, values);
       for (unsigned slot = 0; slot < per_block; ++slot) group[16 * slot + lane] = values[slot];
     }
     std::copy(group + r0, group + r1, out + (base + r0 - first));
     i = base + r1;
   }
+}
+
+// generate_run_on the widest instruction set of this CPU.
+template <class C, class Kernel>
+void generate_run(const Kernel& kernel, const stream& s, std::uint32_t domain, std::uint64_t first,
+                  std::size_t n, C* out) noexcept {
+  generate_run_on(best_instruction_set(), kernel, s, domain, first, n, out);
 }
 
 template <class C, class D>

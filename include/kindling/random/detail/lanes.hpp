@@ -1,0 +1,381 @@
+// Counter groups in SIMD lanes: the 16 Philox4x32-10 blocks of a group computed side by
+// side, and the float transforms of random/sample.hpp on whole vectors, selected at run
+// time for the best instruction set of the CPU.
+//
+// Why it keeps every bit: the vector code is a transcription of the scalar code
+// (philox.hpp, dmath.hpp, sample.hpp), operation for operation in the same order.
+// Integer steps are exact; the floating-point steps are +, -, *, /, sqrt and fma, all
+// correctly rounded in IEEE arithmetic, so a vector lane and the scalar path give the
+// same result. Products feed additions only through an explicit fma, as in dmath.hpp,
+// so floating-point contraction has nothing to fuse. Branches of the scalar code become
+// both sides computed and a per-lane select.
+//
+// Layout: a group is 16 blocks (lanes) x 4 words (slots); element r = 16 slot + lane of
+// a float group is word `slot` of block `lane` (DEVELOPERS.md "Element index and
+// words"), so the vector of word j of the 16 blocks is elements 16 j .. 16 j + 15, stored
+// without a transpose.
+//
+// Instruction sets: scalar (everywhere), avx2 (AVX2 + FMA, 8 lanes, two halves a group)
+// and avx512 (AVX-512F/DQ, 16 lanes). The x86 paths are compiled with per-function
+// target attributes, so a portable -O2 build carries them and uses them only where the
+// CPU has them (__builtin_cpu_supports, asked once).
+#ifndef KINDLING_RANDOM_DETAIL_LANES_HPP
+#define KINDLING_RANDOM_DETAIL_LANES_HPP
+
+#include <cstddef>
+#include <cstdint>
+
+#include "kindling/detail/dmath.hpp"
+#include "kindling/random/philox.hpp"
+
+#if defined(__x86_64__) && (defined(__GNUC__) || defined(__clang__))
+#define KINDLING_LANES_X86 1
+#include <immintrin.h>
+#endif
+
+namespace kindling::detail {
+
+/// The code paths of the group functions; best_instruction_set() picks the widest one
+/// the CPU runs. Every path gives the same bits.
+enum class instruction_set { scalar, avx2, avx512 };
+
+inline const char* instruction_set_name(instruction_set i) noexcept {
+  switch (i) {
+    case instruction_set::avx2: return "avx2";
+    case instruction_set::avx512: return "avx512";
+    default: return "scalar";
+  }
+}
+
+/// Whether this build has the path and this CPU runs it.
+inline bool instruction_set_available(instruction_set i) noexcept {
+#if defined(KINDLING_LANES_X86)
+  switch (i) {
+    case instruction_set::avx2:
+      return __builtin_cpu_supports("avx2") && __builtin_cpu_supports("fma");
+    case instruction_set::avx512:
+      return __builtin_cpu_supports("avx512f") && __builtin_cpu_supports("avx512dq");
+    default: return true;
+  }
+#else
+  return i == instruction_set::scalar;
+#endif
+}
+
+/// The widest available path, decided once (a constant of the process).
+inline instruction_set best_instruction_set() noexcept {
+  static const instruction_set best = instruction_set_available(instruction_set::avx512)
+                                          ? instruction_set::avx512
+                                          : instruction_set_available(instruction_set::avx2)
+                                                ? instruction_set::avx2
+                                                : instruction_set::scalar;
+  return best;
+}
+
+// Parameters of the float transforms, as sample.hpp's kernels hold them.
+struct uniform_f32_params {
+  float lo, width, hi, below_hi;  // below_hi: the largest float below hi
+};
+struct symmetric_f32_params {
+  float bound;
+};
+struct normal_f32_params {
+  float mean, stddev;
+};
+struct truncated_f32_params {
+  float mean, stddev, cut_lo, cut_hi, lower, upper, mass;
+};
+
+}  // namespace kindling::detail
+
+#if defined(KINDLING_LANES_X86)
+
+// GCC 12's AVX-512 intrinsics start from _mm512_undefined_*() (a self-initialized
+// variable), which -Wmaybe-uninitialized reports once they are inlined here.
+#if defined(__GNUC__) && !defined(__clang__)
+#pragma GCC diagnostic push
+#pragma GCC diagnostic ignored "-Wmaybe-uninitialized"
+#pragma GCC diagnostic ignored "-Wuninitialized"
+#endif
+
+// ---- AVX-512: 16 lanes ----------------------------------------------------------------
+#if defined(__clang__)
+#pragma clang attribute push(__attribute__((target("avx512f,avx512dq,fma"))), apply_to = function)
+#else
+#pragma GCC push_options
+#pragma GCC target("avx512f,avx512dq,fma")
+#endif
+namespace kindling::detail::lanes_avx512 {
+constexpr unsigned lanes = 16;
+using vu = __m512i;
+using vf = __m512;
+using vm = __mmask16;
+inline vu u_set1(std::uint32_t x) noexcept { return _mm512_set1_epi32(static_cast<int>(x)); }
+inline vu u_iota() noexcept {
+  return _mm512_setr_epi32(0, 1, 2, 3, 4, 5, 6, 7, 8, 9, 10, 11, 12, 13, 14, 15);
+}
+inline vu u_add(vu a, vu b) noexcept { return _mm512_add_epi32(a, b); }
+inline vu u_xor(vu a, vu b) noexcept { return _mm512_xor_si512(a, b); }
+inline vu u_and(vu a, vu b) noexcept { return _mm512_and_si512(a, b); }
+inline vu u_or(vu a, vu b) noexcept { return _mm512_or_si512(a, b); }
+inline vu u_sub(vu a, vu b) noexcept { return _mm512_sub_epi32(a, b); }
+template <int n>
+inline vu u_srl(vu a) noexcept { return _mm512_srli_epi32(a, n); }
+template <int n>
+inline vu u_sll(vu a) noexcept { return _mm512_slli_epi32(a, n); }
+inline vm u_eq(vu a, vu b) noexcept { return _mm512_cmpeq_epi32_mask(a, b); }
+inline vm u_ge(vu a, vu b) noexcept { return _mm512_cmpge_epu32_mask(a, b); }
+inline vu u_select(vm m, vu a, vu b) noexcept { return _mm512_mask_blend_epi32(m, b, a); }
+// (hi, lo) of the 64-bit products a * m, lane by lane: even lanes by _mm512_mul_epu32,
+// odd lanes shifted down into even position.
+inline void u_mulhilo(vu a, std::uint32_t m, vu& hi, vu& lo) noexcept {
+  const vu mv = u_set1(m);
+  const vu even = _mm512_mul_epu32(a, mv);
+  const vu odd = _mm512_mul_epu32(_mm512_srli_epi64(a, 32), mv);
+  // Merge-masked dword shuffles: 0xA0 copies dword 0 of each pair up, 0xF5 dword 1 down.
+  lo = _mm512_mask_shuffle_epi32(even, 0xAAAA, odd, static_cast<_MM_PERM_ENUM>(0xA0));
+  hi = _mm512_mask_shuffle_epi32(odd, 0x5555, even, static_cast<_MM_PERM_ENUM>(0xF5));
+}
+inline vf f_set1(float x) noexcept { return _mm512_set1_ps(x); }
+inline vf f_add(vf a, vf b) noexcept { return _mm512_add_ps(a, b); }
+inline vf f_sub(vf a, vf b) noexcept { return _mm512_sub_ps(a, b); }
+inline vf f_mul(vf a, vf b) noexcept { return _mm512_mul_ps(a, b); }
+inline vf f_div(vf a, vf b) noexcept { return _mm512_div_ps(a, b); }
+inline vf f_sqrt(vf a) noexcept { return _mm512_sqrt_ps(a); }
+inline vf f_fma(vf a, vf b, vf c) noexcept { return _mm512_fmadd_ps(a, b, c); }
+inline vf f_floor(vf a) noexcept {
+  return _mm512_roundscale_ps(a, _MM_FROUND_TO_NEG_INF | _MM_FROUND_NO_EXC);
+}
+inline vf f_neg(vf a) noexcept {
+  return _mm512_castsi512_ps(_mm512_xor_si512(_mm512_castps_si512(a), u_set1(0x80000000u)));
+}
+inline vf f_abs(vf a) noexcept {
+  return _mm512_castsi512_ps(_mm512_and_si512(_mm512_castps_si512(a), u_set1(0x7fffffffu)));
+}
+inline vf f_from_small_u(vu a) noexcept { return _mm512_cvtepi32_ps(a); }  // a < 2^31: exact
+inline vf f_from_i(vu a) noexcept { return _mm512_cvtepi32_ps(a); }        // |a| < 2^24: exact
+inline vu u_trunc_f(vf a) noexcept { return _mm512_cvttps_epi32(a); }
+inline vu u_bits(vf a) noexcept { return _mm512_castps_si512(a); }
+inline vf f_from_bits(vu a) noexcept { return _mm512_castsi512_ps(a); }
+inline vm f_lt(vf a, vf b) noexcept { return _mm512_cmp_ps_mask(a, b, _CMP_LT_OQ); }
+inline vm f_le(vf a, vf b) noexcept { return _mm512_cmp_ps_mask(a, b, _CMP_LE_OQ); }
+inline vm f_ge(vf a, vf b) noexcept { return _mm512_cmp_ps_mask(a, b, _CMP_GE_OQ); }
+inline vm f_eq(vf a, vf b) noexcept { return _mm512_cmp_ps_mask(a, b, _CMP_EQ_OQ); }
+inline vf f_select(vm m, vf a, vf b) noexcept { return _mm512_mask_blend_ps(m, b, a); }
+inline vm m_or(vm a, vm b) noexcept { return static_cast<vm>(a | b); }
+inline vm m_not(vm a) noexcept { return static_cast<vm>(~a); }
+inline vm m_and(vm a, vm b) noexcept { return static_cast<vm>(a & b); }
+inline void u_store(std::uint32_t* p, vu a) noexcept { _mm512_storeu_si512(p, a); }
+inline void f_store(float* p, vf a) noexcept { _mm512_storeu_ps(p, a); }
+inline vu u_load(const void* p) noexcept { return _mm512_loadu_si512(p); }
+// Stores of finished elements; `stream`: non-temporal (p aligned to the vector size).
+inline void u_store_elements(void* p, vu a, bool stream) noexcept {
+  if (stream) {
+    _mm512_stream_si512(static_cast<__m512i*>(p), a);
+  } else {
+    _mm512_storeu_si512(p, a);
+  }
+}
+// The low 16 bits of each lane, packed (p aligned to lanes * 2 bytes when streaming).
+inline void u16_store_elements(void* p, vu a, bool stream) noexcept {
+  const __m256i packed = _mm512_cvtepi32_epi16(a);
+  if (stream) {
+    _mm256_stream_si256(static_cast<__m256i*>(p), packed);
+  } else {
+    _mm256_storeu_si256(static_cast<__m256i*>(p), packed);
+  }
+}
+#include "kindling/random/detail/lanes_body.hpp"
+}  // namespace kindling::detail::lanes_avx512
+#if defined(__clang__)
+#pragma clang attribute pop
+#else
+#pragma GCC pop_options
+#endif
+
+// ---- AVX2 + FMA: 8 lanes --------------------------------------------------------------
+#if defined(__clang__)
+#pragma clang attribute push(__attribute__((target("avx2,fma"))), apply_to = function)
+#else
+#pragma GCC push_options
+#pragma GCC target("avx2,fma")
+#endif
+namespace kindling::detail::lanes_avx2 {
+constexpr unsigned lanes = 8;
+using vu = __m256i;
+using vf = __m256;
+using vm = __m256i;  // all-ones / all-zeros lanes
+inline vu u_set1(std::uint32_t x) noexcept { return _mm256_set1_epi32(static_cast<int>(x)); }
+inline vu u_iota() noexcept { return _mm256_setr_epi32(0, 1, 2, 3, 4, 5, 6, 7); }
+inline vu u_add(vu a, vu b) noexcept { return _mm256_add_epi32(a, b); }
+inline vu u_xor(vu a, vu b) noexcept { return _mm256_xor_si256(a, b); }
+inline vu u_and(vu a, vu b) noexcept { return _mm256_and_si256(a, b); }
+inline vu u_or(vu a, vu b) noexcept { return _mm256_or_si256(a, b); }
+inline vu u_sub(vu a, vu b) noexcept { return _mm256_sub_epi32(a, b); }
+template <int n>
+inline vu u_srl(vu a) noexcept { return _mm256_srli_epi32(a, n); }
+template <int n>
+inline vu u_sll(vu a) noexcept { return _mm256_slli_epi32(a, n); }
+inline vm u_eq(vu a, vu b) noexcept { return _mm256_cmpeq_epi32(a, b); }
+// Unsigned a >= b: max(a, b) == a.
+inline vm u_ge(vu a, vu b) noexcept { return _mm256_cmpeq_epi32(_mm256_max_epu32(a, b), a); }
+inline vu u_select(vm m, vu a, vu b) noexcept { return _mm256_blendv_epi8(b, a, m); }
+inline void u_mulhilo(vu a, std::uint32_t m, vu& hi, vu& lo) noexcept {
+  const vu mv = u_set1(m);
+  const vu even = _mm256_mul_epu32(a, mv);
+  const vu odd = _mm256_mul_epu32(_mm256_srli_epi64(a, 32), mv);
+  lo = _mm256_blend_epi32(even, _mm256_slli_epi64(odd, 32), 0xAA);
+  hi = _mm256_blend_epi32(_mm256_srli_epi64(even, 32), odd, 0xAA);
+}
+inline vf f_set1(float x) noexcept { return _mm256_set1_ps(x); }
+inline vf f_add(vf a, vf b) noexcept { return _mm256_add_ps(a, b); }
+inline vf f_sub(vf a, vf b) noexcept { return _mm256_sub_ps(a, b); }
+inline vf f_mul(vf a, vf b) noexcept { return _mm256_mul_ps(a, b); }
+inline vf f_div(vf a, vf b) noexcept { return _mm256_div_ps(a, b); }
+inline vf f_sqrt(vf a) noexcept { return _mm256_sqrt_ps(a); }
+inline vf f_fma(vf a, vf b, vf c) noexcept { return _mm256_fmadd_ps(a, b, c); }
+inline vf f_floor(vf a) noexcept { return _mm256_floor_ps(a); }
+inline vf f_neg(vf a) noexcept {
+  return _mm256_castsi256_ps(_mm256_xor_si256(_mm256_castps_si256(a), u_set1(0x80000000u)));
+}
+inline vf f_abs(vf a) noexcept {
+  return _mm256_castsi256_ps(_mm256_and_si256(_mm256_castps_si256(a), u_set1(0x7fffffffu)));
+}
+inline vf f_from_small_u(vu a) noexcept { return _mm256_cvtepi32_ps(a); }
+inline vf f_from_i(vu a) noexcept { return _mm256_cvtepi32_ps(a); }
+inline vu u_trunc_f(vf a) noexcept { return _mm256_cvttps_epi32(a); }
+inline vu u_bits(vf a) noexcept { return _mm256_castps_si256(a); }
+inline vf f_from_bits(vu a) noexcept { return _mm256_castsi256_ps(a); }
+inline vm f_lt(vf a, vf b) noexcept { return _mm256_castps_si256(_mm256_cmp_ps(a, b, _CMP_LT_OQ)); }
+inline vm f_le(vf a, vf b) noexcept { return _mm256_castps_si256(_mm256_cmp_ps(a, b, _CMP_LE_OQ)); }
+inline vm f_ge(vf a, vf b) noexcept { return _mm256_castps_si256(_mm256_cmp_ps(a, b, _CMP_GE_OQ)); }
+inline vm f_eq(vf a, vf b) noexcept { return _mm256_castps_si256(_mm256_cmp_ps(a, b, _CMP_EQ_OQ)); }
+inline vf f_select(vm m, vf a, vf b) noexcept { return _mm256_blendv_ps(b, a, _mm256_castsi256_ps(m)); }
+inline vm m_or(vm a, vm b) noexcept { return _mm256_or_si256(a, b); }
+inline vm m_not(vm a) noexcept { return _mm256_xor_si256(a, _mm256_set1_epi32(-1)); }
+inline vm m_and(vm a, vm b) noexcept { return _mm256_and_si256(a, b); }
+inline void u_store(std::uint32_t* p, vu a) noexcept {
+  _mm256_storeu_si256(reinterpret_cast<__m256i*>(p), a);
+}
+inline void f_store(float* p, vf a) noexcept { _mm256_storeu_ps(p, a); }
+inline vu u_load(const void* p) noexcept { return _mm256_loadu_si256(static_cast<const __m256i*>(p)); }
+inline void u_store_elements(void* p, vu a, bool stream) noexcept {
+  if (stream) {
+    _mm256_stream_si256(static_cast<__m256i*>(p), a);
+  } else {
+    _mm256_storeu_si256(static_cast<__m256i*>(p), a);
+  }
+}
+inline void u16_store_elements(void* p, vu a, bool stream) noexcept {
+  // packus works within 128-bit halves: (a0..a3, a0..a3 | a4..a7, a4..a7); gather 0 and 2.
+  const __m256i packed = _mm256_permute4x64_epi64(_mm256_packus_epi32(a, a), 0x08);
+  const __m128i low = _mm256_castsi256_si128(packed);
+  if (stream) {
+    _mm_stream_si128(static_cast<__m128i*>(p), low);
+  } else {
+    _mm_storeu_si128(static_cast<__m128i*>(p), low);
+  }
+}
+#include "kindling/random/detail/lanes_body.hpp"
+}  // namespace kindling::detail::lanes_avx2
+#if defined(__clang__)
+#pragma clang attribute pop
+#else
+#pragma GCC pop_options
+#endif
+
+#if defined(__GNUC__) && !defined(__clang__)
+#pragma GCC diagnostic pop
+#endif
+
+#endif  // KINDLING_LANES_X86
+
+namespace kindling::detail {
+
+// The words of the 16 blocks of group g, slot-major: w[16 j + lane] = word j of block
+// 16 g + lane. Scalar reference of group_words_lanes.
+inline void group_words_scalar(const philox4x32_key& key, std::uint32_t domain, std::uint64_t g,
+                               std::uint32_t* w) noexcept {
+  for (unsigned lane = 0; lane < 16; ++lane) {
+    const std::uint64_t b = 16 * g + lane;
+    const philox4x32_counter x = philox4x32_block(
+        {static_cast<std::uint32_t>(b), static_cast<std::uint32_t>(b >> 32), domain, 1u}, key);
+    for (unsigned j = 0; j < 4; ++j) w[16 * j + lane] = x[j];
+  }
+}
+
+// Group words on the given path (instruction_set_available(isa) must hold).
+inline void group_words(instruction_set isa, const philox4x32_key& key, std::uint32_t domain,
+                        std::uint64_t g, std::uint32_t* w) noexcept {
+#if defined(KINDLING_LANES_X86)
+  if (isa == instruction_set::avx512) return lanes_avx512::group_words(key, domain, g, w);
+  if (isa == instruction_set::avx2) return lanes_avx2::group_words(key, domain, g, w);
+#endif
+  (void)isa;
+  group_words_scalar(key, domain, g, w);
+}
+
+// The float transforms on `count` whole groups from g0, out[64 k + r] for group g0 + k.
+// Return false when the path has no vector code (the caller then runs the scalar one).
+#if defined(KINDLING_LANES_X86)
+#define KINDLING_LANES_DISPATCH(fn, P)                                                       \
+  inline bool groups_f32(instruction_set isa, const P& p, const philox4x32_key& key,          \
+                         std::uint32_t domain, std::uint64_t g0, std::uint64_t count,         \
+                         float* out) noexcept {                                               \
+    if (isa == instruction_set::avx512) return lanes_avx512::fn(p, key, domain, g0, count, out), true; \
+    if (isa == instruction_set::avx2) return lanes_avx2::fn(p, key, domain, g0, count, out), true;     \
+    return false;                                                                             \
+  }
+#else
+#define KINDLING_LANES_DISPATCH(fn, P)                                                       \
+  inline bool groups_f32(instruction_set, const P&, const philox4x32_key&, std::uint32_t,     \
+                         std::uint64_t, std::uint64_t, float*) noexcept {                     \
+    return false;                                                                             \
+  }
+#endif
+KINDLING_LANES_DISPATCH(uniform_groups, uniform_f32_params)
+KINDLING_LANES_DISPATCH(symmetric_groups, symmetric_f32_params)
+KINDLING_LANES_DISPATCH(normal_groups, normal_f32_params)
+KINDLING_LANES_DISPATCH(truncated_groups, truncated_f32_params)
+#undef KINDLING_LANES_DISPATCH
+
+// element_traits<float / bfloat16>::from_compute of src[0 .. n) into dst, with the
+// distribution's bounds given as thresholds in float: hi_max (lo_min) is the largest
+// (smallest) float inside them, so "outside above" is t > hi_max and "outside below"
+// t < lo_min for the exact value t of the rounded element. Vector paths handle a
+// multiple of their width and return how many they wrote; the caller does the rest.
+// `stream`: non-temporal stores (used when dst is aligned to the vector size).
+inline std::size_t round_store_f32(instruction_set isa, const float* src, float* dst,
+                                   std::size_t n, float hi_max, float lo_min,
+                                   bool stream) noexcept {
+#if defined(KINDLING_LANES_X86)
+  if (isa == instruction_set::avx512)
+    return lanes_avx512::round_store_f32(src, dst, n, hi_max, lo_min, stream);
+  if (isa == instruction_set::avx2)
+    return lanes_avx2::round_store_f32(src, dst, n, hi_max, lo_min, stream);
+#endif
+  (void)isa, (void)src, (void)dst, (void)n, (void)hi_max, (void)lo_min, (void)stream;
+  return 0;
+}
+inline std::size_t round_store_bf16(instruction_set isa, const float* src, std::uint16_t* dst,
+                                    std::size_t n, float hi_max, float lo_min,
+                                    bool stream) noexcept {
+#if defined(KINDLING_LANES_X86)
+  if (isa == instruction_set::avx512)
+    return lanes_avx512::round_store_bf16(src, dst, n, hi_max, lo_min, stream);
+  if (isa == instruction_set::avx2)
+    return lanes_avx2::round_store_bf16(src, dst, n, hi_max, lo_min, stream);
+#endif
+  (void)isa, (void)src, (void)dst, (void)n, (void)hi_max, (void)lo_min, (void)stream;
+  return 0;
+}
+// Orders the non-temporal stores before what follows (the end of an executor task).
+inline void store_fence() noexcept {
+#if defined(KINDLING_LANES_X86)
+  _mm_sfence();
+#endif
+}
+
+}  // namespace kindling::detail
+
+#endif  // KINDLING_RANDOM_DETAIL_LANES_HPP

@@ -1,0 +1,288 @@
+// The group functions of one instruction set, written once against the lane
+// primitives (u_*, f_*, m_*) that random/detail/lanes.hpp defines for it. lanes.hpp
+// includes this file inside each instruction set's namespace and target region, so it
+// has no include guard and must not be included anywhere else.
+//
+// Each function transcribes its scalar counterpart (named beside it) operation for
+// operation; see lanes.hpp for why the bits agree.
+
+// Philox4x32-10 (philox.hpp, philox_rounds) of N units of `lanes` consecutive blocks,
+// unit k starting at block b0 + k lanes, counter (b mod 2^32, b >> 32, domain, 1). A
+// unit starts at a multiple of `lanes`, which divides 2^32, so within a unit the low
+// word is that of its first block plus the lane and the high word is constant. The N
+// units are independent chains, interleaved so that the multiplier latency overlaps.
+template <unsigned N>
+inline void philox_units(const philox4x32_key& key, std::uint32_t domain, std::uint64_t b0,
+                         vu (&x)[N][4]) noexcept {
+  for (unsigned k = 0; k < N; ++k) {
+    const std::uint64_t b = b0 + std::uint64_t{k} * lanes;
+    x[k][0] = u_add(u_set1(static_cast<std::uint32_t>(b)), u_iota());
+    x[k][1] = u_set1(static_cast<std::uint32_t>(b >> 32));
+    x[k][2] = u_set1(domain);
+    x[k][3] = u_set1(1u);  // format_version
+  }
+  std::uint32_t k0 = key[0], k1 = key[1];
+  for (int round = 0; round < 10; ++round) {
+    if (round != 0) {
+      k0 += 0x9E3779B9u;
+      k1 += 0xBB67AE85u;
+    }
+    const vu kv0 = u_set1(k0), kv1 = u_set1(k1);
+    for (unsigned k = 0; k < N; ++k) {
+      vu hi0, lo0, hi1, lo1;
+      u_mulhilo(x[k][2], 0xCD9E8D57u, hi0, lo0);
+      u_mulhilo(x[k][0], 0xD2511F53u, hi1, lo1);
+      x[k][0] = u_xor(u_xor(hi0, x[k][1]), kv0);
+      x[k][1] = lo0;
+      x[k][2] = u_xor(u_xor(hi1, x[k][3]), kv1);
+      x[k][3] = lo1;
+    }
+  }
+}
+
+// Runs a transform t over `count` whole groups from g0: t(w, at) gets the four word
+// vectors of one unit and writes its values at at[16 j] (j = slot), where `at` is the
+// unit's first element in the output (group offset + lane).
+template <class T>
+inline void drive_groups(const T& t, const philox4x32_key& key, std::uint32_t domain,
+                         std::uint64_t g0, std::uint64_t count, float* out) noexcept {
+  constexpr unsigned batch = 4;
+  const std::uint64_t units = count * (16 / lanes);
+  const std::uint64_t b0 = 16 * g0;
+  std::uint64_t u = 0;
+  const auto at = [out](std::uint64_t unit) {
+    const std::uint64_t first_lane = unit * lanes;  // block offset from b0
+    return out + (first_lane / 16) * 64 + first_lane % 16;
+  };
+  for (; u + batch <= units; u += batch) {
+    vu x[batch][4];
+    philox_units<batch>(key, domain, b0 + u * lanes, x);
+    for (unsigned k = 0; k < batch; ++k) t(x[k], at(u + k));
+  }
+  for (; u < units; ++u) {
+    vu x[1][4];
+    philox_units<1>(key, domain, b0 + u * lanes, x);
+    t(x[0], at(u));
+  }
+}
+
+// group_words_scalar.
+inline void group_words(const philox4x32_key& key, std::uint32_t domain, std::uint64_t g,
+                        std::uint32_t* w) noexcept {
+  for (unsigned h = 0; h < 16; h += lanes) {
+    vu x[1][4];
+    philox_units<1>(key, domain, 16 * g + h, x);
+    for (unsigned j = 0; j < 4; ++j) u_store(w + 16 * j + h, x[0][j]);
+  }
+}
+
+// unit_uniform<float>: (w >> 8) 2^-24; unit_uniform_open<float>: ((w >> 8) | 1) 2^-24.
+inline vf unit_lanes(vu w) noexcept { return f_mul(f_from_small_u(u_srl<8>(w)), f_set1(0x1p-24f)); }
+inline vf unit_open_lanes(vu w) noexcept {
+  return f_mul(f_from_small_u(u_or(u_srl<8>(w), u_set1(1u))), f_set1(0x1p-24f));
+}
+
+template <std::size_t N>
+inline vf horner_lanes(vf x, const float (&c)[N]) noexcept {
+  vf p = f_set1(c[N - 1]);
+  for (std::size_t i = N - 1; i-- > 0;) p = f_fma(p, x, f_set1(c[i]));
+  return p;
+}
+
+// dmath.hpp log<float>, for finite x > 0 (subnormals included).
+inline vf log_lanes(vf x) noexcept {
+  using K = kernel_constants<float>;
+  vu b = u_bits(x);
+  const vm subnormal = u_eq(u_srl<23>(b), u_set1(0u));
+  b = u_select(subnormal, u_bits(f_mul(x, f_set1(static_cast<float>(1u << 25)))), b);
+  vu k = u_select(subnormal, u_set1(static_cast<std::uint32_t>(-25)), u_set1(0u));
+  k = u_add(k, u_sub(u_srl<23>(b), u_set1(127u)));
+  const vu fraction = u_and(b, u_set1(0x7fffffu));
+  const vm low = u_ge(fraction, u_set1(K::sqrt2_fraction));
+  const vu expo = u_select(low, u_set1(126u), u_set1(127u));
+  k = u_select(low, u_add(k, u_set1(1u)), k);
+  const vf m = f_from_bits(u_or(u_sll<23>(expo), fraction));
+  const vf f = f_sub(m, f_set1(1.0f));
+  const vf s = f_div(f, f_add(f_set1(2.0f), f));
+  const vf z = f_mul(s, s);
+  const vf f_minus_r = f_fma(f_neg(z), horner_lanes(z, K::log_r), f);
+  const vf log1pf = f_fma(f_neg(s), f_minus_r, f);
+  const vf kt = f_from_i(k);
+  return f_fma(kt, f_set1(K::ln2_hi), f_fma(kt, f_set1(K::ln2_lo), log1pf));
+}
+
+// dmath.hpp sincos_2pi<float>, u in [0, 1).
+inline void sincos_2pi_lanes(vf u, vf& sin_out, vf& cos_out) noexcept {
+  using K = kernel_constants<float>;
+  const vf q = f_floor(f_fma(f_set1(4.0f), u, f_set1(0.5f)));
+  const vf t = f_fma(f_set1(4.0f), u, f_neg(q));
+  const vf t2 = f_mul(t, t);
+  const vf s = f_mul(t, horner_lanes(t2, K::sin_c));
+  const vf c = horner_lanes(t2, K::cos_c);
+  const vu quadrant = u_and(u_trunc_f(q), u_set1(3u));
+  // 0: (s, c), 1: (c, -s), 2: (-s, -c), 3: (-c, s)
+  const vm odd = u_eq(u_and(quadrant, u_set1(1u)), u_set1(1u));
+  const vm sin_negative = u_ge(quadrant, u_set1(2u));
+  const vm cos_negative = m_or(u_eq(quadrant, u_set1(1u)), u_eq(quadrant, u_set1(2u)));
+  const vf sin_mag = f_select(odd, c, s), cos_mag = f_select(odd, s, c);
+  sin_out = f_select(sin_negative, f_neg(sin_mag), sin_mag);
+  cos_out = f_select(cos_negative, f_neg(cos_mag), cos_mag);
+}
+
+// dmath.hpp normal_quantile<float> (AS 241 PPND7), every p.
+inline vf quantile_lanes(vf p) noexcept {
+  using K = kernel_constants<float>;
+  const vf q = f_sub(p, f_set1(0.5f));
+  const vm central = f_le(f_abs(q), f_set1(0.425f));
+  const vf rc = f_fma(f_neg(q), q, f_set1(0.180625f));
+  const vf zc = f_div(f_mul(q, horner_lanes(rc, K::ppnd_a)), horner_lanes(rc, K::ppnd_b));
+  const vm negative = f_lt(q, f_set1(0.0f));
+  const vf tail_p = f_select(negative, p, f_sub(f_set1(1.0f), p));
+  // log is defined for x > 0; lanes that are central or outside (0, 1) are replaced below.
+  const vf safe = f_select(f_lt(f_set1(0.0f), tail_p), tail_p, f_set1(0.5f));
+  const vf r = f_sqrt(f_neg(log_lanes(safe)));
+  const vm near = f_le(r, f_set1(5.0f));
+  const vf rn = f_sub(r, f_set1(1.6f)), rf = f_sub(r, f_set1(5.0f));
+  const vf zn = f_div(horner_lanes(rn, K::ppnd_c), horner_lanes(rn, K::ppnd_d));
+  const vf zf = f_div(horner_lanes(rf, K::ppnd_e), horner_lanes(rf, K::ppnd_f));
+  const vf zt = f_select(near, zn, zf);
+  vf z = f_select(central, zc, f_select(negative, f_neg(zt), zt));
+  // Outside (0, 1): p == 0 -> -inf, p == 1 -> +inf, otherwise NaN.
+  const vm inside = m_and(f_lt(f_set1(0.0f), p), f_lt(p, f_set1(1.0f)));
+  const float inf = std::numeric_limits<float>::infinity();
+  const vf outside = f_select(f_eq(p, f_set1(0.0f)), f_set1(-inf),
+                              f_select(f_eq(p, f_set1(1.0f)), f_set1(inf),
+                                       f_set1(std::numeric_limits<float>::quiet_NaN())));
+  z = f_select(inside, z, outside);
+  return z;
+}
+
+// sample.hpp uniform_kernel<float>: x = fma(width, u, lo); x >= hi -> largest below hi.
+struct uniform_unit {
+  vf width, lo, hi, below;
+  void operator()(const vu (&w)[4], float* at) const noexcept {
+    for (unsigned j = 0; j < 4; ++j) {
+      const vf x = f_fma(width, unit_lanes(w[j]), lo);
+      f_store(at + 16 * j, f_select(f_ge(x, hi), below, x));
+    }
+  }
+};
+inline void uniform_groups(const uniform_f32_params& p, const philox4x32_key& key,
+                           std::uint32_t domain, std::uint64_t g0, std::uint64_t count,
+                           float* out) noexcept {
+  const uniform_unit t{f_set1(p.width), f_set1(p.lo), f_set1(p.hi), f_set1(p.below_hi)};
+  drive_groups(t, key, domain, g0, count, out);
+}
+
+// sample.hpp symmetric_uniform_kernel<float>: bound (fma(2, u, -1) + 2^-24).
+struct symmetric_unit {
+  vf bound;
+  void operator()(const vu (&w)[4], float* at) const noexcept {
+    for (unsigned j = 0; j < 4; ++j) {
+      const vf centred =
+          f_add(f_fma(f_set1(2.0f), unit_lanes(w[j]), f_set1(-1.0f)), f_set1(0x1p-24f));
+      f_store(at + 16 * j, f_mul(bound, centred));
+    }
+  }
+};
+inline void symmetric_groups(const symmetric_f32_params& p, const philox4x32_key& key,
+                             std::uint32_t domain, std::uint64_t g0, std::uint64_t count,
+                             float* out) noexcept {
+  drive_groups(symmetric_unit{f_set1(p.bound)}, key, domain, g0, count, out);
+}
+
+// sample.hpp normal_kernel<float>: Box-Muller on slots (0, 1) and (2, 3) of each block.
+struct normal_unit {
+  vf mean, stddev;
+  void operator()(const vu (&w)[4], float* at) const noexcept {
+    for (unsigned j = 0; j < 4; j += 2) {
+      const vf u1 = unit_lanes(w[j]), u2 = unit_lanes(w[j + 1]);
+      const vf r = f_sqrt(f_mul(f_set1(-2.0f), log_lanes(f_sub(f_set1(1.0f), u1))));
+      vf sin_v, cos_v;
+      sincos_2pi_lanes(u2, sin_v, cos_v);
+      f_store(at + 16 * j, f_fma(stddev, f_mul(r, cos_v), mean));
+      f_store(at + 16 * (j + 1), f_fma(stddev, f_mul(r, sin_v), mean));
+    }
+  }
+};
+inline void normal_groups(const normal_f32_params& p, const philox4x32_key& key,
+                          std::uint32_t domain, std::uint64_t g0, std::uint64_t count,
+                          float* out) noexcept {
+  drive_groups(normal_unit{f_set1(p.mean), f_set1(p.stddev)}, key, domain, g0, count, out);
+}
+
+// sample.hpp truncated_normal_kernel<float>: inversion from the nearer tail.
+struct truncated_unit {
+  vf mass, lower, upper, cut_lo, cut_hi, mean, stddev;
+  void operator()(const vu (&w)[4], float* at) const noexcept {
+    for (unsigned j = 0; j < 4; ++j) {
+      const vf uo = unit_open_lanes(w[j]);
+      const vf pl = f_fma(uo, mass, lower);
+      const vm from_lower = f_le(pl, f_set1(0.5f));
+      const vf pu = f_fma(f_sub(f_set1(1.0f), uo), mass, upper);
+      // One quantile per lane, on the probability of its branch.
+      const vf qz = quantile_lanes(f_select(from_lower, pl, pu));
+      vf z = f_select(from_lower, qz, f_neg(qz));
+      z = f_select(f_lt(z, cut_lo), cut_lo, z);  // std::max(z, cut_lo)
+      z = f_select(f_lt(cut_hi, z), cut_hi, z);  // std::min(.., cut_hi)
+      f_store(at + 16 * j, f_fma(stddev, z, mean));
+    }
+  }
+};
+inline void truncated_groups(const truncated_f32_params& p, const philox4x32_key& key,
+                             std::uint32_t domain, std::uint64_t g0, std::uint64_t count,
+                             float* out) noexcept {
+  const truncated_unit t{f_set1(p.mass),   f_set1(p.lower), f_set1(p.upper), f_set1(p.cut_lo),
+                         f_set1(p.cut_hi), f_set1(p.mean),  f_set1(p.stddev)};
+  drive_groups(t, key, domain, g0, count, out);
+}
+
+// element.hpp step_down_bits / step_up_bits on each lane, `sign` the sign bit.
+inline vu step_down_lanes(vu x, vu sign) noexcept {
+  const vm negative = u_eq(u_and(x, sign), sign);
+  const vu stepped = u_select(negative, u_add(x, u_set1(1u)), u_sub(x, u_set1(1u)));
+  return u_select(u_eq(x, u_set1(0u)), u_or(sign, u_set1(1u)), stepped);
+}
+inline vu step_up_lanes(vu x, vu sign) noexcept {
+  const vm negative = u_eq(u_and(x, sign), sign);
+  const vu stepped = u_select(negative, u_sub(x, u_set1(1u)), u_add(x, u_set1(1u)));
+  return u_select(u_eq(x, sign), u_set1(1u), stepped);
+}
+
+// lanes.hpp round_store_f32: float elements are the compute values, moved a step inside.
+inline std::size_t round_store_f32(const float* src, float* dst, std::size_t n, float hi_max,
+                                   float lo_min, bool stream) noexcept {
+  const vf hm = f_set1(hi_max), lm = f_set1(lo_min);
+  const vu sign = u_set1(0x80000000u);
+  const bool nt = stream && reinterpret_cast<std::uintptr_t>(dst) % (4 * lanes) == 0;
+  std::size_t k = 0;
+  for (; k + lanes <= n; k += lanes) {
+    const vu x = u_load(src + k);
+    const vf t = f_from_bits(x);
+    const vu y = u_select(f_lt(hm, t), step_down_lanes(x, sign),
+                          u_select(f_lt(t, lm), step_up_lanes(x, sign), x));
+    u_store_elements(dst + k, y, nt);
+  }
+  return k;
+}
+
+// lanes.hpp round_store_bf16: element.hpp round_to_bfloat16, then the same step inside.
+inline std::size_t round_store_bf16(const float* src, std::uint16_t* dst, std::size_t n,
+                                    float hi_max, float lo_min, bool stream) noexcept {
+  const vf hm = f_set1(hi_max), lm = f_set1(lo_min);
+  const vu sign = u_set1(0x8000u);
+  const bool nt = stream && reinterpret_cast<std::uintptr_t>(dst) % (2 * lanes) == 0;
+  std::size_t k = 0;
+  for (; k + lanes <= n; k += lanes) {
+    const vu b = u_load(src + k);
+    const vm nan = u_ge(u_and(b, u_set1(0x7fffffffu)), u_set1(0x7f800001u));
+    const vu rounded =
+        u_srl<16>(u_add(u_add(b, u_set1(0x7fffu)), u_and(u_srl<16>(b), u_set1(1u))));
+    const vu x = u_select(nan, u_or(u_srl<16>(b), u_set1(0x0040u)), rounded);
+    const vf t = f_from_bits(u_sll<16>(x));
+    const vu y = u_select(f_lt(hm, t), step_down_lanes(x, sign),
+                          u_select(f_lt(t, lm), step_up_lanes(x, sign), x));
+    u16_store_elements(dst + k, y, nt);
+  }
+  return k;
+}
