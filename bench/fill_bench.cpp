@@ -5,9 +5,13 @@
 
 #include <Eigen/Dense>
 #include <algorithm>
+#include <numeric>
 #include <random>
 #include <vector>
+#include <xtensor/xrandom.hpp>
+#include <xtensor/xtensor.hpp>
 
+#include "kindling/audit/symmetry.hpp"
 #include "kindling/eigen.hpp"
 #include "kindling/kindling.hpp"
 #include "kindling/schemes/orthogonal.hpp"
@@ -104,6 +108,61 @@ void eigen_qr_512(benchmark::State& state) {
   }
 }
 
+// One read of the tensor (a sum), the floor for any audit that looks at every value.
+void read_f32(benchmark::State& state) {
+  auto& b = buffer<float>();
+  for (auto _ : state) {
+    float sum = std::accumulate(b.begin(), b.end(), 0.0f);
+    benchmark::DoNotOptimize(sum);
+  }
+  set_bytes(state, sizeof(float));
+}
+
+// The duplicate-unit audit (audit/symmetry.hpp) of the 4096 x 4096 He-normal tensor.
+void duplicate_units_4096(benchmark::State& state) {
+  auto& b = buffer<float>();
+  const kindling::strided_view<const float> v(b.data(), kindling::shape(rows, cols));
+  kindling::initialize(kindling::strided_view<float>(b.data(), kindling::shape(rows, cols)), layer,
+                       kindling::he_normal{}, kindling::make_stream(1, "bench.w"));
+  for (auto _ : state) {
+    auto groups = kindling::duplicate_units(v);
+    benchmark::DoNotOptimize(groups.data());
+  }
+  set_bytes(state, sizeof(float));
+}
+
+// Eigen's own random fill: setRandom() (uniform on [-1, 1], std::rand underneath).
+void eigen_set_random(benchmark::State& state) {
+  Eigen::MatrixXf m(rows, cols);
+  m.setZero();
+  for (auto _ : state) {
+    m.setRandom();
+    benchmark::DoNotOptimize(m.data());
+    benchmark::ClobberMemory();
+  }
+  set_bytes(state, sizeof(float));
+}
+
+// xtensor's own random fills (xt::random::rand / randn on its default mt19937 engine).
+void xtensor_rand(benchmark::State& state) {
+  xt::xtensor<float, 2> t = xt::zeros<float>({rows, cols});
+  for (auto _ : state) {
+    t = xt::random::rand<float>({rows, cols}, -1.0f, 1.0f);
+    benchmark::DoNotOptimize(t.data());
+    benchmark::ClobberMemory();
+  }
+  set_bytes(state, sizeof(float));
+}
+void xtensor_randn(benchmark::State& state) {
+  xt::xtensor<float, 2> t = xt::zeros<float>({rows, cols});
+  for (auto _ : state) {
+    t = xt::random::randn<float>({rows, cols}, 0.0f, 0.02f);
+    benchmark::DoNotOptimize(t.data());
+    benchmark::ClobberMemory();
+  }
+  set_bytes(state, sizeof(float));
+}
+
 }  // namespace
 
 BENCHMARK(std_fill)->Unit(benchmark::kMillisecond)->UseRealTime();
@@ -115,4 +174,9 @@ BENCHMARK(mt19937_uniform)->Unit(benchmark::kMillisecond)->UseRealTime();
 BENCHMARK(mt19937_normal)->Unit(benchmark::kMillisecond)->UseRealTime();
 BENCHMARK(orthogonal_512)->Unit(benchmark::kMillisecond)->UseRealTime();
 BENCHMARK(eigen_qr_512)->Unit(benchmark::kMillisecond)->UseRealTime();
+BENCHMARK(read_f32)->Unit(benchmark::kMillisecond)->UseRealTime();
+BENCHMARK(duplicate_units_4096)->Unit(benchmark::kMillisecond)->UseRealTime();
+BENCHMARK(eigen_set_random)->Unit(benchmark::kMillisecond)->UseRealTime();
+BENCHMARK(xtensor_rand)->Unit(benchmark::kMillisecond)->UseRealTime();
+BENCHMARK(xtensor_randn)->Unit(benchmark::kMillisecond)->UseRealTime();
 BENCHMARK_MAIN();
