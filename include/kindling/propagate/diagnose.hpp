@@ -205,8 +205,7 @@ inline audit_report diagnose_pass(const layer_stack& stack, const realized_stack
       const std::uint64_t width = layers[l].width;
       if (groups.size() == 1 && units == width) {
         details += "in layer '" + layers[l].label + "' all " + std::to_string(width) +
-                   " units have the same pre-activation and the same gradient on every sample, so the layer "
-                   "works as a single unit";
+                   " units have the same pre-activation and gradient on every sample (the layer acts as one unit)";
       } else {
         details += "in layer '" + layers[l].label + "' " + std::to_string(units) + " of " + std::to_string(width) +
                    " units fall in " + std::to_string(groups.size()) + " group" + (groups.size() > 1 ? "s" : "") +
@@ -220,7 +219,7 @@ inline audit_report diagnose_pass(const layer_stack& stack, const realized_stack
     f.sentence = f.passed ? "no two hidden units compute the same function on the batch"
                           : "symmetry not broken: " + details +
                                 "; identical units get identical updates and stay identical under gradient "
-                                "descent (equal or zero incoming weights; draw them at random)";
+                                "descent (equal or zero weights; draw them at random)";
     report.add(std::move(f));
   }
 
