@@ -24,12 +24,12 @@ case "$mode" in
     "$build/philox_words" | dieharder -a -g 200
     ;;
   short)
-    # birthdays (0), 32x32 binary rank (2), bitstream (3), count-the-1s (8), runs (15),
+    # birthdays (0), 32x32 binary rank (2), runs (15),
     # STS monobit (100) and serial (102), RGB bit distribution (200, 8 bits): different
-    # kinds of defect, about 40 s together on one core.
+    # kinds of defect (about 30 s of CPU on one core; 7 tests with bitstream and count-the-1s took 40 s).
     out=$(mktemp)
     trap 'rm -f "$out"' EXIT
-    for d in 0 2 3 8 15 100 102; do
+    for d in 0 2 15 100 102; do
       "$build/philox_words" | dieharder -g 200 -d "$d" | tee -a "$out"
     done
     "$build/philox_words" | dieharder -g 200 -d 200 -n 8 | tee -a "$out"
