@@ -1,0 +1,222 @@
+// examples/tool/check.cpp: `kindling check` reads a weight file and runs kindling's
+// audits on it: the symmetry checks always, conformance with --expect, and a ranked
+// list of the schemes it fits with --identify. Exit 1 when a check fails.
+#include <cctype>
+#include <cstdio>
+#include <stdexcept>
+#include <string>
+#include <vector>
+
+#include <nlohmann/json.hpp>
+
+#include <kindling/audit/conformance.hpp>
+#include <kindling/audit/identify.hpp>
+#include <kindling/audit/structure.hpp>
+#include <kindling/audit/symmetry.hpp>
+#include <kindling/io/npy.hpp>
+
+#include "schemes.hpp"
+#include "tool.hpp"
+
+namespace kindling::tool {
+
+namespace {
+
+using json = nlohmann::json;
+
+// The tolerance on Q Q^T = gain^2 I: the orthogonal schemes' cross-build agreement
+// (1e-8 of the gain, README) for f64, and a few units of the element type's rounding
+// for the narrower types (each entry carries a relative rounding error of half an ulp).
+double orthogonal_tolerance(npy_type t) {
+  switch (t) {
+    case npy_type::f64: return 1e-8;
+    case npy_type::f32: return 1e-5;
+    case npy_type::f16: return 4e-3;
+    case npy_type::bf16: return 3e-2;
+  }
+  return 1e-5;
+}
+
+// The deterministic schemes are checked value by value against a fresh fill.
+template <class E>
+std::vector<double> regenerate(const any_scheme& scheme, const std::vector<std::uint64_t>& global, const weight_info& w) {
+  std::uint64_t n = 1;
+  for (std::uint64_t e : global) n *= e;
+  std::vector<E> values(static_cast<std::size_t>(n));
+  const strided_view<E> view(values.data(), shape(global.begin(), global.end()));
+  std::visit([&](const auto& sc) { initialize(view, w, sc, make_stream(0, "unused"), serial_executor{}); }, scheme);
+  std::vector<double> out(values.size());
+  for (std::size_t i = 0; i < values.size(); ++i) out[i] = element_traits<E>::to_double(values[i]);
+  return out;
+}
+
+audit_report exact_values(const npy_array& a, const std::vector<double>& x, const any_scheme& scheme,
+                          const std::vector<std::uint64_t>& global, const weight_info& w, const std::string& name) {
+  std::vector<double> want;
+  switch (a.type) {
+    case npy_type::f32: want = regenerate<float>(scheme, global, w); break;
+    case npy_type::f64: want = regenerate<double>(scheme, global, w); break;
+    case npy_type::f16: want = regenerate<float16>(scheme, global, w); break;
+    case npy_type::bf16: want = regenerate<bfloat16>(scheme, global, w); break;
+  }
+  std::uint64_t wrong = 0, first = 0;
+  for (std::size_t i = 0; i < x.size(); ++i) {
+    // equal, or both NaN never: a NaN is always wrong
+    if (!(x[i] == want[i])) {
+      if (wrong == 0) first = i;
+      ++wrong;
+    }
+  }
+  audit_report r(name);
+  r.add({"exact-values", wrong == 0,
+         wrong == 0 ? "every value is the one " + name + " gives"
+                    : std::to_string(wrong) + " of " + std::to_string(x.size()) + " values differ from what " + name +
+                          " gives (first at flat index " + std::to_string(first) + ": " + number_text(x[first], 9) +
+                          " instead of " + number_text(want[first], 9) + ")"});
+  return r;
+}
+
+audit_report expect_report(const npy_array& a, const std::vector<double>& x, const check_options& o,
+                           const std::vector<std::uint64_t>& global, const weight_info& w) {
+  const any_scheme scheme = make_scheme(o.expect);
+  if (uses_fans(scheme) && (w.fans.fan_in == 0 || w.fans.fan_out == 0)) {
+    throw std::invalid_argument("--expect '" + o.expect.scheme + "' needs fans, and the rank-1 shape " +
+                                shape_text(global) + " has none: give both --fan-in and --fan-out");
+  }
+  const strided_view<const double> v(x.data(), shape(global.begin(), global.end()));
+  const std::string& s = o.expect.scheme;
+  if (s == "zeros" || s == "constant" || s == "identity") return exact_values(a, x, scheme, global, w, s);
+  if (s == "orthogonal" || s == "delta-orthogonal") {
+    // delta-orthogonal: its flattened units are orthonormal times the gain when the
+    // centre taps are (the other taps are zero); this checks that necessary condition.
+    const double gain = o.expect.gain.value_or(1.0);
+    return check_orthogonal(v, gain, orthogonal_tolerance(a.type), w.layout);
+  }
+  if (s == "sparse") return check_sparsity(v, o.expect.nonzero.value_or(sparse{}.nonzero), w.layout);
+  return std::visit(
+      [&](const auto& sc) -> audit_report {
+        using S = std::decay_t<decltype(sc)>;
+        if constexpr (std::is_same<S, zeros>::value || std::is_same<S, constant>::value ||
+                      std::is_same<S, identity>::value || std::is_same<S, orthogonal>::value ||
+                      std::is_same<S, delta_orthogonal>::value || std::is_same<S, sparse>::value) {
+          throw std::logic_error("unreachable");
+        } else {
+          return check_scheme(v, w, sc);
+        }
+      },
+      scheme);
+}
+
+json report_json(const audit_report& r) {
+  json findings = json::array();
+  for (const audit_finding& f : r.findings()) {
+    findings.push_back({{"check", f.check}, {"passed", f.passed}, {"sentence", f.sentence}});
+  }
+  return {{"subject", r.subject()}, {"passed", r.passed()}, {"findings", findings}};
+}
+
+// A candidate's name in the tool's spellings: "He truncated normal" -> he-truncated-normal.
+std::string candidate_scheme(const scheme_candidate& c) {
+  std::string name;
+  for (char ch : c.scheme) name += ch == ' ' ? '-' : static_cast<char>(std::tolower(static_cast<unsigned char>(ch)));
+  return name;
+}
+
+void print_report(const char* heading, const audit_report& r) {
+  std::printf("%s: %s\n", heading, r.passed() ? "passed" : "FAILED");
+  std::string text = r.explain();
+  std::size_t start = 0;
+  while (start <= text.size()) {
+    const std::size_t end = text.find('\n', start);
+    std::printf("  %s\n", text.substr(start, end == std::string::npos ? std::string::npos : end - start).c_str());
+    if (end == std::string::npos) break;
+    start = end + 1;
+  }
+}
+
+}  // namespace
+
+int run_check(const check_options& o) {
+  if (o.file.empty()) throw std::invalid_argument("FILE is missing: expected the .npy file to check");
+  const npy_array a = read_npy(o.file);
+  if (a.shape.empty()) {
+    throw std::invalid_argument("'" + o.file + "' holds a 0-d array, expected a weight tensor of rank 1 to 5");
+  }
+  if (a.shape.size() > 5) {
+    throw std::invalid_argument("'" + o.file + "' has rank " + std::to_string(a.shape.size()) + ", expected rank 1 to 5");
+  }
+  for (std::uint64_t e : a.shape) {
+    if (e == 0) throw std::invalid_argument("'" + o.file + "' has shape " + shape_text(a.shape) + " with a size 0, expected a non-empty tensor");
+  }
+  weight_layout layout;
+  std::string layout_name;
+  const fans f = resolve_fans(a.shape, o.layout, o.fan_in, o.fan_out, &layout, &layout_name);
+  const weight_info w{f, layout};
+  if (o.identify && (f.fan_in == 0 || f.fan_out == 0)) {
+    throw std::invalid_argument("--identify needs fans, and the rank-1 shape " + shape_text(a.shape) +
+                                " has none: give both --fan-in and --fan-out");
+  }
+  if (!o.expect.scheme.empty()) (void)make_scheme(o.expect);  // bad arguments are bad input, before any work
+
+  const std::vector<double> x = a.values();
+  const strided_view<const double> v(x.data(), shape(a.shape.begin(), a.shape.end()));
+  bool passed = true;
+  json out;
+  out["file"] = o.file;
+  out["shape"] = a.shape;
+  out["dtype"] = npy_type_name(a.type);
+  if (!layout_name.empty()) out["layout"] = layout_name;
+  if (f.fan_in != 0) out["fans"] = {{"fan_in", f.fan_in}, {"fan_out", f.fan_out}, {"receptive_field", f.receptive_field}};
+
+  std::string header = o.file + ": " + npy_type_name(a.type) + " " + shape_text(a.shape);
+  if (!layout_name.empty()) header += ", layout " + layout_name;
+  if (f.fan_in != 0) header += ", fan-in " + std::to_string(f.fan_in) + ", fan-out " + std::to_string(f.fan_out);
+  if (!o.json) std::printf("%s\n", header.c_str());
+
+  if (a.shape.size() >= 2) {
+    symmetry_options so;
+    so.layout = layout;
+    const audit_report sym = check_symmetry(v, so);
+    passed = passed && sym.passed();
+    out["symmetry"] = report_json(sym);
+    if (!o.json) print_report("symmetry", sym);
+  } else if (!o.json) {
+    std::printf("symmetry: not applicable (a rank-1 tensor has no units)\n");
+  }
+  if (!o.expect.scheme.empty()) {
+    const audit_report r = expect_report(a, x, o, a.shape, w);
+    passed = passed && r.passed();
+    out["expect"] = report_json(r);
+    out["expect"]["scheme"] = o.expect.scheme;
+    if (!o.json) print_report(("expect " + o.expect.scheme).c_str(), r);
+  }
+  if (o.identify) {
+    const identification id = identify_scheme(v, w);
+    json candidates = json::array();
+    for (const scheme_candidate& c : id.ranking) {
+      json one = {{"scheme", candidate_scheme(c)}, {"fan", basis_name(c.rule.basis)}, {"description", c.name() + " with " + c.fan},
+                  {"variance_fits", c.variance_fits}, {"ks_statistic", c.ks_statistic}, {"score", c.score}};
+      if (!c.parameter.empty()) one["parameter"] = c.parameter;
+      candidates.push_back(one);
+    }
+    out["candidates"] = candidates;
+    if (!id.structure.empty()) out["structure"] = id.structure;
+    if (!o.json) {
+      if (!id.structure.empty()) {
+        std::printf("identify: %s\n", id.structure.c_str());
+      } else {
+        std::printf("identify (best first: variance consistent, then by Kolmogorov-Smirnov p-value):\n");
+        for (std::size_t i = 0; i < id.ranking.size() && i < 5; ++i) {
+          const scheme_candidate& c = id.ranking[i];
+          std::printf("  %zu. %-30s %-12s %-48s score %s\n", i + 1, candidate_scheme(c).c_str(), basis_name(c.rule.basis),
+                      (c.name() + " with " + c.fan).c_str(), number_text(c.score, 3).c_str());
+        }
+      }
+    }
+  }
+  out["passed"] = passed;
+  if (o.json) std::printf("%s\n", out.dump(2).c_str());
+  return passed ? exit_ok : exit_check_failed;
+}
+
+}  // namespace kindling::tool

@@ -1,0 +1,85 @@
+// examples/tool/draw.cpp: `kindling draw` writes the values a scheme gives a parameter
+// (seed, name, shape, element type) to a .npy file: golden tensors for tests in any
+// language. With --region only that block is computed and written; its values are
+// those it has in the whole tensor (the reproducibility contract, DEVELOPERS.md).
+#include <cstdio>
+#include <stdexcept>
+#include <string>
+#include <vector>
+
+#include <kindling/element.hpp>
+#include <kindling/fill.hpp>
+#include <kindling/io/npy.hpp>
+#include <kindling/random/stream.hpp>
+#include <kindling/schemes/scheme.hpp>
+#include <kindling/view.hpp>
+
+#include "schemes.hpp"
+#include "tool.hpp"
+
+namespace kindling::tool {
+
+namespace {
+
+// Values are computed for the region only; the cap keeps a typo in --shape from
+// asking for more memory than a machine has.
+constexpr std::uint64_t max_elements = std::uint64_t{1} << 32;
+
+template <class E>
+npy_array draw_values(const any_scheme& scheme, const std::vector<std::uint64_t>& global,
+                      const std::vector<std::uint64_t>& offset, const std::vector<std::uint64_t>& extent,
+                      const weight_info& w, const stream& s, std::size_t threads) {
+  std::uint64_t n = 1;
+  for (std::uint64_t e : extent) n *= e;
+  std::vector<E> values(static_cast<std::size_t>(n));
+  const strided_view<E> view(values.data(), shape(global.begin(), global.end()),
+                             region(shape(offset.begin(), offset.end()), shape(extent.begin(), extent.end())));
+  const thread_executor exec(threads);
+  std::visit([&](const auto& sc) { initialize(view, w, sc, s, exec); }, scheme);
+  return make_npy(extent, values);
+}
+
+}  // namespace
+
+int run_draw(const draw_options& o) {
+  const any_scheme scheme = make_scheme(o.scheme);
+  const std::vector<std::uint64_t> global = parse_shape(o.shape);
+  weight_layout layout;
+  std::string layout_name;
+  const fans f = resolve_fans(global, o.layout, o.fan_in, o.fan_out, &layout, &layout_name);
+  if (uses_fans(scheme) && (f.fan_in == 0 || f.fan_out == 0)) {
+    throw std::invalid_argument("scheme '" + o.scheme.scheme + "' needs fans, and the rank-1 shape " +
+                                shape_text(global) + " has none: give both --fan-in and --fan-out");
+  }
+  std::vector<std::uint64_t> offset(global.size(), 0), extent = global;
+  if (!o.region.empty()) parse_region(o.region, global, &offset, &extent);
+  std::uint64_t n = 1;
+  for (std::uint64_t e : extent) {
+    if (e != 0 && n > max_elements / e) n = max_elements + 1;
+    else n *= e;
+  }
+  if (n > max_elements) {
+    throw std::length_error("--shape " + o.shape + (o.region.empty() ? "" : " --region " + o.region) +
+                            " asks for more than 2^32 elements in one file; expected at most 2^32 (use --region)");
+  }
+  if (o.threads == 0) throw std::invalid_argument("--threads 0: expected at least 1 thread");
+  if (o.output.empty()) throw std::invalid_argument("-o is missing: expected the output .npy file");
+  const weight_info w{f, layout};
+  const stream s = make_stream(o.seed, o.name);
+  npy_array out;
+  if (o.dtype == "f32") out = draw_values<float>(scheme, global, offset, extent, w, s, o.threads);
+  else if (o.dtype == "f64") out = draw_values<double>(scheme, global, offset, extent, w, s, o.threads);
+  else if (o.dtype == "f16") out = draw_values<float16>(scheme, global, offset, extent, w, s, o.threads);
+  else if (o.dtype == "bf16") out = draw_values<bfloat16>(scheme, global, offset, extent, w, s, o.threads);
+  else throw std::invalid_argument("--dtype '" + o.dtype + "': expected f32, f64, f16 or bf16");
+  write_npy(o.output, out);
+  std::string fan_text;
+  if (f.fan_in != 0) fan_text = ", fan-in " + std::to_string(f.fan_in) + ", fan-out " + std::to_string(f.fan_out);
+  std::printf("wrote %s: %s %s %s%s%s, seed %llu, name '%s'%s\n", o.output.c_str(), o.scheme.scheme.c_str(),
+              o.dtype.c_str(), shape_text(global).c_str(), layout_name.empty() ? "" : (" " + layout_name).c_str(),
+              o.region.empty() ? "" : (", region " + o.region + " " + shape_text(extent)).c_str(),
+              static_cast<unsigned long long>(o.seed), o.name.c_str(), fan_text.c_str());
+  return exit_ok;
+}
+
+}  // namespace kindling::tool

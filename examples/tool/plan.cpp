@@ -1,0 +1,176 @@
+// examples/tool/plan.cpp: `kindling plan` prints how a layer stack's initialization
+// carries the signal through depth: per layer, the mean-field prediction of the
+// pre-activation variance (forward) and of the variance of the gradient with respect
+// to the pre-activation (backward), and with --measure the same measured on a batch
+// through the stack as drawn. --json for scripts, --svg for a picture.
+#include <atomic>
+#include <cmath>
+#include <cstdio>
+#include <functional>
+#include <mutex>
+#include <stdexcept>
+#include <string>
+#include <vector>
+
+#include <unistd.h>
+
+#include <nlohmann/json.hpp>
+
+#include <kindling/io/npy.hpp>
+#include <kindling/io/spec.hpp>
+#include <kindling/propagate/mean_field.hpp>
+#include <kindling/propagate/measure.hpp>
+
+#include "plot.hpp"
+#include "tool.hpp"
+
+namespace kindling::tool {
+
+namespace {
+
+using json = nlohmann::json;
+
+// The built-in network: a classifier of a pump's state (healthy, cavitation, bearing
+// wear, misalignment) from 64 spectral bands of its accelerometer signal. Its middle
+// tanh layers use Glorot's rule without the tanh gain, so the plan shows the variance
+// fading through them -- what the tool is for.
+const char* const pump_classifier = R"json({
+  "name": "pump vibration classifier (built-in example)",
+  "input": {"width": 64, "variance": 1.0},
+  "layers": [
+    {"width": 256, "activation": "relu", "scheme": "he-normal", "label": "bands"},
+    {"width": 256, "activation": "relu", "scheme": "he-normal", "label": "mix1"},
+    {"width": 128, "activation": "tanh", "scheme": "glorot-uniform", "label": "mix2"},
+    {"width": 128, "activation": "tanh", "scheme": "glorot-uniform", "label": "mix3"},
+    {"width": 128, "activation": "tanh", "scheme": "glorot-uniform", "label": "mix4"},
+    {"width": 128, "activation": "tanh", "scheme": "glorot-uniform", "label": "mix5"},
+    {"width": 64, "activation": "tanh", "scheme": "glorot-normal", "gain": 1.6666666666666667, "label": "summary"},
+    {"width": 4, "activation": "identity", "scheme": "glorot-uniform", "label": "state"}
+  ]
+})json";
+
+// An executor that reports finished tasks on stderr, for a terminal only.
+struct progress_executor {
+  thread_executor inner;
+  bool show;
+  void operator()(std::size_t n, const std::function<void(std::size_t)>& task) const {
+    if (!show) return inner(n, task);
+    std::atomic<std::size_t> done{0};
+    std::mutex print;
+    inner(n, [&](std::size_t k) {
+      task(k);
+      const std::size_t d = ++done;
+      std::lock_guard<std::mutex> lock(print);
+      std::fprintf(stderr, "\rkindling plan: measuring, %zu/%zu batches of %lld samples", d, n,
+                   static_cast<long long>(pass_task_columns));
+      std::fflush(stderr);
+    });
+    std::fprintf(stderr, "\r\033[K");
+    std::fflush(stderr);
+  }
+};
+
+std::string std_text(double variance) { return number_text(std::sqrt(variance), 4); }
+
+}  // namespace
+
+int run_plan(const plan_options& o) {
+  const network_spec spec = o.spec.empty() ? parse_network_spec(pump_classifier, "(built-in)") : read_network_spec(o.spec);
+  if (o.threads == 0) throw std::invalid_argument("--threads 0: expected at least 1 thread");
+  if (o.measure && o.batch < 2) {
+    throw std::invalid_argument("--batch " + std::to_string(o.batch) + ": expected at least 2 samples");
+  }
+  const layer_stack stack = build_stack(spec);
+  const std::vector<layer_prediction> predicted = predict(stack);
+  propagation_report measured;
+  if (o.measure) {
+    const bool tty = isatty(STDERR_FILENO) != 0;
+    if (tty) std::fprintf(stderr, "kindling plan: drawing the weights of %zu layers\r", stack.depth());
+    measured = compare_propagation(stack, o.batch, make_stream(o.seed, "kindling.plan"), measure_options{},
+                                   progress_executor{thread_executor(o.threads), tty});
+  }
+  bool agrees = true;
+  json layers = json::array();
+  json warnings = json::array();
+  std::vector<plot_series> series(4);
+  series[0] = {"forward (pre-activation), predicted", "#1f5fa8", true, {}};
+  series[1] = {"backward (gradient), predicted", "#c8501e", true, {}};
+  series[2] = {"forward, measured", "#1f5fa8", false, {}};
+  series[3] = {"backward, measured", "#c8501e", false, {}};
+  for (std::size_t l = 0; l < stack.depth(); ++l) {
+    const stack_layer& L = stack[l];
+    const layer_prediction& p = predicted[l];
+    json row = {{"index", l + 1},
+                {"label", L.label},
+                {"fan_in", L.fans.fan_in},
+                {"fan_out", L.fans.fan_out},
+                {"scheme", L.scheme},
+                {"activation", L.act.name()},
+                {"weight_std", std::sqrt(L.weight_variance)},
+                {"forward_variance", p.preactivation_variance},
+                {"backward_variance", p.gradient_variance},
+                {"measured_forward_variance", nullptr},
+                {"measured_backward_variance", nullptr}};
+    const double x = static_cast<double>(l + 1);
+    series[0].points.push_back({x, p.preactivation_variance});
+    series[1].points.push_back({x, p.gradient_variance});
+    for (const std::string& w : p.warnings) warnings.push_back("layer " + std::to_string(l + 1) + " (" + L.label + "): " + w);
+    if (o.measure) {
+      const layer_comparison& c = measured.layers[l];
+      row["measured_forward_variance"] = c.preactivation.mean;
+      row["measured_backward_variance"] = c.gradient.mean;
+      row["agrees"] = c.agrees;
+      series[2].points.push_back({x, c.preactivation.mean});
+      series[3].points.push_back({x, c.gradient.mean});
+      if (!c.agrees) {
+        agrees = false;
+        warnings.push_back("layer " + std::to_string(l + 1) + " (" + L.label + "): measured variances " +
+                           number_text(c.preactivation.mean) + " / " + number_text(c.gradient.mean) +
+                           " disagree with the prediction " + number_text(p.preactivation_variance) + " / " +
+                           number_text(p.gradient_variance) + " beyond the sampling band");
+      }
+    }
+    layers.push_back(row);
+  }
+  if (!o.svg.empty()) {
+    if (!o.measure) series.resize(2);
+    const std::string title = spec.name.empty() ? o.spec : spec.name;
+    const std::string subtitle = "mean-field prediction" +
+                                 (o.measure ? std::string(" and a pass of ") + std::to_string(o.batch) +
+                                                  " samples through the drawn weights (seed " + std::to_string(o.seed) + ")"
+                                            : std::string(" (add --measure for measured points)"));
+    write_file_replacing(o.svg, variance_plot_svg(title, subtitle, series, stack.depth()));
+  }
+  if (o.json) {
+    json out = {{"layers", layers}, {"warnings", warnings}};
+    if (!spec.name.empty()) out["name"] = spec.name;
+    if (o.measure) out["batch"] = o.batch;
+    std::printf("%s\n", out.dump(2).c_str());
+  } else {
+    std::printf("%s: input %llu features, E[x^2] = %s\n", spec.name.empty() ? o.spec.c_str() : spec.name.c_str(),
+                static_cast<unsigned long long>(spec.input_width), number_text(spec.input_variance).c_str());
+    std::printf("%-3s %-9s %6s %7s %-10s %-14s %9s %11s %11s", "#", "layer", "fan_in", "fan_out", "activation",
+                "scheme", "weight_sd", "fwd_var", "bwd_var");
+    if (o.measure) std::printf(" %11s %11s  %s", "fwd_meas", "bwd_meas", "agrees");
+    std::printf("\n");
+    for (std::size_t l = 0; l < stack.depth(); ++l) {
+      const stack_layer& L = stack[l];
+      const layer_prediction& p = predicted[l];
+      std::printf("%-3zu %-9s %6llu %7llu %-10s %-14s %9s %11s %11s", l + 1, L.label.c_str(),
+                  static_cast<unsigned long long>(L.fans.fan_in), static_cast<unsigned long long>(L.fans.fan_out),
+                  std::string(L.act.name()).c_str(), L.scheme.c_str(), std_text(L.weight_variance).c_str(),
+                  number_text(p.preactivation_variance).c_str(), number_text(p.gradient_variance).c_str());
+      if (o.measure) {
+        const layer_comparison& c = measured.layers[l];
+        std::printf(" %11s %11s  %s", number_text(c.preactivation.mean).c_str(), number_text(c.gradient.mean).c_str(),
+                    c.agrees ? "yes" : "NO");
+      }
+      std::printf("\n");
+    }
+    for (const auto& w : warnings) std::printf("warning: %s\n", w.get<std::string>().c_str());
+    if (!o.svg.empty()) std::printf("wrote %s\n", o.svg.c_str());
+  }
+  return agrees ? exit_ok : exit_check_failed;
+}
+
+}  // namespace kindling::tool

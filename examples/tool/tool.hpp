@@ -1,0 +1,103 @@
+// examples/tool/tool.hpp: the pieces the commands of the `kindling` tool share. Each
+// command is in its own file (draw.cpp, check.cpp, plan.cpp) so that CLI11 (main.cpp)
+// and nlohmann-json are compiled once each, and the schemes are not compiled three times.
+//
+// Exit status: 0 success, 1 a check failed, 2 bad input. Bad input is reported by
+// throwing an exception derived from std::invalid_argument, std::domain_error or
+// std::length_error; main() prints its message as one line on stderr and exits 2.
+#ifndef KINDLING_TOOL_TOOL_HPP
+#define KINDLING_TOOL_TOOL_HPP
+
+#include <cstdint>
+#include <optional>
+#include <string>
+#include <vector>
+
+#include <kindling/fan.hpp>
+
+namespace kindling::tool {
+
+inline constexpr int exit_ok = 0;
+inline constexpr int exit_check_failed = 1;
+inline constexpr int exit_bad_input = 2;
+
+/// The parameters a scheme takes from the command line (draw and check share them).
+struct scheme_arguments {
+  std::string scheme;                  // the scheme's name, e.g. "he-normal"
+  std::optional<double> gain;          // --gain
+  std::optional<double> stddev;        // --std
+  std::optional<double> value;         // --value (constant)
+  std::optional<std::uint64_t> nonzero;  // --nonzero (sparse)
+};
+
+struct draw_options {
+  scheme_arguments scheme;
+  std::string shape;                   // "512x256"
+  std::string layout;                  // "" = the default of the shape's rank
+  std::optional<std::uint64_t> fan_in, fan_out;
+  std::uint64_t seed = 0;
+  std::string name = "weight";
+  std::string dtype = "f32";
+  std::size_t threads = 1;
+  std::string region;                  // "" = the whole tensor
+  std::string output;
+};
+
+struct check_options {
+  std::string file;
+  scheme_arguments expect;             // expect.scheme empty: no conformance check
+  std::string layout;
+  std::optional<std::uint64_t> fan_in, fan_out;
+  bool identify = false;
+  bool json = false;
+};
+
+struct plan_options {
+  std::string spec;                    // "" = the built-in pump vibration classifier
+  bool measure = false;
+  std::uint64_t batch = 1024;
+  std::uint64_t seed = 0;
+  bool json = false;
+  std::string svg;
+  std::size_t threads = 1;
+};
+
+int run_draw(const draw_options& o);
+int run_check(const check_options& o);
+int run_plan(const plan_options& o);
+
+// ---- shared helpers (common.cpp) -----------------------------------------------------
+
+/// The scheme names `draw` accepts, in the order the help lists them.
+const std::vector<std::string>& scheme_names();
+
+/// "512x256" -> {512, 256}; every size a positive integer.
+std::vector<std::uint64_t> parse_shape(const std::string& text);
+
+/// A layout spelled by its axes: o (output), i (input) and the kernel's spatial axes w,
+/// hw or dhw: oi, io; oiw, oihw, oidhw; wio, hwio, dhwio; owi, ohwi, odhwi; and the
+/// transposed-convolution forms iow, iohw, iodhw, woi, hwoi, dhwoi.
+weight_layout parse_layout(const std::string& text, std::size_t rank);
+
+/// The layout used when --layout is not given: oi for rank 2, oiw/oihw/oidhw for 3 to 5.
+std::string default_layout(std::size_t rank);
+
+/// The fans of a weight of `shape` in `layout` ("" = default), with --fan-in/--fan-out
+/// overriding. A rank-1 shape (a bias) has fans only if both are given.
+fans resolve_fans(const std::vector<std::uint64_t>& shape, const std::string& layout,
+                  const std::optional<std::uint64_t>& fan_in, const std::optional<std::uint64_t>& fan_out,
+                  weight_layout* layout_out, std::string* layout_name_out);
+
+/// "0:128,0:256" -> offsets and extents, checked against the shape.
+void parse_region(const std::string& text, const std::vector<std::uint64_t>& shape,
+                  std::vector<std::uint64_t>* offset, std::vector<std::uint64_t>* extent);
+
+/// "[512, 256]".
+std::string shape_text(const std::vector<std::uint64_t>& shape);
+
+/// A number with `digits` significant digits.
+std::string number_text(double x, int digits = 4);
+
+}  // namespace kindling::tool
+
+#endif  // KINDLING_TOOL_TOOL_HPP

@@ -1,0 +1,278 @@
+// kindling/io/spec.hpp: a layer stack described in JSON, for `kindling plan` and for
+// programs that keep their network's shape in a file.
+//
+//   {"input": {"width": 64, "variance": 1.0},
+//    "layers": [{"width": 256, "activation": "relu", "scheme": "he-normal"},
+//               {"width": 4, "activation": "identity", "scheme": "glorot-uniform",
+//                "gain": 1.0, "bias_variance": 0.0, "label": "logits"}]}
+//
+// Keys of "input": "width" (a positive integer, required), "variance" (E[x^2] of the
+// inputs, a finite number > 0, default 1). Keys of a layer: "width", "activation" and
+// "scheme" (required); "gain", "bias_variance", "slope" (leaky_relu only, default 0.01),
+// "std" (the standard deviation of the "normal" and "uniform" schemes, required by
+// them) and "label" (optional). An optional top-level "name" names the network.
+// Anything else -- an unknown or repeated key, a value of the wrong type, a negative
+// or fractional width, a non-finite number -- is a std::invalid_argument or
+// std::domain_error naming the key's path (e.g. layers[2].width), its value and what
+// was expected.
+//
+// Needs nlohmann-json (Debian nlohmann-json3-dev) and, for the orthogonal scheme's
+// variance, Eigen; the core of kindling needs neither.
+#ifndef KINDLING_IO_SPEC_HPP
+#define KINDLING_IO_SPEC_HPP
+
+#include <cmath>
+#include <cstdint>
+#include <fstream>
+#include <optional>
+#include <set>
+#include <stdexcept>
+#include <string>
+#include <vector>
+
+#include <nlohmann/json.hpp>
+
+#include "../gain.hpp"
+#include "../propagate/measure.hpp"
+#include "../propagate/stack.hpp"
+#include "../schemes/fixed.hpp"
+#include "../schemes/orthogonal.hpp"
+#include "../schemes/variance_scaling.hpp"
+
+namespace kindling {
+
+/// One dense layer of a network spec, as written.
+struct layer_spec {
+  std::uint64_t width = 0;
+  std::string activation;          // identity, sigmoid, tanh, relu, leaky_relu, elu, selu, gelu, silu
+  double slope = 0.01;             // leaky_relu's negative slope
+  std::string scheme;              // glorot-uniform, ..., orthogonal, uniform, normal
+  std::optional<double> gain;      // the scheme's gain (see spec_scheme_names)
+  std::optional<double> stddev;    // "std" of the normal and uniform schemes
+  double bias_variance = 0;
+  std::string label;
+};
+
+/// A network spec: the input and the dense layers on top of it.
+struct network_spec {
+  std::string name;
+  std::uint64_t input_width = 0;
+  double input_variance = 1;
+  std::vector<layer_spec> layers;
+};
+
+/// The scheme names a spec may use (those whose weight variance the analysis knows).
+inline const std::vector<std::string>& spec_scheme_names() {
+  static const std::vector<std::string> names{"glorot-uniform", "glorot-normal", "he-uniform", "he-normal",
+                                              "lecun-uniform",  "lecun-normal",  "orthogonal", "uniform",
+                                              "normal"};
+  return names;
+}
+
+/// The activation names a spec may use.
+inline const std::vector<std::string>& spec_activation_names() {
+  static const std::vector<std::string> names{"identity", "sigmoid", "tanh", "relu", "leaky_relu",
+                                              "elu",      "selu",    "gelu", "silu"};
+  return names;
+}
+
+namespace detail {
+
+inline std::string spec_join(const std::vector<std::string>& names) {
+  std::string s;
+  for (const std::string& n : names) s += (s.empty() ? "" : ", ") + n;
+  return s;
+}
+
+[[noreturn]] inline void spec_fail(const std::string& source, const std::string& path, const std::string& value,
+                                   const std::string& expected) {
+  throw std::invalid_argument("kindling network spec " + source + ": '" + path + "' = " + value + ", expected " +
+                              expected);
+}
+
+inline std::string spec_value_text(const nlohmann::json& v) {
+  std::string s = v.dump();
+  if (s.size() > 60) s = s.substr(0, 57) + "...";
+  return s;
+}
+
+inline void spec_keys(const nlohmann::json& obj, const std::string& source, const std::string& path,
+                      const std::vector<std::string>& allowed) {
+  if (!obj.is_object()) spec_fail(source, path, spec_value_text(obj), "an object");
+  for (auto it = obj.begin(); it != obj.end(); ++it) {
+    bool ok = false;
+    for (const std::string& a : allowed) ok = ok || a == it.key();
+    if (!ok) {
+      throw std::invalid_argument("kindling network spec " + source + ": unknown key '" + path + "." + it.key() +
+                                  "', expected one of " + spec_join(allowed));
+    }
+  }
+}
+
+inline const nlohmann::json& spec_required(const nlohmann::json& obj, const std::string& source,
+                                           const std::string& path, const char* key) {
+  const auto it = obj.find(key);
+  if (it == obj.end()) {
+    throw std::invalid_argument("kindling network spec " + source + ": '" + path + "' has no key '" + key + "'");
+  }
+  return *it;
+}
+
+inline std::uint64_t spec_width(const nlohmann::json& v, const std::string& source, const std::string& path) {
+  if (!v.is_number_integer() || (v.is_number_unsigned() ? v.get<std::uint64_t>() == 0 : v.get<std::int64_t>() <= 0)) {
+    spec_fail(source, path, spec_value_text(v), "a positive integer");
+  }
+  return v.get<std::uint64_t>();
+}
+
+inline double spec_number(const nlohmann::json& v, const std::string& source, const std::string& path,
+                          bool positive, bool non_negative) {
+  if (!v.is_number()) spec_fail(source, path, spec_value_text(v), "a number");
+  const double x = v.get<double>();
+  if (!std::isfinite(x) || (positive && !(x > 0)) || (non_negative && !(x >= 0))) {
+    throw std::domain_error("kindling network spec " + source + ": '" + path + "' = " + spec_value_text(v) +
+                            ", expected a finite number" + (positive ? " > 0" : non_negative ? " >= 0" : ""));
+  }
+  return x;
+}
+
+inline std::string spec_name(const nlohmann::json& v, const std::string& source, const std::string& path,
+                             const std::vector<std::string>& allowed) {
+  if (!v.is_string()) spec_fail(source, path, spec_value_text(v), "a string");
+  const std::string s = v.get<std::string>();
+  if (allowed.empty()) return s;
+  for (const std::string& a : allowed) {
+    if (a == s) return s;
+  }
+  spec_fail(source, path, spec_value_text(v), "one of " + spec_join(allowed));
+}
+
+}  // namespace detail
+
+/// Parses the JSON text of a network spec; `source` names it in messages.
+inline network_spec parse_network_spec(const std::string& text, const std::string& source = "(text)") {
+  using namespace detail;
+  // nlohmann keeps the last of repeated keys; a spec with a repeated key is refused.
+  std::vector<std::set<std::string>> open;
+  std::string repeated;
+  const nlohmann::json::parser_callback_t note = [&](int, nlohmann::json::parse_event_t e, nlohmann::json& parsed) {
+    if (e == nlohmann::json::parse_event_t::object_start) open.emplace_back();
+    if (e == nlohmann::json::parse_event_t::object_end && !open.empty()) open.pop_back();
+    if (e == nlohmann::json::parse_event_t::key && !open.empty() && !open.back().insert(parsed.get<std::string>()).second &&
+        repeated.empty()) {
+      repeated = parsed.get<std::string>();
+    }
+    return true;
+  };
+  nlohmann::json doc;
+  try {
+    doc = nlohmann::json::parse(text, note);
+  } catch (const nlohmann::json::parse_error& e) {
+    throw std::invalid_argument("kindling network spec " + source + ": not valid JSON (byte " +
+                                std::to_string(e.byte) + "), expected a JSON object as in kindling/io/spec.hpp");
+  }
+  if (!repeated.empty()) {
+    throw std::invalid_argument("kindling network spec " + source + ": key '" + repeated +
+                                "' appears twice in one object, expected each key once");
+  }
+  network_spec spec;
+  spec_keys(doc, source, "(top)", {"name", "input", "layers"});
+  if (doc.contains("name")) spec.name = spec_name(doc["name"], source, "name", {});
+  const nlohmann::json& input = spec_required(doc, source, "(top)", "input");
+  spec_keys(input, source, "input", {"width", "variance"});
+  spec.input_width = spec_width(spec_required(input, source, "input", "width"), source, "input.width");
+  if (input.contains("variance")) spec.input_variance = spec_number(input["variance"], source, "input.variance", true, false);
+  const nlohmann::json& layers = spec_required(doc, source, "(top)", "layers");
+  if (!layers.is_array() || layers.empty()) spec_fail(source, "layers", spec_value_text(layers), "a non-empty array of layers");
+  for (std::size_t i = 0; i < layers.size(); ++i) {
+    const std::string path = "layers[" + std::to_string(i) + "]";
+    const nlohmann::json& l = layers[i];
+    spec_keys(l, source, path, {"width", "activation", "scheme", "gain", "bias_variance", "slope", "std", "label"});
+    layer_spec s;
+    s.width = spec_width(spec_required(l, source, path, "width"), source, path + ".width");
+    s.activation = spec_name(spec_required(l, source, path, "activation"), source, path + ".activation",
+                             spec_activation_names());
+    s.scheme = spec_name(spec_required(l, source, path, "scheme"), source, path + ".scheme", spec_scheme_names());
+    if (l.contains("gain")) s.gain = spec_number(l["gain"], source, path + ".gain", true, false);
+    if (l.contains("bias_variance")) s.bias_variance = spec_number(l["bias_variance"], source, path + ".bias_variance", false, true);
+    if (l.contains("slope")) {
+      if (s.activation != "leaky_relu") {
+        spec_fail(source, path + ".slope", spec_value_text(l["slope"]), "no 'slope' unless the activation is leaky_relu");
+      }
+      s.slope = spec_number(l["slope"], source, path + ".slope", false, true);
+    }
+    const bool fixed = s.scheme == "normal" || s.scheme == "uniform";
+    if (l.contains("std")) {
+      if (!fixed) spec_fail(source, path + ".std", spec_value_text(l["std"]), "no 'std' unless the scheme is normal or uniform");
+      s.stddev = spec_number(l["std"], source, path + ".std", true, false);
+    } else if (fixed) {
+      throw std::invalid_argument("kindling network spec " + source + ": '" + path + "' has scheme '" + s.scheme +
+                                  "' but no key 'std', expected its standard deviation");
+    }
+    if (s.gain && fixed) {
+      spec_fail(source, path + ".gain", spec_value_text(l["gain"]), "no 'gain' with scheme '" + s.scheme + "' (give 'std')");
+    }
+    if (l.contains("label")) s.label = spec_name(l["label"], source, path + ".label", {});
+    spec.layers.push_back(s);
+  }
+  return spec;
+}
+
+/// Reads a network spec from a file.
+inline network_spec read_network_spec(const std::string& path) {
+  std::ifstream in(path, std::ios::binary);
+  if (!in) throw std::invalid_argument("kindling network spec: argument 'path' = '" + path + "' cannot be opened for reading");
+  const std::string text((std::istreambuf_iterator<char>(in)), std::istreambuf_iterator<char>());
+  return parse_network_spec(text, "'" + path + "'");
+}
+
+/// The activation a layer spec names.
+inline activation spec_activation(const layer_spec& l) {
+  const std::string& a = l.activation;
+  if (a == "identity") return activation::identity();
+  if (a == "sigmoid") return activation::sigmoid();
+  if (a == "tanh") return activation::tanh();
+  if (a == "relu") return activation::relu();
+  if (a == "leaky_relu") return activation::leaky_relu(l.slope);
+  if (a == "elu") return activation::elu();
+  if (a == "selu") return activation::selu();
+  if (a == "gelu") return activation::gelu();
+  if (a == "silu") return activation::silu();
+  throw std::invalid_argument("kindling::spec_activation: argument 'activation' = '" + a + "', expected one of " +
+                              detail::spec_join(spec_activation_names()));
+}
+
+/// The layer stack a spec describes. A gain on a He or LeCun scheme scales its standard
+/// deviation: Var W = gain^2 / fan (the fan of the scheme), drawn as that scheme draws;
+/// He schemes under leaky_relu use its slope (He et al. 2015, eq. 14).
+inline layer_stack build_stack(const network_spec& spec) {
+  layer_stack stack(spec.input_width, spec.input_variance);
+  for (const layer_spec& l : spec.layers) {
+    const activation act = spec_activation(l);
+    const double slope = l.activation == "leaky_relu" ? l.slope : 0.0;
+    const auto add = [&](const auto& scheme) { stack.add_dense(l.width, act, scheme, l.bias_variance, l.label); };
+    const auto scaled = [&](fan_scaled rule) {
+      rule.scale = *l.gain * *l.gain;
+      add(rule);
+    };
+    const std::string& s = l.scheme;
+    if (s == "glorot-uniform") add(glorot_uniform{l.gain.value_or(1.0)});
+    else if (s == "glorot-normal") add(glorot_normal{l.gain.value_or(1.0)});
+    else if (s == "he-uniform") l.gain ? scaled(he_uniform{slope}.rule()) : add(he_uniform{slope});
+    else if (s == "he-normal") l.gain ? scaled(he_normal{slope}.rule()) : add(he_normal{slope});
+    else if (s == "lecun-uniform") l.gain ? scaled(lecun_uniform{}.rule()) : add(lecun_uniform{});
+    else if (s == "lecun-normal") l.gain ? scaled(lecun_normal{}.rule()) : add(lecun_normal{});
+    else if (s == "orthogonal") add(orthogonal{l.gain.value_or(1.0)});
+    else if (s == "normal") add(fixed_normal{0.0, *l.stddev});
+    else if (s == "uniform") add(fixed_uniform{-std::sqrt(3.0) * *l.stddev, std::sqrt(3.0) * *l.stddev});
+    else {
+      throw std::invalid_argument("kindling::build_stack: argument 'scheme' = '" + s + "', expected one of " +
+                                  detail::spec_join(spec_scheme_names()));
+    }
+  }
+  return stack;
+}
+
+}  // namespace kindling
+
+#endif  // KINDLING_IO_SPEC_HPP

@@ -1,0 +1,23 @@
+# The `kindling` tool run from outside (tests/tool/check_tool.py, with Debian's
+# /usr/bin/python3 and python3-numpy): exit codes and one-line errors, an existing
+# output file untouched by a failed run, --region against the whole tensor, NumPy
+# reading our .npy files (and we NumPy's), and the JSON and SVG outputs.
+# The doctest binary (npy.cpp, spec.cpp) needs nlohmann-json for spec.hpp.
+if(TARGET kindling_test_tool)
+  find_package(nlohmann_json CONFIG REQUIRED)
+  target_link_libraries(kindling_test_tool PRIVATE nlohmann_json::nlohmann_json)
+endif()
+if(KINDLING_BUILD_EXAMPLES)
+  foreach(_kindling_tool_case
+          "exit-codes;exit codes 0, 1 and 2 with one-line errors for every command"
+          "untouched;an existing output file is never replaced by a failed run"
+          "region;--region writes exactly that block of the whole tensor, whatever the threads"
+          "numpy;numpy.load reads every element type and the values match, and numpy's files read back"
+          "json;check --identify --json ranks candidates best first, plan --json and --svg")
+    list(GET _kindling_tool_case 0 _case)
+    list(GET _kindling_tool_case 1 _what)
+    add_test(NAME "tool: ${_what}"
+             COMMAND /usr/bin/python3 ${CMAKE_CURRENT_SOURCE_DIR}/tool/check_tool.py
+                     $<TARGET_FILE:kindling_tool> ${_case} ${CMAKE_CURRENT_BINARY_DIR}/tool_${_case})
+  endforeach()
+endif()
