@@ -34,7 +34,7 @@ std::string variance_plot_svg(const std::string& title, const std::string& subti
                               const std::vector<plot_series>& series, std::size_t depth) {
   // The legend sits right of the plot, so it never hides a point.
   const double width = 980, height = 480;
-  const double left = 84, right = 300, top = 66, bottom = 64;
+  const double left = 84, right = 316, top = 66, bottom = 64;
   const double pw = width - left - right, ph = height - top - bottom;
   // The variance axis spans whole decades around every positive value.
   double lo = std::numeric_limits<double>::infinity(), hi = 0;
@@ -113,7 +113,7 @@ std::string variance_plot_svg(const std::string& title, const std::string& subti
     }
   }
   // legend, right of the plot
-  const double lw = 270, lh = 10 + 20 * static_cast<double>(series.size());
+  const double lw = 290, lh = 10 + 20 * static_cast<double>(series.size());
   const double lx = left + pw + 16, ly = top;
   o += "<rect x=\"" + fmt(lx) + "\" y=\"" + fmt(ly) + "\" width=\"" + fmt(lw) + "\" height=\"" + fmt(lh) +
        "\" fill=\"white\" fill-opacity=\"0.9\" stroke=\"#999999\"/>\n";
