@@ -8,10 +8,14 @@ src=$(cd "$here/../.." && pwd)
 work=${1:-$(mktemp -d)}
 rm -rf "$work"; mkdir -p "$work"
 
+# The library and the command-line tool, installed (only the tool among the examples
+# has an install rule, so building just that target is enough).
 cmake -S "$src" -B "$work/lib" -DCMAKE_BUILD_TYPE=Release \
-  -DKINDLING_BUILD_TESTS=OFF -DKINDLING_BUILD_EXAMPLES=OFF -DKINDLING_BUILD_BENCHMARKS=OFF \
+  -DKINDLING_BUILD_TESTS=OFF -DKINDLING_BUILD_EXAMPLES=ON -DKINDLING_BUILD_BENCHMARKS=OFF \
   -DCMAKE_INSTALL_PREFIX="$work/prefix" >/dev/null
+cmake --build "$work/lib" -j2 --target kindling_tool >/dev/null
 cmake --install "$work/lib" >/dev/null
+test -x "$work/prefix/bin/kindling"
 test -f "$work/prefix/share/pkgconfig/kindling.pc"
 test -f "$work/prefix/share/cmake/kindling/kindlingConfigVersion.cmake"
 
@@ -34,4 +38,8 @@ cmake --build "$work/sub" -j2 >/dev/null
 if find "$work/sub" -name 'kindling_test_*' -o -name 'kindling_demo' -o -name 'kindling_bench*' | grep -q .; then
   echo "add_subdirectory built kindling's own targets" >&2; exit 1
 fi
+# The installed tool: draw a tensor, check it, plan the built-in network.
+"$work/prefix/bin/kindling" draw --scheme glorot-uniform --shape 64x32 --seed 3 --name pkg.w -o "$work/pkg.npy"
+"$work/prefix/bin/kindling" check "$work/pkg.npy" --expect glorot-uniform
+"$work/prefix/bin/kindling" plan >/dev/null
 echo "packaging tests passed"

@@ -89,7 +89,10 @@ TEST_CASE("random schemes break the symmetry between units; names give independe
   const dense layer(64, 48);
   const auto rows_distinct = [](const std::vector<double>& w, std::size_t rows, std::size_t cols) {
     std::set<std::vector<double>> seen;
-    for (std::size_t r = 0; r < rows; ++r) seen.insert(std::vector<double>(w.begin() + r * cols, w.begin() + (r + 1) * cols));
+    for (std::size_t r = 0; r < rows; ++r) {
+      const auto at = w.begin() + static_cast<std::ptrdiff_t>(r * cols);
+      seen.insert(std::vector<double>(at, at + static_cast<std::ptrdiff_t>(cols)));
+    }
     return seen.size() == rows;
   };
   std::vector<double> a(48 * 64), b(48 * 64), c(48 * 64);

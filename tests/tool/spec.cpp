@@ -108,3 +108,11 @@ TEST_CASE("a spec with a mistake is refused with the key's path, its value and w
                          std::invalid_argument);
   }
 }
+
+TEST_CASE("a number beyond double's range is bad input, not an escaping parser error (fuzz finding)") {
+  // tests/fuzz/regressions/spec/number_overflow_406.json: nlohmann's out_of_range 406
+  // escaped parse_network_spec before the fix.
+  const std::string text =
+      R"({"input": {"width": 3}, "layers": [{"width": 1e400, "activation": "relu", "scheme": "he-normal"}]})";
+  CHECK_THROWS_AS(kindling::parse_network_spec(text), std::invalid_argument);
+}

@@ -170,6 +170,11 @@ inline network_spec parse_network_spec(const std::string& text, const std::strin
   } catch (const nlohmann::json::parse_error& e) {
     throw std::invalid_argument("kindling network spec " + source + ": not valid JSON (byte " +
                                 std::to_string(e.byte) + "), expected a JSON object as in kindling/io/spec.hpp");
+  } catch (const nlohmann::json::exception& e) {
+    // Anything else the parser rejects (a number beyond double's range, found by the
+    // fuzzer: tests/fuzz/regressions/spec/number_overflow_406.json) is bad input too.
+    throw std::invalid_argument("kindling network spec " + source + ": not a JSON document we can read (" +
+                                std::string(e.what()) + "), expected a JSON object as in kindling/io/spec.hpp");
   }
   if (!repeated.empty()) {
     throw std::invalid_argument("kindling network spec " + source + ": key '" + repeated +
