@@ -16,6 +16,7 @@
 #pragma once
 
 #include <cmath>
+#include <cstdio>
 #include <cstddef>
 #include <limits>
 #include <stdexcept>
@@ -153,14 +154,21 @@ inline void check_options(const propagation_options& o, const char* where) {
   }
 }
 
+// A ratio for a sentence: three significant digits are all a reader needs.
+inline std::string ratio_text(double x) {
+  char buffer[32];
+  std::snprintf(buffer, sizeof buffer, "%.3g", x);
+  return buffer;
+}
+
 inline void add_ratio_warnings(std::vector<layer_prediction>& rows, double factor) {
   for (layer_prediction& r : rows) {
     const auto warn = [&](double ratio, const char* what) {
       if (ratio > factor) {
-        r.warnings.push_back(std::string(what) + " grew by " + argument_text(ratio) +
+        r.warnings.push_back(std::string(what) + " grew by a factor of " + ratio_text(ratio) +
                              " since the first layer (limit " + argument_text(factor) + ")");
       } else if (ratio < 1.0 / factor) {
-        r.warnings.push_back(std::string(what) + " shrank by " + argument_text(1.0 / ratio) +
+        r.warnings.push_back(std::string(what) + " shrank by a factor of " + ratio_text(1.0 / ratio) +
                              " since the first layer (limit " + argument_text(factor) + ")");
       }
     };
