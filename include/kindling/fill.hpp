@@ -257,6 +257,35 @@ void store_contiguous(const element_rounder<E>& rounder, instruction_set isa,
   for (; k < n; ++k) dst[k] = rounder(src[k]);
 }
 
+// Whether a generator also writes whole counter groups straight to memory as elements
+// of type E: gen.elements(isa, g0, count, dst, hi_max, lo_min, stream) -> bool (false:
+// it has no such path on isa, nothing written), with the rounder's thresholds.
+template <class Gen, class E, class = void>
+struct writes_elements : std::false_type {};
+template <class Gen, class E>
+struct writes_elements<
+    Gen, E,
+    std::void_t<decltype(std::declval<const Gen&>().elements(
+        instruction_set::scalar, std::uint64_t{}, std::uint64_t{}, std::declval<E*>(),
+        compute_type_t<E>{}, compute_type_t<E>{}, false))>> : std::true_type {};
+
+// The generator fill() uses: the runs of a prepared distribution, and for float
+// elements the direct writer of whole groups.
+template <class Kernel, class C>
+struct distribution_runs {
+  const Kernel& kernel;
+  const stream& s;
+  std::uint32_t dom;
+  void operator()(std::uint64_t first, std::size_t n, C* out) const {
+    generate_run(kernel, s, dom, first, n, out);
+  }
+  template <class T, class = std::enable_if_t<std::is_same<T, float>::value && std::is_same<C, float>::value>>
+  bool elements(instruction_set isa, std::uint64_t g0, std::uint64_t count, T* dst, float hi_max,
+                float lo_min, bool streaming) const noexcept {
+    return vector_elements(isa, kernel, s, dom, g0, count, dst, hi_max, lo_min, streaming);
+  }
+};
+
 // Fills local row-major indices [first_local, first_local + count) of the view's region.
 // gen(global_first, n, out) writes the compute-type values of global indices
 // global_first .. global_first + n - 1 (n <= fill_buffer_elements).
@@ -311,6 +340,31 @@ void fill_chunk(const strided_view<E>& v, const element_rounder<E>& rounder, boo
     std::uint64_t global_index = 0;
     for (std::size_t d = 0; d < rank; ++d) global_index += (offset[d] + index[d]) * global_step[d];
     std::uint64_t n = std::min(remaining, run_length - local % run_length);
+    if constexpr (writes_elements<Gen, E>::value) {
+      // The whole counter groups of a contiguous stretch go straight to memory, rounded on
+      // the way (no buffer); the partial groups at its ends take the buffered path below.
+      constexpr std::uint64_t group = elements_per_group<compute>;
+      const std::uint64_t in_row = inner_contiguous ? std::min(n, extent[inner] - index[inner]) : 0;
+      const std::uint64_t head = (group - global_index % group) % group;
+      if (rounder.thresholds && in_row >= head + group) {
+        const std::uint64_t whole = (in_row - head) / group;
+        if (gen.elements(isa, (global_index + head) / group, whole, data + at + head, rounder.hi_max,
+                         rounder.lo_min, stream)) {
+          streamed = streamed || stream;
+          if (head > 0) {
+            gen(global_index, static_cast<std::size_t>(head), buffer.data());
+            store_contiguous(rounder, isa, buffer.data(), data + at, static_cast<std::size_t>(head), false);
+          }
+          const std::uint64_t done = head + whole * group;
+          index[inner] += done - 1;
+          at += static_cast<std::ptrdiff_t>(done - 1);
+          step();
+          local += done;
+          remaining -= done;
+          continue;
+        }
+      }
+    }
     n = std::min<std::uint64_t>(n, fill_buffer_elements - global_index % fill_buffer_elements);
     gen(global_index, static_cast<std::size_t>(n), buffer.data());
     if (inner_contiguous && index[inner] + n <= extent[inner]) {
@@ -371,9 +425,7 @@ void fill(const strided_view<E>& v, const D& d, const stream& s, std::uint32_t d
   validate(d);
   using compute = compute_type_t<E>;
   const auto kernel = detail::prepare<compute>(d);
-  const auto gen = [&kernel, &s, dom](std::uint64_t first, std::size_t n, compute* out) {
-    detail::generate_run(kernel, s, dom, first, n, out);
-  };
+  const detail::distribution_runs<decltype(kernel), compute> gen{kernel, s, dom};
   fill_generated(v, bounds_of(d), gen, std::forward<Exec>(exec));
 }
 

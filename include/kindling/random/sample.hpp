@@ -285,36 +285,67 @@ truncated_normal_kernel<C> prepare(const dist::truncated_normal& d) {
           static_cast<C>(c.mass)};
 }
 
-// Whole groups of a float kernel on a vector path (random/detail/lanes.hpp); false when
+// The parameters of a float kernel as the vector paths (random/detail/lanes.hpp) take them.
+inline uniform_f32_params lane_params(const uniform_kernel<float>& k) noexcept {
+  return {k.lo, k.width, k.hi, next_below(k.hi)};
+}
+inline symmetric_f32_params lane_params(const symmetric_uniform_kernel<float>& k) noexcept {
+  return {k.bound};
+}
+inline normal_f32_params lane_params(const normal_kernel<float>& k) noexcept {
+  return {k.mean, k.stddev};
+}
+inline truncated_f32_params lane_params(const truncated_normal_kernel<float>& k) noexcept {
+  return {k.mean, k.stddev, k.cut_lo, k.cut_hi, k.lower, k.upper, k.mass};
+}
+
+inline normal_f64_params lane_params_f64(const normal_kernel<double>& k) noexcept {
+  return {k.mean, k.stddev};
+}
+
+// Whether a kernel has vector paths: a float kernel that lane_params takes, a double
+// one that lane_params_f64 takes.
+template <class Kernel, class = void>
+struct has_lane_params : std::false_type {};
+template <class Kernel>
+struct has_lane_params<Kernel, std::void_t<decltype(lane_params(std::declval<const Kernel&>()))>>
+    : std::true_type {};
+template <class Kernel, class = void>
+struct has_lane_params_f64 : std::false_type {};
+template <class Kernel>
+struct has_lane_params_f64<Kernel, std::void_t<decltype(lane_params_f64(std::declval<const Kernel&>()))>>
+    : std::true_type {};
+
+// Whole groups of a kernel on a vector path (random/detail/lanes.hpp); false when
 // the path or the compute type has none, and the caller takes the scalar walk.
-inline bool vector_groups(instruction_set isa, const uniform_kernel<float>& k,
-                          const philox4x32_key& key, std::uint32_t domain, std::uint64_t g0,
-                          std::uint64_t count, float* out) noexcept {
-  return groups_f32(isa, uniform_f32_params{k.lo, k.width, k.hi, next_below(k.hi)}, key, domain,
-                    g0, count, out);
-}
-inline bool vector_groups(instruction_set isa, const symmetric_uniform_kernel<float>& k,
-                          const philox4x32_key& key, std::uint32_t domain, std::uint64_t g0,
-                          std::uint64_t count, float* out) noexcept {
-  return groups_f32(isa, symmetric_f32_params{k.bound}, key, domain, g0, count, out);
-}
-inline bool vector_groups(instruction_set isa, const normal_kernel<float>& k,
-                          const philox4x32_key& key, std::uint32_t domain, std::uint64_t g0,
-                          std::uint64_t count, float* out) noexcept {
-  return groups_f32(isa, normal_f32_params{k.mean, k.stddev}, key, domain, g0, count, out);
-}
-inline bool vector_groups(instruction_set isa, const truncated_normal_kernel<float>& k,
-                          const philox4x32_key& key, std::uint32_t domain, std::uint64_t g0,
-                          std::uint64_t count, float* out) noexcept {
-  return groups_f32(isa,
-                    truncated_f32_params{k.mean, k.stddev, k.cut_lo, k.cut_hi, k.lower, k.upper,
-                                         k.mass},
-                    key, domain, g0, count, out);
-}
 template <class C, class Kernel>
-bool vector_groups(instruction_set, const Kernel&, const philox4x32_key&, std::uint32_t,
-                   std::uint64_t, std::uint64_t, C*) noexcept {
-  return false;
+bool vector_groups(instruction_set isa, const Kernel& k, const philox4x32_key& key,
+                   std::uint32_t domain, std::uint64_t g0, std::uint64_t count, C* out) noexcept {
+  if constexpr (std::is_same<C, float>::value && has_lane_params<Kernel>::value) {
+    return groups_f32(isa, lane_params(k), key, domain, g0, count, out);
+  } else if constexpr (std::is_same<C, double>::value && has_lane_params_f64<Kernel>::value) {
+    return groups_f64(isa, lane_params_f64(k), key, domain, g0, count, out);
+  } else {
+    (void)isa, (void)k, (void)key, (void)domain, (void)g0, (void)count, (void)out;
+    return false;
+  }
+}
+
+// Whole groups g0 .. g0 + count - 1 of a float kernel written as float elements to dst,
+// moved inside [lo_min, hi_max] (the thresholds of fill's rounder), without a buffer;
+// false when the path has no such writer (nothing is written then).
+template <class Kernel>
+bool vector_elements(instruction_set isa, const Kernel& k, const stream& s, std::uint32_t domain,
+                     std::uint64_t g0, std::uint64_t count, float* dst, float hi_max,
+                     float lo_min, bool streaming) noexcept {
+  if constexpr (has_lane_params<Kernel>::value) {
+    return groups_f32_elements(isa, lane_params(k), s.philox_key(), domain, g0, count, dst,
+                               hi_max, lo_min, streaming);
+  } else {
+    (void)isa, (void)k, (void)s, (void)domain, (void)g0, (void)count, (void)dst, (void)hi_max,
+        (void)lo_min, (void)streaming;
+    return false;
+  }
 }
 
 // The element -> (block, slot) walk shared by every distribution, on instruction set

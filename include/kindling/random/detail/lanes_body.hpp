@@ -40,30 +40,44 @@ inline void philox_units(const philox4x32_key& key, std::uint32_t domain, std::u
   }
 }
 
-// Runs a transform t over `count` whole groups from g0: t(w, at) gets the four word
-// vectors of one unit and writes its values at at[16 j] (j = slot), where `at` is the
-// unit's first element in the output (group offset + lane).
-template <class T>
-inline void drive_groups(const T& t, const philox4x32_key& key, std::uint32_t domain,
-                         std::uint64_t g0, std::uint64_t count, float* out) noexcept {
+// Runs a transform t over `count` whole groups from g0: t(w, v) turns the four word
+// vectors of one unit into its four value vectors (v[j] for slot j), and
+// sink(unit, v) stores them; unit k covers blocks 16 g0 + k lanes .. + lanes - 1.
+template <class T, class Sink>
+inline void drive_units(const T& t, const philox4x32_key& key, std::uint32_t domain,
+                        std::uint64_t g0, std::uint64_t count, Sink& sink) noexcept {
   constexpr unsigned batch = 4;
   const std::uint64_t units = count * (16 / lanes);
   const std::uint64_t b0 = 16 * g0;
   std::uint64_t u = 0;
-  const auto at = [out](std::uint64_t unit) {
-    const std::uint64_t first_lane = unit * lanes;  // block offset from b0
-    return out + (first_lane / 16) * 64 + first_lane % 16;
-  };
   for (; u + batch <= units; u += batch) {
     vu x[batch][4];
     philox_units<batch>(key, domain, b0 + u * lanes, x);
-    for (unsigned k = 0; k < batch; ++k) t(x[k], at(u + k));
+    for (unsigned k = 0; k < batch; ++k) {
+      vf v[4];
+      t(x[k], v);
+      sink(u + k, v);
+    }
   }
   for (; u < units; ++u) {
     vu x[1][4];
     philox_units<1>(key, domain, b0 + u * lanes, x);
-    t(x[0], at(u));
+    vf v[4];
+    t(x[0], v);
+    sink(u, v);
   }
+}
+
+// drive_units with the values stored at out[64 k + r] for group g0 + k (r = 16 slot + lane).
+template <class T>
+inline void drive_groups(const T& t, const philox4x32_key& key, std::uint32_t domain,
+                         std::uint64_t g0, std::uint64_t count, float* out) noexcept {
+  auto sink = [out](std::uint64_t unit, const vf (&v)[4]) {
+    const std::uint64_t first_lane = unit * lanes;  // block offset from 16 g0
+    float* const at = out + (first_lane / 16) * 64 + first_lane % 16;
+    for (unsigned j = 0; j < 4; ++j) f_store(at + 16 * j, v[j]);
+  };
+  drive_units(t, key, domain, g0, count, sink);
 }
 
 // group_words_scalar.
@@ -89,44 +103,53 @@ inline vf horner_lanes(vf x, const float (&c)[N]) noexcept {
   return p;
 }
 
-// dmath.hpp log<float>, for finite x > 0 (subnormals included).
+// dmath.hpp log<float>, for finite x > 0 (subnormals included unless `normal_only`,
+// which leaves their dead branch out for callers whose x >= 2^-126).
+//
+// The split x = 2^k m is done in one integer add: adding 0x3f800000 - 0x3f3504f3 to the
+// bits carries into the exponent exactly when the fraction is >= sqrt2_fraction
+// (0x3504f3), the case where dmath.hpp takes m in [sqrt(2)/2, 1) and k + 1; adding
+// 0x3f3504f3 back to the low 23 bits then gives m's bits with exponent 126 or 127 as
+// there. Same k and m, so the same bits.
+template <bool normal_only = false>
 inline vf log_lanes(vf x) noexcept {
   using K = kernel_constants<float>;
+  static_assert(K::sqrt2_fraction == 0x3504f3u, "the split below assumes this threshold");
   vu b = u_bits(x);
-  const vm subnormal = u_eq(u_srl<23>(b), u_set1(0u));
-  b = u_select(subnormal, u_bits(f_mul(x, f_set1(static_cast<float>(1u << 25)))), b);
-  vu k = u_select(subnormal, u_set1(static_cast<std::uint32_t>(-25)), u_set1(0u));
-  k = u_add(k, u_sub(u_srl<23>(b), u_set1(127u)));
-  const vu fraction = u_and(b, u_set1(0x7fffffu));
-  const vm low = u_ge(fraction, u_set1(K::sqrt2_fraction));
-  const vu expo = u_select(low, u_set1(126u), u_set1(127u));
-  k = u_select(low, u_add(k, u_set1(1u)), k);
-  const vf m = f_from_bits(u_or(u_sll<23>(expo), fraction));
+  vu k = u_set1(0u);
+  if constexpr (!normal_only) {
+    const vm subnormal = u_eq(u_srl<23>(b), u_set1(0u));
+    b = u_select(subnormal, u_bits(f_mul(x, f_set1(static_cast<float>(1u << 25)))), b);
+    k = u_select(subnormal, u_set1(static_cast<std::uint32_t>(-25)), k);
+  }
+  const vu shifted = u_add(b, u_set1(0x3f800000u - 0x3f3504f3u));
+  k = u_add(k, u_sub(u_srl<23>(shifted), u_set1(127u)));
+  const vf m = f_from_bits(u_add(u_and(shifted, u_set1(0x7fffffu)), u_set1(0x3f3504f3u)));
   const vf f = f_sub(m, f_set1(1.0f));
   const vf s = f_div(f, f_add(f_set1(2.0f), f));
   const vf z = f_mul(s, s);
-  const vf f_minus_r = f_fma(f_neg(z), horner_lanes(z, K::log_r), f);
-  const vf log1pf = f_fma(f_neg(s), f_minus_r, f);
+  const vf f_minus_r = f_fnma(z, horner_lanes(z, K::log_r), f);  // fma(-z, R, f)
+  const vf log1pf = f_fnma(s, f_minus_r, f);                       // fma(-s, f - R, f)
   const vf kt = f_from_i(k);
   return f_fma(kt, f_set1(K::ln2_hi), f_fma(kt, f_set1(K::ln2_lo), log1pf));
 }
 
-// dmath.hpp sincos_2pi<float>, u in [0, 1).
-inline void sincos_2pi_lanes(vf u, vf& sin_out, vf& cos_out) noexcept {
+// dmath.hpp sincos_2pi<float> of u = k 2^-24 (k < 2^24 the integer of unit_uniform,
+// given as the float kf): 4 u = kf 2^-22 exactly, so fma(kf, 2^-22, c) is fma(4, u, c).
+// The quadrant q mod 4 swaps for odd q and negates by flipping sign bits: sin for
+// q mod 4 in {2, 3} (bit 1 of q), cos for {1, 2} (bit 1 of q + 1).
+inline void sincos_2pi_units(vf kf, vf& sin_out, vf& cos_out) noexcept {
   using K = kernel_constants<float>;
-  const vf q = f_floor(f_fma(f_set1(4.0f), u, f_set1(0.5f)));
-  const vf t = f_fma(f_set1(4.0f), u, f_neg(q));
+  const vf q = f_floor(f_fma(kf, f_set1(0x1p-22f), f_set1(0.5f)));
+  const vf t = f_fms(kf, f_set1(0x1p-22f), q);  // fma(4, u, -q)
   const vf t2 = f_mul(t, t);
   const vf s = f_mul(t, horner_lanes(t2, K::sin_c));
   const vf c = horner_lanes(t2, K::cos_c);
-  const vu quadrant = u_and(u_trunc_f(q), u_set1(3u));
+  const vu qi = u_trunc_f(q);
   // 0: (s, c), 1: (c, -s), 2: (-s, -c), 3: (-c, s)
-  const vm odd = u_eq(u_and(quadrant, u_set1(1u)), u_set1(1u));
-  const vm sin_negative = u_ge(quadrant, u_set1(2u));
-  const vm cos_negative = m_or(u_eq(quadrant, u_set1(1u)), u_eq(quadrant, u_set1(2u)));
-  const vf sin_mag = f_select(odd, c, s), cos_mag = f_select(odd, s, c);
-  sin_out = f_select(sin_negative, f_neg(sin_mag), sin_mag);
-  cos_out = f_select(cos_negative, f_neg(cos_mag), cos_mag);
+  const vm odd = u_eq(u_and(qi, u_set1(1u)), u_set1(1u));
+  sin_out = f_flip_sign(f_select(odd, c, s), u_sll<30>(qi));
+  cos_out = f_flip_sign(f_select(odd, s, c), u_sll<30>(u_add(qi, u_set1(1u))));
 }
 
 // dmath.hpp normal_quantile<float> (AS 241 PPND7), every p.
@@ -160,61 +183,46 @@ inline vf quantile_lanes(vf p) noexcept {
 // sample.hpp uniform_kernel<float>: x = fma(width, u, lo); x >= hi -> largest below hi.
 struct uniform_unit {
   vf width, lo, hi, below;
-  void operator()(const vu (&w)[4], float* at) const noexcept {
+  void operator()(const vu (&w)[4], vf (&v)[4]) const noexcept {
     for (unsigned j = 0; j < 4; ++j) {
       const vf x = f_fma(width, unit_lanes(w[j]), lo);
-      f_store(at + 16 * j, f_select(f_ge(x, hi), below, x));
+      v[j] = f_select(f_ge(x, hi), below, x);
     }
   }
 };
-inline void uniform_groups(const uniform_f32_params& p, const philox4x32_key& key,
-                           std::uint32_t domain, std::uint64_t g0, std::uint64_t count,
-                           float* out) noexcept {
-  const uniform_unit t{f_set1(p.width), f_set1(p.lo), f_set1(p.hi), f_set1(p.below_hi)};
-  drive_groups(t, key, domain, g0, count, out);
-}
 
 // sample.hpp symmetric_uniform_kernel<float>: bound (fma(2, u, -1) + 2^-24).
 struct symmetric_unit {
   vf bound;
-  void operator()(const vu (&w)[4], float* at) const noexcept {
+  void operator()(const vu (&w)[4], vf (&v)[4]) const noexcept {
     for (unsigned j = 0; j < 4; ++j) {
       const vf centred =
           f_add(f_fma(f_set1(2.0f), unit_lanes(w[j]), f_set1(-1.0f)), f_set1(0x1p-24f));
-      f_store(at + 16 * j, f_mul(bound, centred));
+      v[j] = f_mul(bound, centred);
     }
   }
 };
-inline void symmetric_groups(const symmetric_f32_params& p, const philox4x32_key& key,
-                             std::uint32_t domain, std::uint64_t g0, std::uint64_t count,
-                             float* out) noexcept {
-  drive_groups(symmetric_unit{f_set1(p.bound)}, key, domain, g0, count, out);
-}
 
 // sample.hpp normal_kernel<float>: Box-Muller on slots (0, 1) and (2, 3) of each block.
 struct normal_unit {
   vf mean, stddev;
-  void operator()(const vu (&w)[4], float* at) const noexcept {
+  void operator()(const vu (&w)[4], vf (&v)[4]) const noexcept {
     for (unsigned j = 0; j < 4; j += 2) {
-      const vf u1 = unit_lanes(w[j]), u2 = unit_lanes(w[j + 1]);
-      const vf r = f_sqrt(f_mul(f_set1(-2.0f), log_lanes(f_sub(f_set1(1.0f), u1))));
+      // 1 - u1 = 1 - k 2^-24, exact either way (k the integer of u1).
+      const vf one_minus_u1 = f_fnma(f_from_small_u(u_srl<8>(w[j])), f_set1(0x1p-24f), f_set1(1.0f));
+      const vf r = f_sqrt(f_mul(f_set1(-2.0f), log_lanes<true>(one_minus_u1)));
       vf sin_v, cos_v;
-      sincos_2pi_lanes(u2, sin_v, cos_v);
-      f_store(at + 16 * j, f_fma(stddev, f_mul(r, cos_v), mean));
-      f_store(at + 16 * (j + 1), f_fma(stddev, f_mul(r, sin_v), mean));
+      sincos_2pi_units(f_from_small_u(u_srl<8>(w[j + 1])), sin_v, cos_v);
+      v[j] = f_fma(stddev, f_mul(r, cos_v), mean);
+      v[j + 1] = f_fma(stddev, f_mul(r, sin_v), mean);
     }
   }
 };
-inline void normal_groups(const normal_f32_params& p, const philox4x32_key& key,
-                          std::uint32_t domain, std::uint64_t g0, std::uint64_t count,
-                          float* out) noexcept {
-  drive_groups(normal_unit{f_set1(p.mean), f_set1(p.stddev)}, key, domain, g0, count, out);
-}
 
 // sample.hpp truncated_normal_kernel<float>: inversion from the nearer tail.
 struct truncated_unit {
   vf mass, lower, upper, cut_lo, cut_hi, mean, stddev;
-  void operator()(const vu (&w)[4], float* at) const noexcept {
+  void operator()(const vu (&w)[4], vf (&v)[4]) const noexcept {
     for (unsigned j = 0; j < 4; ++j) {
       const vf uo = unit_open_lanes(w[j]);
       const vf pl = f_fma(uo, mass, lower);
@@ -225,16 +233,29 @@ struct truncated_unit {
       vf z = f_select(from_lower, qz, f_neg(qz));
       z = f_select(f_lt(z, cut_lo), cut_lo, z);  // std::max(z, cut_lo)
       z = f_select(f_lt(cut_hi, z), cut_hi, z);  // std::min(.., cut_hi)
-      f_store(at + 16 * j, f_fma(stddev, z, mean));
+      v[j] = f_fma(stddev, z, mean);
     }
   }
 };
-inline void truncated_groups(const truncated_f32_params& p, const philox4x32_key& key,
-                             std::uint32_t domain, std::uint64_t g0, std::uint64_t count,
-                             float* out) noexcept {
-  const truncated_unit t{f_set1(p.mass),   f_set1(p.lower), f_set1(p.upper), f_set1(p.cut_lo),
-                         f_set1(p.cut_hi), f_set1(p.mean),  f_set1(p.stddev)};
-  drive_groups(t, key, domain, g0, count, out);
+
+// The transform of a distribution's parameters (used by the element writers of lanes.hpp).
+inline uniform_unit make_unit(const uniform_f32_params& p) noexcept {
+  return {f_set1(p.width), f_set1(p.lo), f_set1(p.hi), f_set1(p.below_hi)};
+}
+inline symmetric_unit make_unit(const symmetric_f32_params& p) noexcept { return {f_set1(p.bound)}; }
+inline normal_unit make_unit(const normal_f32_params& p) noexcept {
+  return {f_set1(p.mean), f_set1(p.stddev)};
+}
+inline truncated_unit make_unit(const truncated_f32_params& p) noexcept {
+  return {f_set1(p.mass),   f_set1(p.lower), f_set1(p.upper), f_set1(p.cut_lo),
+          f_set1(p.cut_hi), f_set1(p.mean),  f_set1(p.stddev)};
+}
+
+// Whole groups of the distribution with parameters p, out[64 k + r] for group g0 + k.
+template <class P>
+inline void groups(const P& p, const philox4x32_key& key, std::uint32_t domain,
+                   std::uint64_t g0, std::uint64_t count, float* out) noexcept {
+  drive_groups(make_unit(p), key, domain, g0, count, out);
 }
 
 // element.hpp step_down_bits / step_up_bits on each lane, `sign` the sign bit.
@@ -249,20 +270,24 @@ inline vu step_up_lanes(vu x, vu sign) noexcept {
   return u_select(u_eq(x, sign), u_set1(1u), stepped);
 }
 
+// The threshold step of round_store_f32 on one vector of float elements x (bits): a
+// lane above hm (below lm) moves one step down (up). Almost every vector has no such
+// lane, so it is tested first.
+inline vu inside_f32(vu x, vf hm, vf lm) noexcept {
+  const vf t = f_from_bits(x);
+  const vm above = f_lt(hm, t), below = f_lt(t, lm);
+  if (m_none(m_or(above, below))) return x;
+  const vu sign = u_set1(0x80000000u);
+  return u_select(above, step_down_lanes(x, sign), u_select(below, step_up_lanes(x, sign), x));
+}
+
 // lanes.hpp round_store_f32: float elements are the compute values, moved a step inside.
 inline std::size_t round_store_f32(const float* src, float* dst, std::size_t n, float hi_max,
                                    float lo_min, bool stream) noexcept {
   const vf hm = f_set1(hi_max), lm = f_set1(lo_min);
-  const vu sign = u_set1(0x80000000u);
   const bool nt = stream && reinterpret_cast<std::uintptr_t>(dst) % (4 * lanes) == 0;
   std::size_t k = 0;
-  for (; k + lanes <= n; k += lanes) {
-    const vu x = u_load(src + k);
-    const vf t = f_from_bits(x);
-    const vu y = u_select(f_lt(hm, t), step_down_lanes(x, sign),
-                          u_select(f_lt(t, lm), step_up_lanes(x, sign), x));
-    u_store_elements(dst + k, y, nt);
-  }
+  for (; k + lanes <= n; k += lanes) u_store_elements(dst + k, inside_f32(u_load(src + k), hm, lm), nt);
   return k;
 }
 
@@ -280,8 +305,11 @@ inline std::size_t round_store_bf16(const float* src, std::uint16_t* dst, std::s
         u_srl<16>(u_add(u_add(b, u_set1(0x7fffu)), u_and(u_srl<16>(b), u_set1(1u))));
     const vu x = u_select(nan, u_or(u_srl<16>(b), u_set1(0x0040u)), rounded);
     const vf t = f_from_bits(u_sll<16>(x));
-    const vu y = u_select(f_lt(hm, t), step_down_lanes(x, sign),
-                          u_select(f_lt(t, lm), step_up_lanes(x, sign), x));
+    const vm above = f_lt(hm, t), below = f_lt(t, lm);
+    const vu y = m_none(m_or(above, below))
+                     ? x
+                     : u_select(above, step_down_lanes(x, sign),
+                                u_select(below, step_up_lanes(x, sign), x));
     u16_store_elements(dst + k, y, nt);
   }
   return k;
