@@ -93,10 +93,14 @@ inline void require_orthogonal_size(std::uint64_t rows, std::uint64_t cols, cons
   }
 }
 
+/// A dense double matrix in row-major storage (the order the writers read it in).
+using row_major_matrix = Eigen::Matrix<double, Eigen::Dynamic, Eigen::Dynamic, Eigen::RowMajor>;
+
 /// gain times a Haar-distributed rows x cols matrix with orthonormal columns (rows >= cols)
 /// or rows (rows < cols), from the Gaussian matrix of domain `gaussian` of s (see the top
 /// of this header for the exact indices). Sizes were checked by require_orthogonal_size.
-inline Eigen::MatrixXd haar_orthogonal(std::uint64_t rows, std::uint64_t cols, double gain, const stream& s) {
+/// Row-major, so that writing it out in row-major unit order reads memory in order.
+inline row_major_matrix haar_orthogonal(std::uint64_t rows, std::uint64_t cols, double gain, const stream& s) {
   const bool wide = rows < cols;
   const std::uint64_t m = wide ? cols : rows;
   const std::uint64_t n = wide ? rows : cols;
@@ -105,10 +109,14 @@ inline Eigen::MatrixXd haar_orthogonal(std::uint64_t rows, std::uint64_t cols, d
   Eigen::MatrixXd q;
   {
     Eigen::MatrixXd a(em, en);
-    // A(a, b) = Gaussian element a * n + b: the row-major index of shape {m, n}, written
-    // into Eigen's column-major storage by the fill engine.
-    fill(strided_view<double>(a.data(), shape{m, n}, storage_order::column_major), dist::normal{0, 1}, s,
-         domain::gaussian);
+    {
+      // A(a, b) = Gaussian element a * n + b: the row-major index of shape {m, n}. Drawn
+      // into row-major storage, where the fill engine writes whole contiguous runs (the
+      // vector path), then copied into the column-major storage the QR works in.
+      row_major_matrix drawn(em, en);
+      fill(strided_view<double>(drawn.data(), shape{m, n}), dist::normal{0, 1}, s, domain::gaussian);
+      a = drawn;
+    }
     const Eigen::HouseholderQR<Eigen::Ref<Eigen::MatrixXd>> qr(a);  // in place: a holds R and the reflectors
     q = qr.householderQ() * Eigen::MatrixXd::Identity(em, en);
     for (Eigen::Index j = 0; j < en; ++j) {
@@ -117,8 +125,9 @@ inline Eigen::MatrixXd haar_orthogonal(std::uint64_t rows, std::uint64_t cols, d
       q.col(j) *= sign;
     }
   }
-  if (!wide) return q;
-  return q.transpose();
+  // Q^T in row-major storage has Q's column-major layout: a straight copy.
+  if (wide) return q.transpose();
+  return q;
 }
 
 }  // namespace detail
@@ -144,7 +153,7 @@ struct orthogonal {
   template <class E, class Exec>
   void write(const strided_view<E>& v, const weight_info& w, const stream& s, Exec&& exec) const {
     const detail::unit_matrix um(v.global_shape(), w.layout);
-    const Eigen::MatrixXd q = detail::haar_orthogonal(um.rows, um.cols, gain, s);
+    const detail::row_major_matrix q = detail::haar_orthogonal(um.rows, um.cols, gain, s);
     const auto entry = [&q](std::uint64_t row, std::uint64_t col) {
       return q(static_cast<Eigen::Index>(row), static_cast<Eigen::Index>(col));
     };
@@ -171,7 +180,7 @@ struct delta_orthogonal {
         detail::centre_tap_geometry::of(v.global_shape(), w, "delta_orthogonal");
     // The centre tap as one out x in matrix: group k's block in rows k*out/g .. (k+1)*out/g - 1.
     const std::uint64_t per_group = g.out_per_group();
-    Eigen::MatrixXd centre(static_cast<Eigen::Index>(g.out), static_cast<Eigen::Index>(g.in));
+    detail::row_major_matrix centre(static_cast<Eigen::Index>(g.out), static_cast<Eigen::Index>(g.in));
     for (std::uint64_t k = 0; k < g.groups; ++k) {
       const stream group_stream = g.groups == 1 ? s : s.indexed(k);
       centre.middleRows(static_cast<Eigen::Index>(k * per_group), static_cast<Eigen::Index>(per_group)) =

@@ -165,6 +165,8 @@ inline vf f_flip_sign(vf a, vu s) noexcept {
 inline vf f_from_small_u(vu a) noexcept { return _mm512_cvtepi32_ps(a); }  // a < 2^31: exact
 inline vf f_from_i(vu a) noexcept { return _mm512_cvtepi32_ps(a); }        // |a| < 2^24: exact
 inline vu u_trunc_f(vf a) noexcept { return _mm512_cvttps_epi32(a); }
+// The unbiased exponent of a positive normal float, as a float (exact).
+inline vf f_exponent(vf a) noexcept { return _mm512_getexp_ps(a); }
 inline vu u_bits(vf a) noexcept { return _mm512_castps_si512(a); }
 inline vf f_from_bits(vu a) noexcept { return _mm512_castsi512_ps(a); }
 inline vm f_lt(vf a, vf b) noexcept { return _mm512_cmp_ps_mask(a, b, _CMP_LT_OQ); }
@@ -424,6 +426,10 @@ inline vf f_flip_sign(vf a, vu s) noexcept {
 inline vf f_from_small_u(vu a) noexcept { return _mm256_cvtepi32_ps(a); }
 inline vf f_from_i(vu a) noexcept { return _mm256_cvtepi32_ps(a); }
 inline vu u_trunc_f(vf a) noexcept { return _mm256_cvttps_epi32(a); }
+inline vf f_exponent(vf a) noexcept {
+  return _mm256_cvtepi32_ps(
+      _mm256_sub_epi32(_mm256_srli_epi32(_mm256_castps_si256(a), 23), _mm256_set1_epi32(127)));
+}
 inline vu u_bits(vf a) noexcept { return _mm256_castps_si256(a); }
 inline vf f_from_bits(vu a) noexcept { return _mm256_castsi256_ps(a); }
 inline vm f_lt(vf a, vf b) noexcept { return _mm256_castps_si256(_mm256_cmp_ps(a, b, _CMP_LT_OQ)); }

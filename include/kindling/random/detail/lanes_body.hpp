@@ -116,21 +116,23 @@ inline vf log_lanes(vf x) noexcept {
   using K = kernel_constants<float>;
   static_assert(K::sqrt2_fraction == 0x3504f3u, "the split below assumes this threshold");
   vu b = u_bits(x);
-  vu k = u_set1(0u);
+  vu k = u_set1(0u);  // the subnormal offset of k
   if constexpr (!normal_only) {
     const vm subnormal = u_eq(u_srl<23>(b), u_set1(0u));
     b = u_select(subnormal, u_bits(f_mul(x, f_set1(static_cast<float>(1u << 25)))), b);
     k = u_select(subnormal, u_set1(static_cast<std::uint32_t>(-25)), k);
   }
   const vu shifted = u_add(b, u_set1(0x3f800000u - 0x3f3504f3u));
-  k = u_add(k, u_sub(u_srl<23>(shifted), u_set1(127u)));
   const vf m = f_from_bits(u_add(u_and(shifted, u_set1(0x7fffffu)), u_set1(0x3f3504f3u)));
   const vf f = f_sub(m, f_set1(1.0f));
   const vf s = f_div(f, f_add(f_set1(2.0f), f));
   const vf z = f_mul(s, s);
   const vf f_minus_r = f_fnma(z, horner_lanes(z, K::log_r), f);  // fma(-z, R, f)
   const vf log1pf = f_fnma(s, f_minus_r, f);                       // fma(-s, f - R, f)
-  const vf kt = f_from_i(k);
+  // k = (exponent field of shifted) - 127 (+ the subnormal offset), as a float: shifted
+  // is the bits of a positive normal float, whose exponent f_exponent gives exactly.
+  vf kt = f_exponent(f_from_bits(shifted));
+  if constexpr (!normal_only) kt = f_add(kt, f_from_i(k));  // small integers: exact
   return f_fma(kt, f_set1(K::ln2_hi), f_fma(kt, f_set1(K::ln2_lo), log1pf));
 }
 
