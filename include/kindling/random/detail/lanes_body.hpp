@@ -193,13 +193,15 @@ struct uniform_unit {
   }
 };
 
-// sample.hpp symmetric_uniform_kernel<float>: bound (fma(2, u, -1) + 2^-24).
+// sample.hpp symmetric_uniform_kernel<float>: bound (fma(2, u, -1) + 2^-24), with
+// u = k 2^-24 for the integer k, so 2 u = k 2^-23 exactly and fma(k, 2^-23, -1) is the
+// same fma.
 struct symmetric_unit {
   vf bound;
   void operator()(const vu (&w)[4], vf (&v)[4]) const noexcept {
     for (unsigned j = 0; j < 4; ++j) {
-      const vf centred =
-          f_add(f_fma(f_set1(2.0f), unit_lanes(w[j]), f_set1(-1.0f)), f_set1(0x1p-24f));
+      const vf k = f_from_small_u(u_srl<8>(w[j]));
+      const vf centred = f_add(f_fma(k, f_set1(0x1p-23f), f_set1(-1.0f)), f_set1(0x1p-24f));
       v[j] = f_mul(bound, centred);
     }
   }
