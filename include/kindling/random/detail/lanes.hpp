@@ -177,7 +177,8 @@ inline vf f_select(vm m, vf a, vf b) noexcept { return _mm512_mask_blend_ps(m, b
 inline vm m_or(vm a, vm b) noexcept { return static_cast<vm>(a | b); }
 inline vm m_not(vm a) noexcept { return static_cast<vm>(~a); }
 inline vm m_and(vm a, vm b) noexcept { return static_cast<vm>(a & b); }
-inline bool m_none(vm a) noexcept { return a == 0; }
+// Whether no lane is set in a or b (one kortest).
+inline bool m_none_of(vm a, vm b) noexcept { return _kortestz_mask16_u8(a, b) != 0; }
 inline void u_store(std::uint32_t* p, vu a) noexcept { _mm512_storeu_si512(p, a); }
 inline void f_store(float* p, vf a) noexcept { _mm512_storeu_ps(p, a); }
 inline vu u_load(const void* p) noexcept { return _mm512_loadu_si512(p); }
@@ -440,7 +441,10 @@ inline vf f_select(vm m, vf a, vf b) noexcept { return _mm256_blendv_ps(b, a, _m
 inline vm m_or(vm a, vm b) noexcept { return _mm256_or_si256(a, b); }
 inline vm m_not(vm a) noexcept { return _mm256_xor_si256(a, _mm256_set1_epi32(-1)); }
 inline vm m_and(vm a, vm b) noexcept { return _mm256_and_si256(a, b); }
-inline bool m_none(vm a) noexcept { return _mm256_testz_si256(a, a) != 0; }
+inline bool m_none_of(vm a, vm b) noexcept {
+  const vm both = _mm256_or_si256(a, b);
+  return _mm256_testz_si256(both, both) != 0;
+}
 inline void u_store(std::uint32_t* p, vu a) noexcept {
   _mm256_storeu_si256(reinterpret_cast<__m256i*>(p), a);
 }

@@ -280,7 +280,7 @@ inline vu step_up_lanes(vu x, vu sign) noexcept {
 inline vu inside_f32(vu x, vf hm, vf lm) noexcept {
   const vf t = f_from_bits(x);
   const vm above = f_lt(hm, t), below = f_lt(t, lm);
-  if (m_none(m_or(above, below))) return x;
+  if (m_none_of(above, below)) return x;
   const vu sign = u_set1(0x80000000u);
   return u_select(above, step_down_lanes(x, sign), u_select(below, step_up_lanes(x, sign), x));
 }
@@ -310,7 +310,7 @@ inline std::size_t round_store_bf16(const float* src, std::uint16_t* dst, std::s
     const vu x = u_select(nan, u_or(u_srl<16>(b), u_set1(0x0040u)), rounded);
     const vf t = f_from_bits(u_sll<16>(x));
     const vm above = f_lt(hm, t), below = f_lt(t, lm);
-    const vu y = m_none(m_or(above, below))
+    const vu y = m_none_of(above, below)
                      ? x
                      : u_select(above, step_down_lanes(x, sign),
                                 u_select(below, step_up_lanes(x, sign), x));
