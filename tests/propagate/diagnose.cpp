@@ -22,7 +22,8 @@ layer_stack tanh_stack() {
       .add_dense(3, activation::identity(), glorot_uniform{});
   return s;
 }
-const audit_finding& finding(const audit_report& r, const char* check) {
+// A copy, so that a finding of a temporary report stays valid (ASan caught the reference).
+audit_finding finding(const audit_report& r, const char* check) {
   const audit_finding* f = r.find(check);
   REQUIRE(f != nullptr);
   return *f;
