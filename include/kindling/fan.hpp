@@ -146,6 +146,7 @@ inline void require_dense_layout(weight_layout layout, const char* where) {
 inline void check_against(const char* where, const std::vector<std::uint64_t>& actual,
                           const std::vector<std::uint64_t>& expected,
                           const std::vector<std::string>& labels, weight_layout layout) {
+  if (actual == expected) return;  // the usual case: no message text to build
   const std::string head = std::string(where) + ": argument 'shape' = " + shape_text(actual);
   const std::string want = " for layout " + std::string(layout_name(layout)) + " " +
                            labels_text(labels) + " = " + shape_text(expected);

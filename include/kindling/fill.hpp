@@ -310,15 +310,18 @@ void fill_chunk(const strided_view<E>& v, const element_rounder<E>& rounder, boo
     if (extent[d] != global[d]) cut = true;
   }
 
-  // Local multi-index of the first element and its memory offset.
+  // Local multi-index of an element and its memory offset, set from its local index.
   std::array<std::uint64_t, max_rank> index{};
   std::ptrdiff_t at = 0;
-  std::uint64_t rest = first_local;
-  for (std::size_t d = rank; d-- > 0;) {
-    index[d] = rest % extent[d];
-    rest /= extent[d];
-    at += static_cast<std::ptrdiff_t>(index[d]) * static_cast<std::ptrdiff_t>(v.stride(d));
-  }
+  const auto seek = [&](std::uint64_t local_index) {
+    at = 0;
+    for (std::size_t d = rank; d-- > 0;) {
+      index[d] = local_index % extent[d];
+      local_index /= extent[d];
+      at += static_cast<std::ptrdiff_t>(index[d]) * static_cast<std::ptrdiff_t>(v.stride(d));
+    }
+  };
+  seek(first_local);
   // Step the local index in row-major order, carrying into outer dimensions.
   const auto step = [&]() {
     for (std::size_t d = rank; d-- > 0;) {
@@ -330,6 +333,14 @@ void fill_chunk(const strided_view<E>& v, const element_rounder<E>& rounder, boo
   };
   const std::size_t inner = rank - 1;
   const bool inner_contiguous = v.stride(inner) == 1;
+  // Elements adjacent in memory: the innermost dimension, and each outer one whose stride
+  // is the size of what it holds (a dense row-major block), so that a small dense tensor
+  // goes to the direct writer in one piece rather than a row at a time.
+  std::uint64_t memory_run = inner_contiguous ? extent[inner] : 0;
+  for (std::size_t d = inner; inner_contiguous && d-- > 0;) {
+    if (v.stride(d) != static_cast<std::int64_t>(memory_run)) break;
+    memory_run *= extent[d];
+  }
 
   std::array<compute, fill_buffer_elements> buffer;
   E* const data = v.data();
@@ -344,10 +355,10 @@ void fill_chunk(const strided_view<E>& v, const element_rounder<E>& rounder, boo
       // The whole counter groups of a contiguous stretch go straight to memory, rounded on
       // the way (no buffer); the partial groups at its ends take the buffered path below.
       constexpr std::uint64_t group = elements_per_group<compute>;
-      const std::uint64_t in_row = inner_contiguous ? std::min(n, extent[inner] - index[inner]) : 0;
+      const std::uint64_t adjacent = inner_contiguous ? std::min(n, memory_run - local % memory_run) : 0;
       const std::uint64_t head = (group - global_index % group) % group;
-      if (rounder.thresholds && in_row >= head + group) {
-        const std::uint64_t whole = (in_row - head) / group;
+      if (rounder.thresholds && adjacent >= head + group) {
+        const std::uint64_t whole = (adjacent - head) / group;
         if (gen.elements(isa, (global_index + head) / group, whole, data + at + head, rounder.hi_max,
                          rounder.lo_min, stream)) {
           streamed = streamed || stream;
@@ -356,11 +367,9 @@ void fill_chunk(const strided_view<E>& v, const element_rounder<E>& rounder, boo
             store_contiguous(rounder, isa, buffer.data(), data + at, static_cast<std::size_t>(head), false);
           }
           const std::uint64_t done = head + whole * group;
-          index[inner] += done - 1;
-          at += static_cast<std::ptrdiff_t>(done - 1);
-          step();
           local += done;
           remaining -= done;
+          if (remaining > 0) seek(local);
           continue;
         }
       }

@@ -257,6 +257,23 @@ TEST_CASE("element i gets word (i % 64) / 16 of counter block 16 (i / 64) + i % 
       }
     CHECK(ok);
   }
+  SUBCASE("float: dense blocks of several short rows, written as one stretch") {
+    // A dense tensor whose rows are shorter than a counter group, and a block of whole
+    // rows starting mid-group: the direct writer covers them across row ends.
+    const shape small{3, 5, 40};
+    const region rows({2, 0}, {7, 97});
+    std::vector<float> a(small.element_count()), b(rows.extent().element_count());
+    kindling::fill(strided_view<float>(a.data(), small), d, pump, domain::positions);
+    kindling::fill(strided_view<float>(b.data(), global, rows), d, pump, domain::positions);
+    const auto expected = [&](std::uint64_t i) {
+      const auto w = reference_block(16 * (i / 64) + i % 16, domain::positions);
+      return static_cast<float>(w[(i % 64) / 16] >> 8) * 0x1p-24f;
+    };
+    bool ok = true;
+    for (std::uint64_t i = 0; i < a.size(); ++i) ok = ok && a[i] == expected(i);
+    for (std::uint64_t i = 0; i < b.size(); ++i) ok = ok && b[i] == expected(2 * 97 + i);
+    CHECK_MESSAGE(ok, "element i of a dense block must hold the Random123 word of global index i");
+  }
   SUBCASE("double: two words per element, the first one high") {
     std::vector<double> memory(part.extent().element_count());
     kindling::fill(strided_view<double>(memory.data(), global, part), d, pump);
