@@ -72,3 +72,17 @@ TEST_CASE("sparse with k larger than the fan-in is an error and writes nothing")
                              make_stream(1, "w")),
                   std::domain_error);
 }
+
+TEST_CASE("a sparse shard across units of an input-major weight matches the whole") {
+  // The unit axis is the last one here, so a shard's units start at its column offset.
+  const stream s = make_stream(3, "w");
+  std::vector<float> w(60 * 40);
+  initialize(strided_view<float>(w.data(), shape(60, 40)), dense(60, 40, weight_layout::in_out), sparse{5, 1.0}, s);
+  std::vector<float> shard(25 * 13);
+  initialize(strided_view<float>(shard.data(), shape(60, 40), region(shape(20, 9), shape(25, 13))),
+             dense(60, 40, weight_layout::in_out), sparse{5, 1.0}, s);
+  bool same = true;
+  for (std::size_t r = 0; r < 25; ++r)
+    for (std::size_t c = 0; c < 13; ++c) same = same && shard[r * 13 + c] == w[(r + 20) * 40 + c + 9];
+  CHECK_MESSAGE(same, "units 9 .. 21 of the shard must hold the whole weight's values");
+}

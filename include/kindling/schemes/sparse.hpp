@@ -80,20 +80,23 @@ struct sparse {
   template <class E, class Exec>
   void write(const strided_view<E>& v, const weight_info& w, const stream& s, Exec&& exec) const {
     const detail::unit_matrix m(v.global_shape(), w.layout);
-    // The chosen columns of every unit (cheap: k draws a unit).
-    std::vector<std::vector<std::uint64_t>> columns(static_cast<std::size_t>(m.rows));
-    for (std::uint64_t o = 0; o < m.rows; ++o) {
-      columns[static_cast<std::size_t>(o)] = detail::sparse_columns(s, o, nonzero, m.cols);
+    // The chosen columns of the units this view's region holds (a shard draws only its
+    // own; a unit's columns depend on the unit alone, so they are the same either way).
+    const std::size_t axis = detail::unit_axis(w.layout, v.global_shape().rank());
+    const std::uint64_t first_unit = v.part().offset()[axis];
+    std::vector<std::vector<std::uint64_t>> columns(static_cast<std::size_t>(v.part().extent()[axis]));
+    for (std::size_t k = 0; k < columns.size(); ++k) {
+      columns[k] = detail::sparse_columns(s, first_unit + k, nonzero, m.cols);
     }
     const dist::normal values{0.0, stddev};
     using compute = compute_type_t<E>;
+    const auto kernel = detail::prepare<compute>(values);  // once, not per buffer
     const auto gen = [&](std::uint64_t first, std::size_t n, compute* out) {
-      generate(values, s, domain::values, first, n, out);
-      for (std::size_t q = 0; q < n; ++q) {
-        std::uint64_t row = 0, col = 0;
-        m.locate(first + q, &row, &col);
-        const auto& c = columns[static_cast<std::size_t>(row)];
-        if (!std::binary_search(c.begin(), c.end(), col)) out[q] = compute(0);
+      detail::generate_run(kernel, s, domain::values, first, n, out);
+      detail::unit_walk at(m, first);
+      for (std::size_t q = 0; q < n; ++q, at.next()) {
+        const auto& c = columns[static_cast<std::size_t>(at.row() - first_unit)];
+        if (!std::binary_search(c.begin(), c.end(), at.col())) out[q] = compute(0);
       }
     };
     fill_generated(v, bounds_of(values), gen, std::forward<Exec>(exec));

@@ -119,17 +119,52 @@ struct centre_tap_geometry {
   }
 };
 
+// The (o, j, t) of flat indices first, first + 1, ... in turn: locate() once, then the
+// layout's innermost axis counts up and carries, with no division per element.
+class centre_tap_walk {
+ public:
+  centre_tap_walk(const centre_tap_geometry& g, std::uint64_t first) noexcept : g_(g) {
+    g.locate(first, &o_, &j_, &t_);
+  }
+  std::uint64_t out() const noexcept { return o_; }
+  std::uint64_t in() const noexcept { return j_; }
+  std::uint64_t tap() const noexcept { return t_; }
+  void next() noexcept {
+    switch (g_.layout) {
+      case weight_layout::spatial_in_out:  // [k..., in, out]
+        carry(o_, g_.out, j_, g_.in, t_);
+        return;
+      case weight_layout::out_spatial_in:  // [out, k..., in]
+        carry(j_, g_.in, t_, g_.taps, o_);
+        return;
+      default:  // out_in_spatial [out, in, k...]
+        carry(t_, g_.taps, j_, g_.in, o_);
+        return;
+    }
+  }
+
+ private:
+  // Steps the three digits (innermost first) of a mixed-radix count.
+  static void carry(std::uint64_t& d0, std::uint64_t r0, std::uint64_t& d1, std::uint64_t r1,
+                    std::uint64_t& d2) noexcept {
+    if (++d0 < r0) return;
+    d0 = 0;
+    if (++d1 < r1) return;
+    d1 = 0;
+    ++d2;
+  }
+  const centre_tap_geometry& g_;
+  std::uint64_t o_ = 0, j_ = 0, t_ = 0;
+};
+
 // Writes the weight whose unit-matrix entry (row, col) is value(row, col) (a double),
 // rounded to the compute type, into view v (any region, order, element type).
 template <class E, class Value, class Exec>
 void write_unit_entries(const strided_view<E>& v, const unit_matrix& um, const Value& value, Exec&& exec) {
   using compute = compute_type_t<E>;
   const auto gen = [&um, &value](std::uint64_t first, std::size_t n, compute* out) {
-    for (std::size_t k = 0; k < n; ++k) {
-      std::uint64_t row = 0, col = 0;
-      um.locate(first + k, &row, &col);
-      out[k] = static_cast<compute>(value(row, col));
-    }
+    unit_walk at(um, first);
+    for (std::size_t k = 0; k < n; ++k, at.next()) out[k] = static_cast<compute>(value(at.row(), at.col()));
   };
   fill_generated(v, unbounded, gen, std::forward<Exec>(exec));
 }
@@ -141,10 +176,9 @@ void write_centre_tap(const strided_view<E>& v, const centre_tap_geometry& g, co
                       Exec&& exec) {
   using compute = compute_type_t<E>;
   const auto gen = [&g, &centre_value](std::uint64_t first, std::size_t n, compute* out) {
-    for (std::size_t k = 0; k < n; ++k) {
-      std::uint64_t o = 0, j = 0, t = 0;
-      g.locate(first + k, &o, &j, &t);
-      out[k] = t == g.centre ? static_cast<compute>(centre_value(o, j)) : compute(0);
+    centre_tap_walk at(g, first);
+    for (std::size_t k = 0; k < n; ++k, at.next()) {
+      out[k] = at.tap() == g.centre ? static_cast<compute>(centre_value(at.out(), at.in())) : compute(0);
     }
   };
   fill_generated(v, unbounded, gen, std::forward<Exec>(exec));

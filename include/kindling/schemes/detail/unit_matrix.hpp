@@ -58,6 +58,31 @@ struct unit_matrix {
   }
 };
 
+/// The matrix elements of flat indices first, first + 1, ... in turn: locate() once, then
+/// a carry per step instead of two divisions per element (the writers' hot loop).
+class unit_walk {
+ public:
+  unit_walk(const unit_matrix& m, std::uint64_t first) noexcept : m_(m) {
+    b_ = first % m.inner;
+    const std::uint64_t rest = first / m.inner;
+    row_ = rest % m.rows;
+    a_ = rest / m.rows;
+  }
+  std::uint64_t row() const noexcept { return row_; }
+  std::uint64_t col() const noexcept { return a_ * m_.inner + b_; }
+  void next() noexcept {
+    if (++b_ < m_.inner) return;
+    b_ = 0;
+    if (++row_ < m_.rows) return;
+    row_ = 0;
+    ++a_;
+  }
+
+ private:
+  const unit_matrix& m_;
+  std::uint64_t a_ = 0, row_ = 0, b_ = 0;  // col = a inner + b
+};
+
 }  // namespace kindling::detail
 
 #endif  // KINDLING_SCHEMES_DETAIL_UNIT_MATRIX_HPP
