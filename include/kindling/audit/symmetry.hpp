@@ -76,9 +76,17 @@ inline bool same_unit(const gathered& g, std::uint64_t a, std::uint64_t b) {
 inline std::vector<std::vector<std::uint64_t>> duplicate_groups(const gathered& g) {
   std::unordered_map<std::uint64_t, std::vector<std::uint64_t>> by_hash;
   for (std::uint64_t r = 0; r < g.rows; ++r) {
-    std::uint64_t h = 0x6b696e646c696e67u;
-    for (std::uint64_t j = 0; j < g.cols; ++j) h = mix64(h ^ value_bits(g.values[r * g.cols + j]));
-    by_hash[h].push_back(r);
+    // Four independent chains over the connections j mod 4, so that the multiplies of
+    // one do not wait for the others; the hash only groups candidates, which are then
+    // compared value by value, so any mixing that spreads units apart will do.
+    const double* unit = g.values.data() + r * g.cols;
+    std::uint64_t h[4] = {0x6b696e646c696e67u, 1, 2, 3};
+    std::uint64_t j = 0;
+    for (; j + 4 <= g.cols; j += 4) {
+      for (unsigned c = 0; c < 4; ++c) h[c] = mix64(h[c] ^ value_bits(unit[j + c]));
+    }
+    for (; j < g.cols; ++j) h[0] = mix64(h[0] ^ value_bits(unit[j]));
+    by_hash[mix64(h[0] ^ mix64(h[1] ^ mix64(h[2] ^ mix64(h[3]))))].push_back(r);
   }
   std::vector<std::vector<std::uint64_t>> groups;
   for (auto& entry : by_hash) {

@@ -53,33 +53,42 @@ gathered gather(const strided_view<E>& v, weight_layout layout) {
                             " elements; expected fewer than fit in memory as doubles");
   }
   g.values.resize(static_cast<std::size_t>(v.size()));
+  // One row of the region (its innermost dimension) at a time; the memory offset of the
+  // next row by an odometer over the outer dimensions, and a whole tensor's unit-matrix
+  // position by unit_walk: no division or multi-index sum per element.
+  const std::uint64_t row_length = part.extent()[r - 1];
+  const std::ptrdiff_t step = static_cast<std::ptrdiff_t>(v.stride(r - 1));
   std::vector<std::uint64_t> local(r, 0);
-  std::uint64_t next = 0;  // position in region order, for partial views
-  for (std::uint64_t count = 0; count < v.size(); ++count) {
-    std::ptrdiff_t offset = 0;
+  std::ptrdiff_t row_offset = 0;
+  unit_walk unit(um, 0);
+  const auto flat_of = [&](std::uint64_t j) {  // global row-major index of local[..], j
     std::uint64_t flat = 0;
-    for (std::size_t d = 0; d < r; ++d) {
-      offset += static_cast<std::ptrdiff_t>(local[d]) * static_cast<std::ptrdiff_t>(v.stride(d));
-      flat = flat * global[d] + part.offset()[d] + local[d];
-    }
-    const double x = element_traits<element>::to_double(v.data()[offset]);
-    if (!std::isfinite(x)) {
-      if (g.non_finite == 0) {
-        g.first_non_finite = flat;
-        g.first_non_finite_value = x;
+    for (std::size_t d = 0; d < r; ++d) flat = flat * global[d] + part.offset()[d] + (d + 1 == r ? j : local[d]);
+    return flat;
+  };
+  for (std::uint64_t count = 0; count < v.size(); count += row_length) {
+    const element* row = v.data() + row_offset;
+    for (std::uint64_t j = 0; j < row_length; ++j) {
+      const double x = element_traits<element>::to_double(row[static_cast<std::ptrdiff_t>(j) * step]);
+      if (!std::isfinite(x)) {
+        if (g.non_finite == 0) {
+          g.first_non_finite = flat_of(j);
+          g.first_non_finite_value = x;
+        }
+        ++g.non_finite;
+        if (std::isnan(x)) ++g.nan_count;
       }
-      ++g.non_finite;
-      if (std::isnan(x)) ++g.nan_count;
+      if (g.whole) {
+        g.values[static_cast<std::size_t>(unit.row() * g.cols + unit.col())] = x;
+        unit.next();
+      } else {
+        g.values[static_cast<std::size_t>(count + j)] = x;
+      }
     }
-    std::uint64_t at = next++;
-    if (g.whole) {
-      std::uint64_t row = 0, col = 0;
-      um.locate(flat, &row, &col);
-      at = row * g.cols + col;
-    }
-    g.values[static_cast<std::size_t>(at)] = x;
-    for (std::size_t d = r; d-- > 0;) {  // row-major odometer over the region
+    for (std::size_t d = r - 1; d-- > 0;) {  // row-major odometer over the outer dimensions
+      row_offset += static_cast<std::ptrdiff_t>(v.stride(d));
       if (++local[d] < part.extent()[d]) break;
+      row_offset -= static_cast<std::ptrdiff_t>(part.extent()[d]) * static_cast<std::ptrdiff_t>(v.stride(d));
       local[d] = 0;
     }
   }
