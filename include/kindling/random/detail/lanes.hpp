@@ -543,6 +543,10 @@ inline bool groups_f32_elements(instruction_set isa, const P& p, const philox4x3
   if (isa == instruction_set::avx512)
     return lanes_avx512::groups_to_elements(p, key, domain, g0, count, dst, hi_max, lo_min, stream),
            true;
+  if (isa == instruction_set::avx2)
+    return lanes_avx2::groups_to_elements_by_vector(p, key, domain, g0, count, dst, hi_max, lo_min,
+                                                    stream),
+           true;
 #endif
   (void)isa, (void)p, (void)key, (void)domain, (void)g0, (void)count, (void)dst, (void)hi_max,
       (void)lo_min, (void)stream;

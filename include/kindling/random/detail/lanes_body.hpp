@@ -295,6 +295,25 @@ inline std::size_t round_store_f32(const float* src, float* dst, std::size_t n, 
   return k;
 }
 
+// The float elements of whole groups straight to dst (dst[64 k + r] for group g0 + k),
+// each moved inside [lo_min, hi_max] as round_store_f32 does, one vector store per value
+// vector: the direct writer of paths without a line writer (AVX2; AVX-512 has its own in
+// lanes.hpp). Non-temporal only when dst is aligned to the vector; the values are the
+// same either way.
+template <class P>
+inline void groups_to_elements_by_vector(const P& p, const philox4x32_key& key, std::uint32_t domain,
+                                         std::uint64_t g0, std::uint64_t count, float* dst,
+                                         float hi_max, float lo_min, bool stream) noexcept {
+  const vf hm = f_set1(hi_max), lm = f_set1(lo_min);
+  const bool nt = stream && reinterpret_cast<std::uintptr_t>(dst) % (4 * lanes) == 0;
+  auto sink = [&](std::uint64_t unit, const vf (&v)[4]) {
+    const std::uint64_t first_lane = unit * lanes;  // block offset from 16 g0
+    float* const at = dst + (first_lane / 16) * 64 + first_lane % 16;
+    for (unsigned j = 0; j < 4; ++j) u_store_elements(at + 16 * j, inside_f32(u_bits(v[j]), hm, lm), nt);
+  };
+  drive_units(make_unit(p), key, domain, g0, count, sink);
+}
+
 // lanes.hpp round_store_bf16: element.hpp round_to_bfloat16, then the same step inside.
 inline std::size_t round_store_bf16(const float* src, std::uint16_t* dst, std::size_t n,
                                     float hi_max, float lo_min, bool stream) noexcept {
