@@ -11,21 +11,7 @@
 #include <sstream>
 #include <type_traits>
 
-// Random123 is written for C and C++98; silence only what our strict set finds in it.
-#pragma GCC diagnostic push
-#pragma GCC diagnostic ignored "-Wpedantic"
-#pragma GCC diagnostic ignored "-Wconversion"
-#pragma GCC diagnostic ignored "-Wsign-conversion"
-#pragma GCC diagnostic ignored "-Wshadow"
-#pragma GCC diagnostic ignored "-Wold-style-cast"
-#pragma GCC diagnostic ignored "-Wunused-parameter"
-#include <Random123/philox.h>
-#pragma GCC diagnostic pop
-// Random123 also defines C macros of these names; we use its r123:: classes only.
-#undef philox2x32
-#undef philox4x32
-#undef philox2x64
-#undef philox4x64
+#include "../support/random123.hpp"
 
 namespace {
 

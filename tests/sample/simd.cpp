@@ -19,17 +19,7 @@
 #include "kindling/random/stream.hpp"
 #include "kindling/view.hpp"
 
-// Random123 is written for C and C++98; silence only what our strict set finds in it.
-#pragma GCC diagnostic push
-#pragma GCC diagnostic ignored "-Wpedantic"
-#pragma GCC diagnostic ignored "-Wconversion"
-#pragma GCC diagnostic ignored "-Wsign-conversion"
-#pragma GCC diagnostic ignored "-Wshadow"
-#pragma GCC diagnostic ignored "-Wold-style-cast"
-#pragma GCC diagnostic ignored "-Wunused-parameter"
-#include <Random123/philox.h>
-#pragma GCC diagnostic pop
-#undef philox4x32
+#include "../support/random123.hpp"
 
 namespace {
 
