@@ -4,6 +4,7 @@
 #include <doctest/doctest.h>
 
 #include "../support/errors.hpp"
+#include "../support/layer_fill.hpp"
 
 #include <cstdint>
 #include <cstring>
@@ -13,6 +14,7 @@
 
 namespace {
 
+using kindling_test::as_double;
 using kindling_test::mentions;
 using kindling_test::message_of;
 using kindling::shape;
@@ -20,17 +22,9 @@ using kindling::strided_view;
 using kindling::weight_info;
 using kindling::weight_layout;
 
-template <class E>
-double as_double(E x) {
-  return kindling::element_traits<E>::to_double(x);
-}
-
 template <class E, class Layer>
 std::vector<E> identity_of(const shape& global, const Layer& layer, double gain = 1) {
-  std::vector<E> memory(static_cast<std::size_t>(global.element_count()), E{});
-  kindling::initialize(strided_view<E>(memory.data(), global), layer, kindling::identity{gain},
-                       kindling::make_stream(0, "unused"));
-  return memory;
+  return kindling_test::filled<E>(global, layer, kindling::identity{gain}, kindling::make_stream(0, "unused"));
 }
 
 // A convolution with zero padding of floor(k/2) before and k - 1 - floor(k/2) after each

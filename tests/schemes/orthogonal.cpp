@@ -5,6 +5,7 @@
 #include <doctest/doctest.h>
 
 #include "../support/errors.hpp"
+#include "../support/layer_fill.hpp"
 
 #include <Eigen/Dense>
 
@@ -19,25 +20,14 @@
 
 namespace {
 
+using kindling_test::as_double;
+using kindling_test::filled;
 using kindling_test::mentions;
 using kindling_test::message_of;
 using kindling::shape;
 using kindling::strided_view;
 using kindling::weight_info;
 using kindling::weight_layout;
-
-template <class E>
-double as_double(E x) {
-  return kindling::element_traits<E>::to_double(x);
-}
-
-// The weight of `global` (row-major memory) filled by scheme s from stream st.
-template <class E, class Scheme>
-std::vector<E> filled(const shape& global, const weight_info& w, const Scheme& s, const kindling::stream& st) {
-  std::vector<E> memory(static_cast<std::size_t>(global.element_count()));
-  kindling::initialize(strided_view<E>(memory.data(), global), w, s, st);
-  return memory;
-}
 
 // The unit matrix (rows = units, by the layout's output axis) of a row-major weight, in double.
 template <class E>
