@@ -86,11 +86,11 @@ audit_report expect_report(const npy_array& a, const std::vector<double>& x, con
   const strided_view<const double> v(x.data(), shape(global.begin(), global.end()));
   const std::string& s = o.expect.scheme;
   if (s == "zeros" || s == "constant" || s == "identity") return exact_values(a, x, scheme, global, w, s);
-  if (s == "orthogonal" || s == "delta-orthogonal") {
-    // delta-orthogonal: its flattened units are orthonormal times the gain when the
-    // centre taps are (the other taps are zero); this checks that necessary condition.
-    const double gain = o.expect.gain.value_or(1.0);
-    return check_orthogonal(v, gain, orthogonal_tolerance(a.type), w.layout);
+  if (s == "orthogonal") {
+    return check_orthogonal(v, o.expect.gain.value_or(1.0), orthogonal_tolerance(a.type), w.layout);
+  }
+  if (s == "delta-orthogonal") {
+    return check_delta_orthogonal(v, w, o.expect.gain.value_or(1.0), orthogonal_tolerance(a.type));
   }
   if (s == "sparse") return check_sparsity(v, o.expect.nonzero.value_or(sparse{}.nonzero), w.layout);
   return std::visit(

@@ -62,3 +62,48 @@ TEST_CASE("structure audits reject bad arguments and report non-finite values") 
   CHECK(check_orthogonal(v, 1.0).explain().find("NaN") != std::string::npos);
   CHECK(check_sparsity(v, 2).explain().find("not finite") != std::string::npos);
 }
+
+TEST_CASE("check_delta_orthogonal passes delta-orthogonal kernels and names an off-centre tap or a wrong gain") {
+  SUBCASE("no groups, output-input-spatial, gain 1.3") {
+    const convolution conv(8, 16, {3, 3});
+    std::vector<float> w(16 * 8 * 3 * 3);
+    const strided_view<float> v(w.data(), shape(16, 8, 3, 3));
+    initialize(v, conv, delta_orthogonal{1.3}, make_stream(5, "d"));
+    const audit_report ok = check_delta_orthogonal(v, conv, 1.3);
+    CHECK_MESSAGE(ok, ok.explain());
+    CHECK_FALSE(check_delta_orthogonal(v, conv, 1.0));  // the same kernel declared with another gain
+    // One value at tap (0, 0) of output 2, input 5 (flat (2 * 8 + 5) * 9 + 0).
+    w[(2 * 8 + 5) * 9] = 0.01f;
+    const audit_report off = check_delta_orthogonal(v, conv, 1.3);
+    CHECK_FALSE(off);
+    CHECK_MESSAGE(off.explain().find("at output 2, input 5, tap 0") != std::string::npos, off.explain());
+  }
+  SUBCASE("two groups, spatial-input-output: each group's block is orthogonal, the whole is not") {
+    const convolution conv(8, 8, {3, 3}, 2, weight_layout::spatial_in_out);  // [3, 3, 4, 8]
+    std::vector<double> w(3 * 3 * 4 * 8);
+    const strided_view<double> v(w.data(), shape(3, 3, 4, 8));
+    initialize(v, conv, delta_orthogonal{}, make_stream(6, "d"));
+    const audit_report ok = check_delta_orthogonal(v, conv);
+    CHECK_MESSAGE(ok, ok.explain());
+  }
+  SUBCASE("an orthogonal kernel spread over every tap is not delta-orthogonal") {
+    const convolution conv(8, 4, {3});
+    std::vector<double> w(4 * 8 * 3);
+    const strided_view<double> v(w.data(), shape(4, 8, 3));
+    initialize(v, conv, orthogonal{}, make_stream(7, "q"));
+    CHECK(check_orthogonal(v, 1.0, 1e-9, weight_layout::out_in_spatial));
+    const audit_report r = check_delta_orthogonal(v, conv);
+    CHECK_FALSE(r);
+    CHECK(r.explain().find("taps other than the centre are nonzero") != std::string::npos);
+  }
+  SUBCASE("bad arguments") {
+    std::vector<float> w(4 * 4 * 3, 0.0f);
+    const strided_view<float> v(w.data(), shape(4, 4, 3));
+    CHECK_THROWS_AS(check_delta_orthogonal(v, convolution(4, 4, {3}), 0.0), std::domain_error);
+    CHECK_THROWS_WITH_AS(check_delta_orthogonal(strided_view<float>(w.data(), shape(4, 12)), dense(12, 4)),
+                         doctest::Contains("argument 'layout' = out_in, expected a convolution layout"),
+                         std::invalid_argument);
+    CHECK_THROWS_AS(check_delta_orthogonal(v.sub(region(shape(0, 0, 0), shape(2, 4, 3))), convolution(4, 4, {3})),
+                    std::invalid_argument);
+  }
+}

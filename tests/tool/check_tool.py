@@ -54,6 +54,10 @@ if CASE == "exit-codes":
     expect_code(0, "check", "w.npy", "--identify")
     expect_code(1, "check", "w.npy", "--expect", "glorot-normal")           # wrong scheme: a failed check
     expect_code(1, "check", "w.npy", "--expect", "he-normal", "--fan-in", "128")  # wrong fan
+    expect_code(0, "draw", "--scheme", "delta-orthogonal", "--shape", "16x8x3x3", "-o", "d.npy")
+    expect_code(0, "check", "d.npy", "--expect", "delta-orthogonal")
+    expect_code(0, "draw", "--scheme", "orthogonal", "--shape", "16x8x3x3", "-o", "q.npy")
+    expect_code(1, "check", "q.npy", "--expect", "delta-orthogonal")        # nonzero taps off the centre
     expect_code(0, "draw", "--scheme", "zeros", "--shape", "16x8", "-o", "z.npy")
     expect_code(1, "check", "z.npy")                                          # symmetry fails on zeros
     expect_code(0, "plan")

@@ -4,6 +4,9 @@
 //     has orthonormal rows or columns times the gain: Q Qᵀ = gain² I when it is wide or
 //     square, Qᵀ Q = gain² I when it is tall (orthogonal initialization; Saxe et al.
 //     2014, from memory). The tolerance is on max |G - gain² I| / gain².
+//   check_delta_orthogonal: a convolution kernel is zero at every tap but the centre,
+//     and each group's centre-tap block (out/groups x in) is orthogonal times the gain
+//     as above (delta-orthogonal initialization; Xiao et al., ICML 2018, from memory).
 //   check_sparsity: every unit has exactly k nonzero incoming weights (Martens 2010).
 #ifndef KINDLING_AUDIT_STRUCTURE_HPP
 #define KINDLING_AUDIT_STRUCTURE_HPP
@@ -12,25 +15,78 @@
 #include <cstdint>
 #include <stdexcept>
 #include <string>
+#include <utility>
 #include <vector>
 
+#include "../schemes/detail/centre_tap.hpp"
 #include "detail/gather.hpp"
 #include "result.hpp"
 
 namespace kindling {
 
+namespace detail {
+
+inline void check_gain_and_tolerance(const char* where, double gain, double tolerance) {
+  if (!std::isfinite(gain) || gain == 0) {
+    throw std::domain_error(std::string("kindling::") + where + ": argument 'gain' = " + std::to_string(gain) +
+                            ", expected a finite nonzero number");
+  }
+  if (!std::isfinite(tolerance) || !(tolerance > 0)) {
+    throw std::domain_error(std::string("kindling::") + where + ": argument 'tolerance' = " +
+                            std::to_string(tolerance) + ", expected a finite number > 0");
+  }
+}
+
+// The worst entry of the Gram matrix of the shorter side of a rows x cols matrix
+// (at(r, c)) against gain² I, relative to gain².
+struct gram_error {
+  double worst = 0;
+  std::uint64_t a = 0, b = 0;
+  bool by_rows = true;
+};
+template <class At>
+gram_error worst_gram_error(std::uint64_t rows, std::uint64_t cols, const At& at, double gain) {
+  gram_error e;
+  e.by_rows = rows <= cols;
+  const std::uint64_t n = e.by_rows ? rows : cols, m = e.by_rows ? cols : rows;
+  const auto side = [&](std::uint64_t x, std::uint64_t k) { return e.by_rows ? at(x, k) : at(k, x); };
+  const double g2 = gain * gain;
+  for (std::uint64_t a = 0; a < n; ++a) {
+    for (std::uint64_t b = a; b < n; ++b) {
+      double dot = 0;
+      for (std::uint64_t k = 0; k < m; ++k) dot += side(a, k) * side(b, k);
+      const double err = std::abs(dot - (a == b ? g2 : 0.0)) / g2;
+      if (err > e.worst) {
+        e.worst = err;
+        e.a = a;
+        e.b = b;
+      }
+    }
+  }
+  return e;
+}
+
+inline audit_finding orthogonal_finding(const char* name, const std::string& what, const gram_error& e, double gain,
+                                  double tolerance) {
+  const std::string side = (what.empty() ? "" : what + " ") + (e.by_rows ? "rows" : "columns");
+  const bool ok = e.worst <= tolerance;
+  return {name, ok,
+          ok ? "the " + side + " are orthogonal with norm gain (largest error " + short_number(e.worst, 3) +
+                   " of gain²)"
+             : "the " + side + " are not orthonormal times the gain: entry (" + std::to_string(e.a) + ", " +
+                   std::to_string(e.b) + ") of the Gram matrix is off by " + short_number(e.worst, 3) +
+                   " of gain² " + short_number(gain * gain, 6) + ", more than the tolerance " +
+                   short_number(tolerance, 3),
+          e.worst};
+}
+
+}  // namespace detail
+
 /// Q Qᵀ (or Qᵀ Q) against gain² I, entry by entry.
 template <class E>
 audit_report check_orthogonal(const strided_view<E>& v, double gain = 1, double tolerance = 1e-5,
                               weight_layout layout = weight_layout::out_in) {
-  if (!std::isfinite(gain) || gain == 0) {
-    throw std::domain_error("kindling::check_orthogonal: argument 'gain' = " + std::to_string(gain) +
-                            ", expected a finite nonzero number");
-  }
-  if (!std::isfinite(tolerance) || !(tolerance > 0)) {
-    throw std::domain_error("kindling::check_orthogonal: argument 'tolerance' = " + std::to_string(tolerance) +
-                            ", expected a finite number > 0");
-  }
+  detail::check_gain_and_tolerance("check_orthogonal", gain, tolerance);
   const detail::gathered g = detail::gather(v, layout);
   detail::require_whole(g, "check_orthogonal");
   audit_report report("orthogonality of " + std::to_string(g.rows) + " units of " + std::to_string(g.cols) +
@@ -40,38 +96,83 @@ audit_report check_orthogonal(const strided_view<E>& v, double gain = 1, double 
     return report;
   }
   report.add({"finite", true, "all values are finite"});
-  // Gram matrix of the shorter side: rows when wide or square, columns when tall.
-  const bool by_rows = g.rows <= g.cols;
-  const std::uint64_t n = by_rows ? g.rows : g.cols, m = by_rows ? g.cols : g.rows;
-  const auto at = [&](std::uint64_t a, std::uint64_t k) {
-    return by_rows ? g.values[a * g.cols + k] : g.values[k * g.cols + a];
-  };
-  const double g2 = gain * gain;
-  double worst = 0;
-  std::uint64_t worst_a = 0, worst_b = 0;
-  for (std::uint64_t a = 0; a < n; ++a) {
-    for (std::uint64_t b = a; b < n; ++b) {
-      double dot = 0;
-      for (std::uint64_t k = 0; k < m; ++k) dot += at(a, k) * at(b, k);
-      const double err = std::abs(dot - (a == b ? g2 : 0.0)) / g2;
-      if (err > worst) {
-        worst = err;
-        worst_a = a;
-        worst_b = b;
+  const auto at = [&](std::uint64_t r, std::uint64_t c) { return g.values[r * g.cols + c]; };
+  report.add(detail::orthogonal_finding("orthogonal", "", detail::worst_gram_error(g.rows, g.cols, at, gain), gain,
+                                        tolerance));
+  return report;
+}
+
+/// A delta-orthogonal convolution kernel: exactly zero at every tap but the centre
+/// (floor(k/2) in each spatial axis), and each group's centre block orthogonal times the
+/// gain. w gives the fans (for the groups) and the layout, as for initialize().
+template <class E>
+audit_report check_delta_orthogonal(const strided_view<E>& v, const weight_info& w, double gain = 1,
+                                    double tolerance = 1e-5) {
+  detail::check_gain_and_tolerance("check_delta_orthogonal", gain, tolerance);
+  const detail::centre_tap_geometry geo =
+      detail::centre_tap_geometry::of(v.global_shape(), w, "check_delta_orthogonal");
+  const detail::gathered g = detail::gather(v, w.layout);
+  detail::require_whole(g, "check_delta_orthogonal");
+  audit_report report("delta-orthogonality of " + std::to_string(geo.out) + " output channels, " +
+                      std::to_string(geo.in) + " input channels a group, " + std::to_string(geo.taps) +
+                      " taps, " + std::to_string(geo.groups) + " group(s), gain " + detail::short_number(gain, 6));
+  if (g.non_finite != 0) {
+    report.add({"finite", false, detail::non_finite_sentence(g) + "; delta-orthogonality was not checked"});
+    return report;
+  }
+  report.add({"finite", true, "all values are finite"});
+  // The centre tap as an out x in matrix, and the nonzero values at the other taps.
+  std::vector<double> centre(static_cast<std::size_t>(geo.out * geo.in), 0.0);
+  std::uint64_t off_centre = 0, first_o = 0, first_j = 0, first_t = 0;
+  double first_value = 0;
+  const detail::unit_matrix um(v.global_shape(), w.layout);
+  detail::centre_tap_walk tap(geo, 0);
+  detail::unit_walk unit(um, 0);
+  for (std::uint64_t i = 0; i < g.values.size(); ++i, tap.next(), unit.next()) {
+    const double x = g.values[static_cast<std::size_t>(unit.row() * g.cols + unit.col())];
+    if (tap.tap() == geo.centre) {
+      centre[static_cast<std::size_t>(tap.out() * geo.in + tap.in())] = x;
+    } else if (x != 0) {
+      if (off_centre == 0) {
+        first_o = tap.out();
+        first_j = tap.in();
+        first_t = tap.tap();
+        first_value = x;
       }
+      ++off_centre;
     }
   }
-  const std::string side = by_rows ? "rows" : "columns";
-  const bool ok = worst <= tolerance;
-  report.add({"orthogonal", ok,
-              ok ? "the " + side + " are orthogonal with norm gain (largest error " + detail::short_number(worst, 3) +
-                       " of gain²)"
-                 : "the " + side + " are not orthonormal times the gain: entry (" + std::to_string(worst_a) + ", " +
-                       std::to_string(worst_b) + ") of the Gram matrix is off by " +
-                       detail::short_number(worst, 3) + " of gain² " + detail::short_number(g2, 6) +
-                       ", more than the tolerance " + detail::short_number(tolerance, 3),
-              worst});
+  report.add({"zero-off-centre", off_centre == 0,
+              off_centre == 0
+                  ? "every tap but the centre (" + std::to_string(geo.centre) + ") is exactly zero"
+                  : std::to_string(off_centre) + " values at taps other than the centre are nonzero (the first: " +
+                        detail::short_number(first_value, 6) + " at output " + std::to_string(first_o) + ", input " +
+                        std::to_string(first_j) + ", tap " + std::to_string(first_t) + "; the centre is tap " +
+                        std::to_string(geo.centre) + ")",
+              static_cast<double>(off_centre)});
+  // Each group's block: rows o of that group, columns the group's in channels.
+  const std::uint64_t per = geo.out_per_group();
+  detail::gram_error worst;
+  std::uint64_t worst_group = 0;
+  for (std::uint64_t k = 0; k < geo.groups; ++k) {
+    const double* block = centre.data() + k * per * geo.in;
+    const auto at = [&](std::uint64_t r, std::uint64_t c) { return block[r * geo.in + c]; };
+    const detail::gram_error e = detail::worst_gram_error(per, geo.in, at, gain);
+    if (k == 0 || e.worst > worst.worst) {
+      worst = e;
+      worst_group = k;
+    }
+  }
+  const std::string what = geo.groups == 1 ? "centre-tap" : "group " + std::to_string(worst_group) + " centre-tap";
+  report.add(detail::orthogonal_finding("orthogonal-centre", what, worst, gain, tolerance));
   return report;
+}
+
+/// check_delta_orthogonal of a layer's weight (its fans and layout).
+template <class E, class Layer, class = decltype(std::declval<const Layer&>().layer_fans())>
+audit_report check_delta_orthogonal(const strided_view<E>& v, const Layer& layer, double gain = 1,
+                                    double tolerance = 1e-5) {
+  return check_delta_orthogonal(v, weight_info{layer.layer_fans(), detail::layout_of(layer)}, gain, tolerance);
 }
 
 /// Exactly k nonzero incoming weights in every unit.
