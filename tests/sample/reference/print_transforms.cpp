@@ -1,6 +1,8 @@
 // Prints kindling's values for tests/sample/scipy_reference.py, which checks them
-// against scipy.stats and numpy. Not a doctest file (hence .cc): a tiny program run by
-// the ctest entry "sample: scipy reference ..." (tests/sample/extra.cmake).
+// against scipy.stats and numpy, run by the ctest entry "sample: scipy reference ..."
+// (tests/sample/extra.cmake). Not a doctest file: reference/ is outside the glob of
+// tests/CMakeLists.txt, so this program keeps its own main (built by
+// kindling_reference_check).
 //
 // Output lines, whitespace separated, numbers in C99 hex floats (exact):
 //   cdf X PHI                      kindling::detail::normal_cdf
