@@ -52,18 +52,34 @@ struct declared {
   }
 };
 
-inline declared declare(const dist::uniform& d) {
+struct declared_moments {
+  double mean, variance, fourth;  // fourth central moment
+};
+
+// The frame every declare() shares: validate d first, then the family and its parameters
+// a, b, the moments that `moments(r)` returns (it may set the family's own fields of r
+// first) and d's element bounds.
+template <class D, class Moments>
+declared declare_with(const D& d, declared_family family, double a, double b, Moments moments) {
   validate(d);
   declared r;
-  r.family = declared_family::uniform;
-  r.a = d.lo;
-  r.b = d.hi;
-  const double w = d.hi - d.lo;
-  r.mean = 0.5 * (d.lo + d.hi);
-  r.variance = w * w / 12;           // uniform: Var = w²/12, μ4 = w⁴/80 (standard formulas)
-  r.fourth = w * w * w * w / 80;
+  r.family = family;
+  r.a = a;
+  r.b = b;
+  const declared_moments m = moments(r);
+  r.mean = m.mean;
+  r.variance = m.variance;
+  r.fourth = m.fourth;
   r.bounds = bounds_of(d);
   return r;
+}
+
+inline declared declare(const dist::uniform& d) {
+  return declare_with(d, declared_family::uniform, d.lo, d.hi, [&](declared&) {
+    const double w = d.hi - d.lo;
+    // uniform: Var = w²/12, μ4 = w⁴/80 (standard formulas)
+    return declared_moments{0.5 * (d.lo + d.hi), w * w / 12, w * w * w * w / 80};
+  });
 }
 inline declared declare(const dist::symmetric_uniform& d) {
   declared r = declare(dist::uniform{-d.bound, d.bound});
@@ -71,46 +87,34 @@ inline declared declare(const dist::symmetric_uniform& d) {
   return r;
 }
 inline declared declare(const dist::normal& d) {
-  validate(d);
-  declared r;
-  r.family = declared_family::normal;
-  r.a = d.mean;
-  r.b = d.stddev;
-  r.mean = d.mean;
-  r.variance = d.stddev * d.stddev;
-  r.fourth = 3 * r.variance * r.variance;
-  r.bounds = bounds_of(d);
-  return r;
+  return declare_with(d, declared_family::normal, d.mean, d.stddev, [&](declared&) {
+    const double variance = d.stddev * d.stddev;
+    return declared_moments{d.mean, variance, 3 * variance * variance};
+  });
 }
 // Raw moments of the standard normal cut to [lo, hi] by the recurrence
 // m_k = (k-1) m_{k-2} - (hi^{k-1} φ(hi) - lo^{k-1} φ(lo)) / Z (integration by parts;
 // Johnson, Kotz & Balakrishnan, Continuous Univariate Distributions vol. 1, ch. 13).
 inline declared declare(const dist::truncated_normal& d) {
-  validate(d);
-  declared r;
-  r.family = declared_family::truncated_normal;
-  r.a = d.mean;
-  r.b = d.stddev;
-  r.cut_lo = d.cut_lo;
-  r.cut_hi = d.cut_hi;
-  r.phi_lo = std::isinf(d.cut_lo) ? 0.0 : normal_cdf(d.cut_lo);
-  r.mass = (std::isinf(d.cut_hi) ? 1.0 : normal_cdf(d.cut_hi)) - r.phi_lo;
-  auto edge = [&](int power) {  // hi^p φ(hi) - lo^p φ(lo), zero at infinite cuts
-    const double h = std::isinf(d.cut_hi) ? 0.0 : std::pow(d.cut_hi, power) * normal_pdf(d.cut_hi);
-    const double l = std::isinf(d.cut_lo) ? 0.0 : std::pow(d.cut_lo, power) * normal_pdf(d.cut_lo);
-    return (h - l) / r.mass;
-  };
-  const double m1 = -edge(0);
-  const double m2 = 1 - edge(1);
-  const double m3 = 2 * m1 - edge(2);
-  const double m4 = 3 * m2 - edge(3);
-  const double var = m2 - m1 * m1;
-  const double c4 = m4 - 4 * m1 * m3 + 6 * m1 * m1 * m2 - 3 * m1 * m1 * m1 * m1;
-  r.mean = d.mean + d.stddev * m1;
-  r.variance = d.stddev * d.stddev * var;
-  r.fourth = std::pow(d.stddev, 4) * c4;
-  r.bounds = bounds_of(d);
-  return r;
+  return declare_with(d, declared_family::truncated_normal, d.mean, d.stddev, [&](declared& r) {
+    r.cut_lo = d.cut_lo;
+    r.cut_hi = d.cut_hi;
+    r.phi_lo = std::isinf(d.cut_lo) ? 0.0 : normal_cdf(d.cut_lo);
+    r.mass = (std::isinf(d.cut_hi) ? 1.0 : normal_cdf(d.cut_hi)) - r.phi_lo;
+    auto edge = [&](int power) {  // hi^p φ(hi) - lo^p φ(lo), zero at infinite cuts
+      const double h = std::isinf(d.cut_hi) ? 0.0 : std::pow(d.cut_hi, power) * normal_pdf(d.cut_hi);
+      const double l = std::isinf(d.cut_lo) ? 0.0 : std::pow(d.cut_lo, power) * normal_pdf(d.cut_lo);
+      return (h - l) / r.mass;
+    };
+    const double m1 = -edge(0);
+    const double m2 = 1 - edge(1);
+    const double m3 = 2 * m1 - edge(2);
+    const double m4 = 3 * m2 - edge(3);
+    const double var = m2 - m1 * m1;
+    const double c4 = m4 - 4 * m1 * m3 + 6 * m1 * m1 * m2 - 3 * m1 * m1 * m1 * m1;
+    return declared_moments{d.mean + d.stddev * m1, d.stddev * d.stddev * var,
+                            std::pow(d.stddev, 4) * c4};
+  });
 }
 
 }  // namespace kindling::detail
