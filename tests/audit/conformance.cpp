@@ -192,5 +192,9 @@ TEST_CASE("bad input to the conformance checks is refused before anything is rea
   }
   SUBCASE("an invalid declared distribution") {
     CHECK(!message_of<std::domain_error>([&] { (void)check_distribution(v, dist::normal{0, -1}); }).empty());
+    // A symmetric uniform is checked as a uniform, but the error names its own field.
+    const std::string bound = message_of<std::domain_error>([&] { (void)check_distribution(v, dist::symmetric_uniform{-1}); });
+    CHECK_MESSAGE(mentions(bound, "symmetric_uniform"), bound);
+    CHECK_MESSAGE(mentions(bound, "bound"), bound);
   }
 }

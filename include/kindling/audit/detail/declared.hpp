@@ -82,6 +82,7 @@ inline declared declare(const dist::uniform& d) {
   });
 }
 inline declared declare(const dist::symmetric_uniform& d) {
+  dist::validate(d);  // its own message (naming 'bound'), not the uniform's it becomes
   declared r = declare(dist::uniform{-d.bound, d.bound});
   r.bounds = bounds_of(d);
   return r;
