@@ -10,7 +10,8 @@
 //
 // Counts are std::uint64_t and limited to 2^53, so that a scheme converting them to
 // double gets them exactly; a larger product throws std::length_error.
-#pragma once
+#ifndef KINDLING_FAN_HPP
+#define KINDLING_FAN_HPP
 
 #include <cstddef>
 #include <cstdint>
@@ -581,3 +582,5 @@ inline fans fans_from_shape(const std::vector<std::uint64_t>& shape, weight_layo
 }
 
 }  // namespace kindling
+
+#endif  // KINDLING_FAN_HPP

@@ -11,7 +11,8 @@
 //
 // Besides computed gains there is a table (table_gain) with the values in wide use and
 // where each comes from.
-#pragma once
+#ifndef KINDLING_GAIN_HPP
+#define KINDLING_GAIN_HPP
 
 #include <cmath>
 #include <cstddef>
@@ -407,3 +408,5 @@ inline gain_entry table_gain(const activation& a) {
 }
 
 }  // namespace kindling
+
+#endif  // KINDLING_GAIN_HPP

@@ -19,7 +19,8 @@
 // integrands with a kink, where Gauss-Hermite converges slowly.  Nodes by Newton's
 // method on the Legendre recurrence (A&S 22.7.10), weights 2 / ((1 - x^2) P_n'(x)^2)
 // (A&S 25.4.29).
-#pragma once
+#ifndef KINDLING_DETAIL_GAUSS_HERMITE_HPP
+#define KINDLING_DETAIL_GAUSS_HERMITE_HPP
 
 #include <cmath>
 #include <cstddef>
@@ -166,3 +167,5 @@ inline quadrature_rule gauss_legendre_rule(std::size_t n) {
 }
 
 }  // namespace kindling::detail
+
+#endif  // KINDLING_DETAIL_GAUSS_HERMITE_HPP

@@ -12,7 +12,8 @@
 // log grid (8 points a decade from 1e-8 to 1e8 above sigma_b^2), take the first sign
 // change of chi(q) - 1 and bisect it to the last bit.  With sigma_b^2 = 0 and phi(0) = 0,
 // q* = 0 is the fixed point and sigma_w^2 is the q -> 0 limit q / E[phi(sqrt(q) z)^2].
-#pragma once
+#ifndef KINDLING_PROPAGATE_CRITICALITY_HPP
+#define KINDLING_PROPAGATE_CRITICALITY_HPP
 
 #include <cmath>
 #include <limits>
@@ -107,3 +108,5 @@ inline critical_point find_critical_point(const nonlinearity& phi, double sigma_
 }
 
 }  // namespace kindling
+
+#endif  // KINDLING_PROPAGATE_CRITICALITY_HPP

@@ -29,7 +29,8 @@
 // every layer is checked for the other three.  Two rows count as equal when their
 // largest difference is at most options.identical times their largest entry (Eigen's
 // products may round rows that are mathematically equal differently in the last bit).
-#pragma once
+#ifndef KINDLING_PROPAGATE_DIAGNOSE_HPP
+#define KINDLING_PROPAGATE_DIAGNOSE_HPP
 
 #include <Eigen/Dense>
 
@@ -319,3 +320,5 @@ audit_report diagnose_initialization(const layer_stack& stack, const realized_st
 }
 
 }  // namespace kindling
+
+#endif  // KINDLING_PROPAGATE_DIAGNOSE_HPP

@@ -3,7 +3,8 @@
 // layers each, initialize the branch layers by a standard scheme (He), then scale the
 // first m - 1 layers of every branch by L^(-1/(2m-2)) and set the last layer of each
 // branch to zero.
-#pragma once
+#ifndef KINDLING_PROPAGATE_FIXUP_HPP
+#define KINDLING_PROPAGATE_FIXUP_HPP
 
 #include <cmath>
 #include <cstdint>
@@ -62,3 +63,5 @@ double apply_fixup(const std::vector<strided_view<E>>& branch, std::uint64_t bra
 }
 
 }  // namespace kindling
+
+#endif  // KINDLING_PROPAGATE_FIXUP_HPP

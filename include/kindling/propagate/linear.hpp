@@ -6,7 +6,8 @@
 //   Var[dC/dz^i]   = Var[dC/dz^d] prod_{i' > i} n_{i'+1} Var[W^{i'}]     (fan-out)
 // They ignore the activations and biases of the stack on purpose: they are the
 // reference against which a nonlinearity's effect is judged.
-#pragma once
+#ifndef KINDLING_PROPAGATE_LINEAR_HPP
+#define KINDLING_PROPAGATE_LINEAR_HPP
 
 #include <vector>
 
@@ -46,3 +47,5 @@ inline linear_products glorot_products(const layer_stack& stack,
 }
 
 }  // namespace kindling
+
+#endif  // KINDLING_PROPAGATE_LINEAR_HPP

@@ -25,7 +25,8 @@
 // value before the call (a copy of all weights is kept for that) and the exception
 // propagates.  Stopping at the cap is not an error: the weights keep their last
 // rescaling and the report says so.
-#pragma once
+#ifndef KINDLING_PROPAGATE_LSUV_HPP
+#define KINDLING_PROPAGATE_LSUV_HPP
 
 #include <Eigen/Core>
 
@@ -342,3 +343,5 @@ lsuv_report lsuv_rescale(const std::vector<lsuv_layer<E>>& layers, const lsuv_op
 }
 
 }  // namespace kindling
+
+#endif  // KINDLING_PROPAGATE_LSUV_HPP

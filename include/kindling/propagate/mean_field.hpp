@@ -13,7 +13,8 @@
 //     xi_c = -1 / ln chi        (correlation depth scale, Schoenholz et al. eq. 9)
 //     xi_q = -1 / ln F'(q*)     (length depth scale: how fast q_l reaches q*)
 // chi = 1 is the edge of chaos, where xi_c diverges (criticality.hpp solves for it).
-#pragma once
+#ifndef KINDLING_PROPAGATE_MEAN_FIELD_HPP
+#define KINDLING_PROPAGATE_MEAN_FIELD_HPP
 
 #include <cmath>
 #include <cstdio>
@@ -217,3 +218,5 @@ inline std::vector<layer_prediction> predict(const layer_stack& stack,
 }
 
 }  // namespace kindling
+
+#endif  // KINDLING_PROPAGATE_MEAN_FIELD_HPP

@@ -20,7 +20,8 @@
 //
 // Reproducible from the seed: the batch is cut into fixed tasks of 32 columns whatever
 // the executor, so a serial and a threaded run give the same bits.
-#pragma once
+#ifndef KINDLING_PROPAGATE_MEASURE_HPP
+#define KINDLING_PROPAGATE_MEASURE_HPP
 
 #include <Eigen/Dense>
 
@@ -298,3 +299,5 @@ propagation_report compare_propagation(const layer_stack& stack, std::uint64_t b
 }
 
 }  // namespace kindling
+
+#endif  // KINDLING_PROPAGATE_MEASURE_HPP

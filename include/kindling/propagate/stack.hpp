@@ -9,7 +9,8 @@
 // Dense layers take their fans from `dense`; convolutions from `convolution` (fan_in =
 // in/groups * receptive field, fan_out = out/groups * receptive field): the analyses
 // only need the fans, the measured pass only handles dense layers.
-#pragma once
+#ifndef KINDLING_PROPAGATE_STACK_HPP
+#define KINDLING_PROPAGATE_STACK_HPP
 
 #include <cmath>
 #include <cstdint>
@@ -310,3 +311,5 @@ inline double weight_variance_of(const fixed_uniform& s, const fans&) {
 }
 
 }  // namespace kindling
+
+#endif  // KINDLING_PROPAGATE_STACK_HPP
