@@ -269,8 +269,8 @@ struct writes_elements<
         instruction_set::scalar, std::uint64_t{}, std::uint64_t{}, std::declval<E*>(),
         compute_type_t<E>{}, compute_type_t<E>{}, false))>> : std::true_type {};
 
-// The generator fill() uses: the runs of a prepared distribution, and for float
-// elements the direct writer of whole groups.
+// The generator fill() uses: the runs of a prepared distribution, and for float and
+// bfloat16 elements the direct writer of whole groups.
 template <class Kernel, class C>
 struct distribution_runs {
   const Kernel& kernel;
@@ -279,10 +279,16 @@ struct distribution_runs {
   void operator()(std::uint64_t first, std::size_t n, C* out) const {
     generate_run(kernel, s, dom, first, n, out);
   }
-  template <class T, class = std::enable_if_t<std::is_same<T, float>::value && std::is_same<C, float>::value>>
+  template <class T, class = std::enable_if_t<(std::is_same<T, float>::value || std::is_same<T, bfloat16>::value) &&
+                                              std::is_same<C, float>::value>>
   bool elements(instruction_set isa, std::uint64_t g0, std::uint64_t count, T* dst, float hi_max,
                 float lo_min, bool streaming) const noexcept {
-    return vector_elements(isa, kernel, s, dom, g0, count, dst, hi_max, lo_min, streaming);
+    if constexpr (std::is_same<T, float>::value) {
+      return vector_elements(isa, kernel, s, dom, g0, count, dst, hi_max, lo_min, streaming);
+    } else {
+      return vector_elements(isa, kernel, s, dom, g0, count, reinterpret_cast<std::uint16_t*>(dst), hi_max,
+                             lo_min, streaming);
+    }
   }
 };
 

@@ -10,6 +10,7 @@
 #include <cstring>
 #include <limits>
 #include <string>
+#include <type_traits>
 #include <vector>
 
 #include "kindling/element.hpp"
@@ -197,53 +198,70 @@ TEST_CASE("the threshold rounder and the vector stores give from_compute's bits"
   }
 }
 
-// The direct writer (lanes.hpp groups_f32_elements, fill's path for whole groups of
-// float elements) against generate + from_compute, at every alignment of the
-// destination modulo a 64-byte line, with and without non-temporal stores; the guard
-// elements on both sides must stay untouched.
-template <class D>
+// The direct writers (lanes.hpp groups_f32_elements and groups_bf16_elements, fill's
+// path for whole groups of float and bfloat16 elements) against generate +
+// from_compute, at every alignment of the destination modulo a 64-byte line, with and
+// without non-temporal stores; the guard elements on both sides must stay untouched.
+template <class E, class Kernel>
+bool direct_elements(instruction_set isa, const Kernel& kernel, const kindling::stream& s, std::uint64_t g0,
+                     std::uint64_t groups, E* dst, float hi_max, float lo_min, bool streaming) {
+  if constexpr (std::is_same<E, float>::value) {
+    return kd::vector_elements(isa, kernel, s, 0, g0, groups, dst, hi_max, lo_min, streaming);
+  } else {
+    return kd::vector_elements(isa, kernel, s, 0, g0, groups, reinterpret_cast<std::uint16_t*>(dst), hi_max,
+                               lo_min, streaming);
+  }
+}
+
+template <class E, class D>
 void check_direct_writer(const D& d, const char* name) {
   const auto s = kindling::make_stream(7, "pump.bearing.kernel");
   const auto kernel = kd::prepare<float>(d);
-  const kd::element_rounder<float> rounder(dist::bounds_of(d));
+  const kd::element_rounder<E> rounder(dist::bounds_of(d));
   REQUIRE(rounder.thresholds);
   const std::uint64_t g0 = 5, groups = 3;
   const std::size_t n = static_cast<std::size_t>(groups * 64);
   std::vector<float> c(n);
   kd::generate_run_on(instruction_set::scalar, kernel, s, 0, g0 * 64, n, c.data());
-  const float guard = -1234.5f;
+  const E guard = kindling::element_traits<E>::from_compute(-1234.5f, kindling::unbounded);
+  constexpr std::size_t per_line = 64 / sizeof(E);
   for (instruction_set isa : vector_paths()) {
     for (bool streaming : {false, true}) {
-      for (std::size_t shift = 0; shift < 16; ++shift) {
-        std::vector<float> storage(n + 64, guard);
-        float* base = storage.data();
-        while (reinterpret_cast<std::uintptr_t>(base) % 64 != 0) ++base;  // storage has 64 spare
-        float* const dst = base + shift;
+      for (std::size_t shift = 0; shift < per_line; ++shift) {
+        std::vector<E> storage(n + 2 * per_line, guard);
+        E* base = storage.data();
+        while (reinterpret_cast<std::uintptr_t>(base) % 64 != 0) ++base;  // storage has a spare line
+        E* const dst = base + shift;
         const std::size_t before = static_cast<std::size_t>(dst - storage.data());
         REQUIRE(before + n <= storage.size());
-        if (!kd::vector_elements(isa, kernel, s, 0, g0, groups, dst, rounder.hi_max, rounder.lo_min,
-                                 streaming))
+        if (!direct_elements(isa, kernel, s, g0, groups, dst, rounder.hi_max, rounder.lo_min, streaming))
           continue;  // this path has no direct writer; fill uses the buffer
         kd::store_fence();
         bool values = true, guards = true;
         for (std::size_t k = 0; k < n; ++k)
-          values = values && same_bits(dst[k], kindling::element_traits<float>::from_compute(c[k], dist::bounds_of(d)));
+          values = values && same_bits(dst[k], kindling::element_traits<E>::from_compute(c[k], dist::bounds_of(d)));
         for (std::size_t k = 0; k < storage.size(); ++k)
           if (k < before || k >= before + n) guards = guards && same_bits(storage[k], guard);
-        CHECK_MESSAGE(values, name << " on " << kd::instruction_set_name(isa) << ", shift " << shift
+        CHECK_MESSAGE(values, name << " (" << kindling::element_traits<E>::name << ") on "
+                                   << kd::instruction_set_name(isa) << ", shift " << shift
                                    << (streaming ? ", streaming" : "") << ": expected from_compute's bits");
-        CHECK_MESSAGE(guards, name << " on " << kd::instruction_set_name(isa) << ", shift " << shift
+        CHECK_MESSAGE(guards, name << " (" << kindling::element_traits<E>::name << ") on "
+                                   << kd::instruction_set_name(isa) << ", shift " << shift
                                    << (streaming ? ", streaming" : "") << ": expected nothing written outside");
       }
     }
   }
 }
 
-TEST_CASE("the direct element writer gives from_compute's bits at every alignment, nothing outside") {
-  check_direct_writer(dist::uniform{1.0, 1.0000001}, "narrow uniform (values step inside)");
-  check_direct_writer(dist::symmetric_uniform{0.1}, "symmetric_uniform");
-  check_direct_writer(dist::normal{0.25, 1.5}, "normal");
-  check_direct_writer(dist::truncated_normal{0.0, 1.0, 4.0, 4.001}, "narrow far truncated normal");
+TEST_CASE("the direct element writers give from_compute's bits at every alignment, nothing outside") {
+  check_direct_writer<float>(dist::uniform{1.0, 1.0000001}, "narrow uniform (values step inside)");
+  check_direct_writer<float>(dist::symmetric_uniform{0.1}, "symmetric_uniform");
+  check_direct_writer<float>(dist::normal{0.25, 1.5}, "normal");
+  check_direct_writer<float>(dist::truncated_normal{0.0, 1.0, 4.0, 4.001}, "narrow far truncated normal");
+  check_direct_writer<kindling::bfloat16>(dist::uniform{1.0, 1.01}, "narrow uniform (values step inside)");
+  check_direct_writer<kindling::bfloat16>(dist::symmetric_uniform{0.1}, "symmetric_uniform");
+  check_direct_writer<kindling::bfloat16>(dist::normal{0.25, 1.5}, "normal");
+  check_direct_writer<kindling::bfloat16>(dist::truncated_normal{0.0, 1.0, 4.0, 4.1}, "narrow far truncated normal");
 }
 
 // fill() element by element from dist::generate and from_compute: the definition the

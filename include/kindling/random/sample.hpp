@@ -331,20 +331,26 @@ bool vector_groups(instruction_set isa, const Kernel& k, const philox4x32_key& k
   }
 }
 
-// Whole groups g0 .. g0 + count - 1 of a float kernel written as float elements to dst,
-// moved inside [lo_min, hi_max] (the thresholds of fill's rounder), without a buffer;
-// false when the path has no such writer (nothing is written then).
-template <class Kernel>
+// Whole groups g0 .. g0 + count - 1 of a float kernel written as elements to dst, moved
+// inside [lo_min, hi_max] (the thresholds of fill's rounder), without a buffer; Out is
+// float (float elements) or std::uint16_t (the bits of bfloat16 elements). False when
+// the path has no such writer (nothing is written then).
+template <class Kernel, class Out>
 bool vector_elements(instruction_set isa, const Kernel& k, const stream& s, std::uint32_t domain,
-                     std::uint64_t g0, std::uint64_t count, float* dst, float hi_max,
+                     std::uint64_t g0, std::uint64_t count, Out* dst, float hi_max,
                      float lo_min, bool streaming) noexcept {
-  if constexpr (has_lane_params<Kernel>::value) {
-    return groups_f32_elements(isa, lane_params(k), s.philox_key(), domain, g0, count, dst,
-                               hi_max, lo_min, streaming);
-  } else {
+  static_assert(std::is_same<Out, float>::value || std::is_same<Out, std::uint16_t>::value,
+                "the direct writers store float or bfloat16 bits");
+  if constexpr (!has_lane_params<Kernel>::value) {
     (void)isa, (void)k, (void)s, (void)domain, (void)g0, (void)count, (void)dst, (void)hi_max,
         (void)lo_min, (void)streaming;
     return false;
+  } else if constexpr (std::is_same<Out, float>::value) {
+    return groups_f32_elements(isa, lane_params(k), s.philox_key(), domain, g0, count, dst,
+                               hi_max, lo_min, streaming);
+  } else {
+    return groups_bf16_elements(isa, lane_params(k), s.philox_key(), domain, g0, count, dst,
+                                hi_max, lo_min, streaming);
   }
 }
 

@@ -553,6 +553,24 @@ inline bool groups_f32_elements(instruction_set isa, const P& p, const philox4x3
   return false;
 }
 
+// The same for bfloat16 elements (their bits), rounded as round_store_bf16 does.
+template <class P>
+inline bool groups_bf16_elements(instruction_set isa, const P& p, const philox4x32_key& key,
+                                 std::uint32_t domain, std::uint64_t g0, std::uint64_t count,
+                                 std::uint16_t* dst, float hi_max, float lo_min, bool stream) noexcept {
+#if defined(KINDLING_LANES_X86)
+  if (isa == instruction_set::avx512)
+    return lanes_avx512::groups_to_bf16_elements(p, key, domain, g0, count, dst, hi_max, lo_min, stream),
+           true;
+  if (isa == instruction_set::avx2)
+    return lanes_avx2::groups_to_bf16_elements(p, key, domain, g0, count, dst, hi_max, lo_min, stream),
+           true;
+#endif
+  (void)isa, (void)p, (void)key, (void)domain, (void)g0, (void)count, (void)dst, (void)hi_max,
+      (void)lo_min, (void)stream;
+  return false;
+}
+
 // element_traits<float / bfloat16>::from_compute of src[0 .. n) into dst, with the
 // distribution's bounds given as thresholds in float: hi_max (lo_min) is the largest
 // (smallest) float inside them, so "outside above" is t > hi_max and "outside below"

@@ -314,26 +314,41 @@ inline void groups_to_elements_by_vector(const P& p, const philox4x32_key& key, 
   drive_units(make_unit(p), key, domain, g0, count, sink);
 }
 
+// element.hpp round_to_bfloat16 of the float bits b on each lane (the bfloat16 bits in
+// the low 16 bits of the lane), then the threshold step of inside_f32 on the result.
+inline vu inside_bf16(vu b, vf hm, vf lm) noexcept {
+  const vm nan = u_ge(u_and(b, u_set1(0x7fffffffu)), u_set1(0x7f800001u));
+  const vu rounded = u_srl<16>(u_add(u_add(b, u_set1(0x7fffu)), u_and(u_srl<16>(b), u_set1(1u))));
+  const vu x = u_select(nan, u_or(u_srl<16>(b), u_set1(0x0040u)), rounded);
+  const vf t = f_from_bits(u_sll<16>(x));
+  const vm above = f_lt(hm, t), below = f_lt(t, lm);
+  if (m_none_of(above, below)) return x;
+  const vu sign = u_set1(0x8000u);
+  return u_select(above, step_down_lanes(x, sign), u_select(below, step_up_lanes(x, sign), x));
+}
+
 // lanes.hpp round_store_bf16: element.hpp round_to_bfloat16, then the same step inside.
 inline std::size_t round_store_bf16(const float* src, std::uint16_t* dst, std::size_t n,
                                     float hi_max, float lo_min, bool stream) noexcept {
   const vf hm = f_set1(hi_max), lm = f_set1(lo_min);
-  const vu sign = u_set1(0x8000u);
   const bool nt = stream && reinterpret_cast<std::uintptr_t>(dst) % (2 * lanes) == 0;
   std::size_t k = 0;
-  for (; k + lanes <= n; k += lanes) {
-    const vu b = u_load(src + k);
-    const vm nan = u_ge(u_and(b, u_set1(0x7fffffffu)), u_set1(0x7f800001u));
-    const vu rounded =
-        u_srl<16>(u_add(u_add(b, u_set1(0x7fffu)), u_and(u_srl<16>(b), u_set1(1u))));
-    const vu x = u_select(nan, u_or(u_srl<16>(b), u_set1(0x0040u)), rounded);
-    const vf t = f_from_bits(u_sll<16>(x));
-    const vm above = f_lt(hm, t), below = f_lt(t, lm);
-    const vu y = m_none_of(above, below)
-                     ? x
-                     : u_select(above, step_down_lanes(x, sign),
-                                u_select(below, step_up_lanes(x, sign), x));
-    u16_store_elements(dst + k, y, nt);
-  }
+  for (; k + lanes <= n; k += lanes) u16_store_elements(dst + k, inside_bf16(u_load(src + k), hm, lm), nt);
   return k;
+}
+
+// groups_to_elements_by_vector for bfloat16 elements (the bits, dst[64 k + r] for group
+// g0 + k): each value rounded as round_store_bf16 does, without the pass through a buffer.
+template <class P>
+inline void groups_to_bf16_elements(const P& p, const philox4x32_key& key, std::uint32_t domain,
+                                    std::uint64_t g0, std::uint64_t count, std::uint16_t* dst,
+                                    float hi_max, float lo_min, bool stream) noexcept {
+  const vf hm = f_set1(hi_max), lm = f_set1(lo_min);
+  const bool nt = stream && reinterpret_cast<std::uintptr_t>(dst) % (2 * lanes) == 0;
+  auto sink = [&](std::uint64_t unit, const vf (&v)[4]) {
+    const std::uint64_t first_lane = unit * lanes;  // block offset from 16 g0
+    std::uint16_t* const at = dst + (first_lane / 16) * 64 + first_lane % 16;
+    for (unsigned j = 0; j < 4; ++j) u16_store_elements(at + 16 * j, inside_bf16(u_bits(v[j]), hm, lm), nt);
+  };
+  drive_units(make_unit(p), key, domain, g0, count, sink);
 }
