@@ -56,6 +56,7 @@
 
 #include "../schemes/detail/centre_tap.hpp"
 #include "conformance.hpp"
+#include "detail/centre_taps.hpp"
 #include "kolmogorov.hpp"
 
 namespace kindling {
@@ -178,24 +179,12 @@ inline bool dense_identity(const gathered& g, double* gain) {
 }
 
 // The structure of a convolution kernel whose non-centre taps are all zero: "centre-tap
-// identity" or "delta-orthogonal", or "" when it is neither. Values in global order.
+// identity" or "delta-orthogonal", or "" when it is neither; g gathered in `layout`.
 inline std::string centre_tap_structure(const gathered& g, const centre_tap_geometry& geo, const shape& global,
                                         weight_layout layout, const precision& p, double* gain) {
-  // The centre tap as an out x in matrix, read through the unit matrix's coordinates.
-  const unit_matrix um(global, layout);
-  std::vector<double> centre(static_cast<std::size_t>(geo.out * geo.in), 0.0);
-  const std::uint64_t total = g.rows * g.cols;
-  for (std::uint64_t i = 0; i < total; ++i) {
-    std::uint64_t o = 0, j = 0, t = 0, row = 0, col = 0;
-    geo.locate(i, &o, &j, &t);
-    um.locate(i, &row, &col);
-    const double x = g.values[row * g.cols + col];
-    if (t != geo.centre) {
-      if (x != 0) return "";
-    } else {
-      centre[static_cast<std::size_t>(o * geo.in + j)] = x;
-    }
-  }
+  const centre_taps split = split_centre_taps(g, geo, global, layout, true);
+  if (split.off_centre != 0) return "";
+  const std::vector<double>& centre = split.centre;
   const double c = centre[0];
   bool eye = c != 0 && geo.out_per_group() == geo.in;
   for (std::uint64_t o = 0; o < geo.out && eye; ++o) {

@@ -19,6 +19,7 @@
 #include <vector>
 
 #include "../schemes/detail/centre_tap.hpp"
+#include "detail/centre_taps.hpp"
 #include "detail/gather.hpp"
 #include "result.hpp"
 
@@ -121,33 +122,15 @@ audit_report check_delta_orthogonal(const strided_view<E>& v, const weight_info&
     return report;
   }
   report.add({"finite", true, "all values are finite"});
-  // The centre tap as an out x in matrix, and the nonzero values at the other taps.
-  std::vector<double> centre(static_cast<std::size_t>(geo.out * geo.in), 0.0);
-  std::uint64_t off_centre = 0, first_o = 0, first_j = 0, first_t = 0;
-  double first_value = 0;
-  const detail::unit_matrix um(v.global_shape(), w.layout);
-  detail::centre_tap_walk tap(geo, 0);
-  detail::unit_walk unit(um, 0);
-  for (std::uint64_t i = 0; i < g.values.size(); ++i, tap.next(), unit.next()) {
-    const double x = g.values[static_cast<std::size_t>(unit.row() * g.cols + unit.col())];
-    if (tap.tap() == geo.centre) {
-      centre[static_cast<std::size_t>(tap.out() * geo.in + tap.in())] = x;
-    } else if (x != 0) {
-      if (off_centre == 0) {
-        first_o = tap.out();
-        first_j = tap.in();
-        first_t = tap.tap();
-        first_value = x;
-      }
-      ++off_centre;
-    }
-  }
+  const detail::centre_taps split = detail::split_centre_taps(g, geo, v.global_shape(), w.layout, false);
+  const std::uint64_t off_centre = split.off_centre;
   report.add({"zero-off-centre", off_centre == 0,
               off_centre == 0
                   ? "every tap but the centre (" + std::to_string(geo.centre) + ") is exactly zero"
                   : std::to_string(off_centre) + " values at taps other than the centre are nonzero (the first: " +
-                        detail::short_number(first_value, 6) + " at output " + std::to_string(first_o) + ", input " +
-                        std::to_string(first_j) + ", tap " + std::to_string(first_t) + "; the centre is tap " +
+                        detail::short_number(split.first_value, 6) + " at output " + std::to_string(split.first_out) +
+                        ", input " + std::to_string(split.first_in) + ", tap " + std::to_string(split.first_tap) +
+                        "; the centre is tap " +
                         std::to_string(geo.centre) + ")",
               static_cast<double>(off_centre)});
   // Each group's block: rows o of that group, columns the group's in channels.
@@ -155,7 +138,7 @@ audit_report check_delta_orthogonal(const strided_view<E>& v, const weight_info&
   detail::gram_error worst;
   std::uint64_t worst_group = 0;
   for (std::uint64_t k = 0; k < geo.groups; ++k) {
-    const double* block = centre.data() + k * per * geo.in;
+    const double* block = split.centre.data() + k * per * geo.in;
     const auto at = [&](std::uint64_t r, std::uint64_t c) { return block[r * geo.in + c]; };
     const detail::gram_error e = detail::worst_gram_error(per, geo.in, at, gain);
     if (k == 0 || e.worst > worst.worst) {
