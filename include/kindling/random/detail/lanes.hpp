@@ -560,10 +560,10 @@ inline bool groups_bf16_elements(instruction_set isa, const P& p, const philox4x
                                  std::uint16_t* dst, float hi_max, float lo_min, bool stream) noexcept {
 #if defined(KINDLING_LANES_X86)
   if (isa == instruction_set::avx512)
-    return lanes_avx512::groups_to_bf16_elements(p, key, domain, g0, count, dst, hi_max, lo_min, stream),
+    return lanes_avx512::groups_to_elements_by_vector(p, key, domain, g0, count, dst, hi_max, lo_min, stream),
            true;
   if (isa == instruction_set::avx2)
-    return lanes_avx2::groups_to_bf16_elements(p, key, domain, g0, count, dst, hi_max, lo_min, stream),
+    return lanes_avx2::groups_to_elements_by_vector(p, key, domain, g0, count, dst, hi_max, lo_min, stream),
            true;
 #endif
   (void)isa, (void)p, (void)key, (void)domain, (void)g0, (void)count, (void)dst, (void)hi_max,

@@ -285,35 +285,6 @@ inline vu inside_f32(vu x, vf hm, vf lm) noexcept {
   return u_select(above, step_down_lanes(x, sign), u_select(below, step_up_lanes(x, sign), x));
 }
 
-// lanes.hpp round_store_f32: float elements are the compute values, moved a step inside.
-inline std::size_t round_store_f32(const float* src, float* dst, std::size_t n, float hi_max,
-                                   float lo_min, bool stream) noexcept {
-  const vf hm = f_set1(hi_max), lm = f_set1(lo_min);
-  const bool nt = stream && reinterpret_cast<std::uintptr_t>(dst) % (4 * lanes) == 0;
-  std::size_t k = 0;
-  for (; k + lanes <= n; k += lanes) u_store_elements(dst + k, inside_f32(u_load(src + k), hm, lm), nt);
-  return k;
-}
-
-// The float elements of whole groups straight to dst (dst[64 k + r] for group g0 + k),
-// each moved inside [lo_min, hi_max] as round_store_f32 does, one vector store per value
-// vector: the direct writer of paths without a line writer (AVX2; AVX-512 has its own in
-// lanes.hpp). Non-temporal only when dst is aligned to the vector; the values are the
-// same either way.
-template <class P>
-inline void groups_to_elements_by_vector(const P& p, const philox4x32_key& key, std::uint32_t domain,
-                                         std::uint64_t g0, std::uint64_t count, float* dst,
-                                         float hi_max, float lo_min, bool stream) noexcept {
-  const vf hm = f_set1(hi_max), lm = f_set1(lo_min);
-  const bool nt = stream && reinterpret_cast<std::uintptr_t>(dst) % (4 * lanes) == 0;
-  auto sink = [&](std::uint64_t unit, const vf (&v)[4]) {
-    const std::uint64_t first_lane = unit * lanes;  // block offset from 16 g0
-    float* const at = dst + (first_lane / 16) * 64 + first_lane % 16;
-    for (unsigned j = 0; j < 4; ++j) u_store_elements(at + 16 * j, inside_f32(u_bits(v[j]), hm, lm), nt);
-  };
-  drive_units(make_unit(p), key, domain, g0, count, sink);
-}
-
 // element.hpp round_to_bfloat16 of the float bits b on each lane (the bfloat16 bits in
 // the low 16 bits of the lane), then the threshold step of inside_f32 on the result.
 inline vu inside_bf16(vu b, vf hm, vf lm) noexcept {
@@ -327,28 +298,50 @@ inline vu inside_bf16(vu b, vf hm, vf lm) noexcept {
   return u_select(above, step_down_lanes(x, sign), u_select(below, step_up_lanes(x, sign), x));
 }
 
-// lanes.hpp round_store_bf16: element.hpp round_to_bfloat16, then the same step inside.
-inline std::size_t round_store_bf16(const float* src, std::uint16_t* dst, std::size_t n,
-                                    float hi_max, float lo_min, bool stream) noexcept {
-  const vf hm = f_set1(hi_max), lm = f_set1(lo_min);
-  const bool nt = stream && reinterpret_cast<std::uintptr_t>(dst) % (2 * lanes) == 0;
-  std::size_t k = 0;
-  for (; k + lanes <= n; k += lanes) u16_store_elements(dst + k, inside_bf16(u_load(src + k), hm, lm), nt);
-  return k;
+// One value vector stored as float elements, or as the bits of bfloat16 elements, each
+// moved inside [lo_min, hi_max] as element_rounder does.
+inline void store_element_vector(float* at, vf v, vf hm, vf lm, bool nt) noexcept {
+  u_store_elements(at, inside_f32(u_bits(v), hm, lm), nt);
+}
+inline void store_element_vector(std::uint16_t* at, vf v, vf hm, vf lm, bool nt) noexcept {
+  u16_store_elements(at, inside_bf16(u_bits(v), hm, lm), nt);
 }
 
-// groups_to_elements_by_vector for bfloat16 elements (the bits, dst[64 k + r] for group
-// g0 + k): each value rounded as round_store_bf16 does, without the pass through a buffer.
-template <class P>
-inline void groups_to_bf16_elements(const P& p, const philox4x32_key& key, std::uint32_t domain,
-                                    std::uint64_t g0, std::uint64_t count, std::uint16_t* dst,
-                                    float hi_max, float lo_min, bool stream) noexcept {
+// lanes.hpp round_store_f32 / round_store_bf16: computed float values from src, rounded
+// to the element type and moved a step inside; Out is float or std::uint16_t.
+template <class Out>
+inline std::size_t round_store(const float* src, Out* dst, std::size_t n, float hi_max, float lo_min,
+                               bool stream) noexcept {
   const vf hm = f_set1(hi_max), lm = f_set1(lo_min);
-  const bool nt = stream && reinterpret_cast<std::uintptr_t>(dst) % (2 * lanes) == 0;
+  const bool nt = stream && reinterpret_cast<std::uintptr_t>(dst) % (sizeof(Out) * lanes) == 0;
+  std::size_t k = 0;
+  for (; k + lanes <= n; k += lanes) store_element_vector(dst + k, f_from_bits(u_load(src + k)), hm, lm, nt);
+  return k;
+}
+inline std::size_t round_store_f32(const float* src, float* dst, std::size_t n, float hi_max, float lo_min,
+                                   bool stream) noexcept {
+  return round_store(src, dst, n, hi_max, lo_min, stream);
+}
+inline std::size_t round_store_bf16(const float* src, std::uint16_t* dst, std::size_t n, float hi_max,
+                                    float lo_min, bool stream) noexcept {
+  return round_store(src, dst, n, hi_max, lo_min, stream);
+}
+
+// Whole groups straight to dst as elements (dst[64 k + r] for group g0 + k), one vector
+// store per value vector, without the pass through a buffer: Out is float or
+// std::uint16_t (bfloat16 bits). Non-temporal only when dst is aligned to the vector;
+// the values are the same either way. The direct writer of AVX2 for both, and of
+// AVX-512 for bfloat16 (its float writer is lanes.hpp's line writer).
+template <class P, class Out>
+inline void groups_to_elements_by_vector(const P& p, const philox4x32_key& key, std::uint32_t domain,
+                                         std::uint64_t g0, std::uint64_t count, Out* dst, float hi_max,
+                                         float lo_min, bool stream) noexcept {
+  const vf hm = f_set1(hi_max), lm = f_set1(lo_min);
+  const bool nt = stream && reinterpret_cast<std::uintptr_t>(dst) % (sizeof(Out) * lanes) == 0;
   auto sink = [&](std::uint64_t unit, const vf (&v)[4]) {
     const std::uint64_t first_lane = unit * lanes;  // block offset from 16 g0
-    std::uint16_t* const at = dst + (first_lane / 16) * 64 + first_lane % 16;
-    for (unsigned j = 0; j < 4; ++j) u16_store_elements(at + 16 * j, inside_bf16(u_bits(v[j]), hm, lm), nt);
+    Out* const at = dst + (first_lane / 16) * 64 + first_lane % 16;
+    for (unsigned j = 0; j < 4; ++j) store_element_vector(at + 16 * j, v[j], hm, lm, nt);
   };
   drive_units(make_unit(p), key, domain, g0, count, sink);
 }
