@@ -67,7 +67,7 @@ TEST_CASE("duplicated units planted at random places are found with their indice
   CHECK(groups[1] == std::vector<std::uint64_t>{13, 88, 171});
   const audit_report r = check_symmetry(v);
   CHECK_FALSE(r);
-  CHECK_MESSAGE(mentions(r.find("duplicate-units")->sentence, "units 7, 140 are exact duplicates (2 group(s), 5 units in all)"),
+  CHECK_MESSAGE(mentions(r.find("duplicate-units")->sentence, "units 7, 140 are exact duplicates (2 group(s), 5 units in all; 4 equal pair(s)"),
                 r.explain());
   SUBCASE("-0 and +0 are the same weight") {
     w[7 * 50] = 0.0;

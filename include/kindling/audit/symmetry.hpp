@@ -3,20 +3,54 @@
 // same gradient, so training never tells them apart (common practice). The checks:
 //   - zero:            every value 0;
 //   - constant:        every value the same nonzero number;
+//   - zero-variance-units: units whose incoming weights are all equal;
 //   - duplicate-units: units (rows of the unit matrix, schemes/detail/unit_matrix.hpp)
-//                      equal bit for bit, found by hashing each unit in one pass and
-//                      comparing only units whose hashes collide;
-//   - near-duplicate-units: pairs with cosine similarity >= a threshold (default
-//                      0.99; independent units of n connections have cosines of about
-//                      1/√n), through the Gram matrix while units² × connections <=
-//                      2^28, else through a random-projection filter: 128 sign bits a
-//                      unit from ±1 projections (Charikar, STOC 2002: two directions at
-//                      angle θ agree on a sign with probability 1 - θ/π; ±1 projections
-//                      approximate Gaussian ones for many connections, Achlioptas
-//                      2003), cut into 8 bands of 16 bits; pairs sharing a band are
-//                      verified exactly. A pair at cosine 0.99 is missed with
-//                      probability about 0.005, at 0.999 about 3e-6;
-//   - zero-variance-units: units whose incoming weights are all equal.
+//                      equal value for value;
+//   - near-duplicate-units: distinct units at cosine similarity >= a threshold.
+//
+// What a verdict means. Both unit checks are statistical: they fail only when what they
+// found is improbable for independent units, at a false-alarm rate of at most
+// options.alpha per tensor (expected chance pairs, a union bound over all pairs).
+//   * Near-duplicates. Two independent units of n connections with isotropic
+//     directions (normal elements) have cos² ~ Beta(1/2, (n-1)/2), so
+//     P(cos >= c) = I_{1-c²}((n-1)/2, 1/2) / 2 (Cai, Fan & Jiang, JMLR 2013, the angle
+//     density ∝ sin^{n-2}; from memory, checked against scipy.special.betainc in the
+//     tests). For n = 3 that is (1 - c)/2: 0.5 % at c = 0.99, millions of chance pairs
+//     among 65536 units. So the threshold used is the larger of options.near_cosine
+//     (default 0.99) and the cosine c* that m(m-1)/2 independent pairs exceed with
+//     expected count alpha; large n keeps 0.99, small n raises it (n = 3, m = 65536:
+//     1 - c* ≈ 9e-13 at alpha 1e-3). The check is reported as not applicable when
+//     n = 1 (every pair of 1-connection units is parallel or antiparallel) or when
+//     1 - c* < 64 u² (u the element type's unit roundoff: rounding each value moves a
+//     unit's direction by about u, so the element type cannot resolve c*; e.g.
+//     bfloat16 or float16 units of 3 connections at any size that needs c* near 1).
+//     Non-normal elements (uniform, truncated) have slightly non-isotropic directions;
+//     their false-alarm rate is measured in the tests rather than bounded.
+//   * Duplicates. Units are equal by chance when the element type holds few values
+//     (bfloat16 units of 3 connections, 1-connection units in any type): with q the
+//     probability that two elements are equal (estimated from up to 2^20 values) the
+//     expected number of chance-equal pairs is λ = m(m-1)/2 · q^n. The check fails when
+//     the observed number of equal pairs D has Poisson tail P(X >= D; λ) < alpha
+//     (rare events; Chen–Stein, from memory), and is reported as undecidable, passing,
+//     when λ >= 1: then a copied unit cannot be told from chance.
+//
+// How, in bounded time and memory. One pass reads each unit in place (or through a
+// one-unit buffer, detail/gather.hpp's unit_reader), keeping per unit its minimum,
+// maximum and a 64-value signed sketch (coordinate t sums ±w_j over j ≡ t mod 64, signs
+// from a fixed hash: a sparse random projection that keeps cosines near 1, Achlioptas
+// 2003, Weinberger et al. 2009; for n <= 64 the sketch is the unit itself up to signs).
+// Exact duplicates have equal sketches: units are grouped by a hash of the sketch and
+// compared value by value. Near-duplicates: every pair exactly while units² × n <=
+// gram_limit, else random-hyperplane sign bits of the sketches (Charikar, STOC 2002:
+// two directions at angle θ get the same sign with probability 1 - θ/π) in bands of b
+// bits, b chosen from m and n so that chance pairs per band stay about 16 m; units with
+// equal band keys are candidates, checked exactly. Each band's candidate pairs are
+// capped (64 m + 4096): a band over the cap is redrawn with twice the bits (up to
+// 8192), and past that only neighbours within a bucket are compared (the finding then
+// says the search was capped). Enough bands are drawn that a pair at the threshold is
+// missed with probability <= 1e-3; the finding states the miss probability.
+// Extra memory: about 64 floats and 32 bytes per unit, never a copy of the tensor.
+//
 // check_independent(a, b) tests whether two tensors (two seeds, two names) are
 // correlated: Fisher's z = atanh(r) √(n - 3) against a normal at level alpha.
 #ifndef KINDLING_AUDIT_SYMMETRY_HPP
@@ -27,10 +61,12 @@
 #include <cstdint>
 #include <cstring>
 #include <string>
-#include <unordered_map>
+#include <type_traits>
 #include <utility>
 #include <vector>
 
+#include "../fill.hpp"
+#include "../random/stream.hpp"
 #include "conformance.hpp"
 #include "detail/gather.hpp"
 #include "result.hpp"
@@ -39,7 +75,8 @@ namespace kindling {
 
 struct symmetry_options {
   weight_layout layout = weight_layout::out_in;
-  double near_cosine = 0.99;  // pairs of units at or above this cosine fail
+  double near_cosine = 0.99;  // pairs of units at or above this cosine fail (raised for few connections)
+  double alpha = 1e-3;        // false-alarm rate of the unit checks for independent units
   std::uint64_t gram_limit = std::uint64_t{1} << 28;  // units² × connections for the exact path
 };
 
@@ -66,100 +103,366 @@ inline std::uint64_t value_bits(double x) noexcept {
   return b;
 }
 
-inline bool same_unit(const gathered& g, std::uint64_t a, std::uint64_t b) {
-  for (std::uint64_t j = 0; j < g.cols; ++j) {
-    if (value_bits(g.values[a * g.cols + j]) != value_bits(g.values[b * g.cols + j])) return false;
-  }
-  return true;
+// ---- chance levels for independent units -------------------------------------------
+
+// ln B(a, 1/2): from B(1/2, 1/2) = π or B(1, 1/2) = 2 by B(a + 1, 1/2) = B(a, 1/2) a / (a + 1/2)
+// (both from Γ(x + 1) = x Γ(x)); past a = 10^4 by ln Γ(a + 1/2) - ln Γ(a) = ln(a)/2 - 1/(8a)
+// + 1/(192 a³) (Stirling's series, from memory; error below 1e-12 there, checked with
+// scipy.special.betaln).
+inline double log_beta_half(double a) {
+  if (a > 1e4) return 0.5 * std::log(3.14159265358979323846) - (0.5 * std::log(a) - 1 / (8 * a) + 1 / (192 * a * a * a));
+  double x = std::fmod(a, 1.0) == 0 ? 1.0 : 0.5;
+  double log_b = x == 1.0 ? std::log(2.0) : std::log(3.14159265358979323846);
+  for (; x < a; x += 1) log_b += std::log(x / (x + 0.5));
+  return log_b;
 }
 
-inline std::vector<std::vector<std::uint64_t>> duplicate_groups(const gathered& g) {
-  std::unordered_map<std::uint64_t, std::vector<std::uint64_t>> by_hash;
-  for (std::uint64_t r = 0; r < g.rows; ++r) {
-    // Four independent chains over the connections j mod 4, so that the multiplies of
-    // one do not wait for the others; the hash only groups candidates, which are then
-    // compared value by value, so any mixing that spreads units apart will do.
-    const double* unit = g.values.data() + r * g.cols;
-    std::uint64_t h[4] = {0x6b696e646c696e67u, 1, 2, 3};
-    std::uint64_t j = 0;
-    for (; j + 4 <= g.cols; j += 4) {
-      for (unsigned c = 0; c < 4; ++c) h[c] = mix64(h[c] ^ value_bits(unit[j + c]));
-    }
-    for (; j < g.cols; ++j) h[0] = mix64(h[0] ^ value_bits(unit[j]));
-    by_hash[mix64(h[0] ^ mix64(h[1] ^ mix64(h[2] ^ mix64(h[3]))))].push_back(r);
+// Regularized incomplete beta I_x(a, b) by its continued fraction (Abramowitz & Stegun
+// 26.5.8), evaluated by Lentz's method; the symmetry I_x(a, b) = 1 - I_{1-x}(b, a) keeps
+// x on the side where the fraction converges fast.
+inline double incomplete_beta(double x, double a, double b, double log_beta) {
+  if (x <= 0) return 0;
+  if (x >= 1) return 1;
+  if (x > (a + 1) / (a + b + 2)) return 1 - incomplete_beta(1 - x, b, a, log_beta);
+  const double front = std::exp(a * std::log(x) + b * std::log1p(-x) - log_beta) / a;
+  const double tiny = 1e-300;
+  double f = 1, c = 1, d = 0;
+  for (int i = 0; i < 1000; ++i) {
+    const double m = i / 2;
+    const double term = i == 0       ? 1.0
+                        : i % 2 == 0 ? m * (b - m) * x / ((a + 2 * m - 1) * (a + 2 * m))
+                                     : -(a + m) * (a + b + m) * x / ((a + 2 * m) * (a + 2 * m + 1));
+    d = 1 + term * d;
+    d = 1 / (std::fabs(d) < tiny ? tiny : d);
+    c = 1 + term / c;
+    if (std::fabs(c) < tiny) c = tiny;
+    f *= c * d;
+    if (std::fabs(c * d - 1) < 1e-15) break;
   }
+  return front * (f - 1);
+}
+
+/// P(cos >= c) for two independent isotropic units of n connections, c in (0, 1].
+inline double chance_cosine_tail(std::uint64_t n, double c) {
+  if (n < 2) return 0.5;  // cos = ±1
+  if (c >= 1) return 0;
+  const double a = 0.5 * static_cast<double>(n - 1);
+  return 0.5 * incomplete_beta((1 - c) * (1 + c), a, 0.5, log_beta_half(a));
+}
+
+/// The threshold actually used: options' cosine, raised until pairs × P(cos >= c) <= alpha.
+inline double chance_threshold(std::uint64_t n, double pairs, double alpha, double near_cosine) {
+  if (n < 2) return 2;  // no cosine below 1 separates 1-connection units
+  if (pairs * chance_cosine_tail(n, near_cosine) <= alpha) return near_cosine;
+  double lo = std::log(1e-300), hi = std::log(1 - near_cosine);  // log(1 - c): lo passes, hi fails
+  for (int i = 0; i < 200; ++i) {
+    const double mid = 0.5 * (lo + hi);
+    (pairs * chance_cosine_tail(n, 1 - std::exp(mid)) <= alpha ? lo : hi) = mid;
+  }
+  return 1 - std::exp(lo);
+}
+
+/// P(X >= d) for X Poisson with mean lambda (summed from d up: no cancellation).
+inline double poisson_tail(double lambda, std::uint64_t d) {
+  if (d == 0) return 1;
+  if (lambda <= 0) return 0;
+  double log_term = -lambda;
+  for (std::uint64_t k = 1; k <= d; ++k) log_term += std::log(lambda / static_cast<double>(k));
+  double term = std::exp(log_term), sum = 0;
+  for (std::uint64_t k = d; term > sum * 1e-17 && k < d + 100000; ++k) {
+    sum += term;
+    term *= lambda / static_cast<double>(k + 1);
+  }
+  return std::min(1.0, sum);
+}
+
+template <class E>
+constexpr double unit_roundoff() {
+  using e = std::remove_const_t<E>;
+  return std::is_same<e, double>::value ? 0x1p-53
+         : std::is_same<e, float>::value ? 0x1p-24
+         : std::is_same<e, float16>::value ? 0x1p-11
+                                           : 0x1p-8;
+}
+
+// ---- one pass over the units --------------------------------------------------------
+
+constexpr std::uint64_t sketch_width = 64;
+
+/// What the pass keeps of each unit, and of the whole tensor.
+struct unit_summary {
+  std::uint64_t rows = 0, cols = 0, width = 0;  // width: sketch values a unit
+  std::vector<float> sketch;                    // rows × width
+  std::vector<float> sketch_norm;               // rows
+  std::vector<std::uint64_t> zero_units, flat_units;
+  double lo = 0, hi = 0;  // smallest and largest value
+  bool finite = true;
+};
+
+template <class T>
+T sign_of_connection(std::uint64_t j) noexcept {
+  return (mix64(j ^ 0x736b65746368u) & 1u) ? T(1) : T(-1);
+}
+
+template <class E>
+unit_summary summarize_units(const unit_reader<E>& reader) {
+  using T = typename unit_reader<E>::compute;
+  unit_summary s;
+  s.rows = reader.rows();
+  s.cols = reader.cols();
+  s.width = std::min(s.cols, sketch_width);
+  s.sketch.assign(static_cast<std::size_t>(s.rows * s.width), 0.0f);
+  s.sketch_norm.assign(static_cast<std::size_t>(s.rows), 0.0f);
+  std::vector<T> buffer(reader.direct() ? 0 : static_cast<std::size_t>(s.cols)), sign(static_cast<std::size_t>(s.cols));
+  for (std::uint64_t j = 0; j < s.cols; ++j) sign[j] = sign_of_connection<T>(j);
+  constexpr std::size_t lanes = 16;  // independent accumulators, so the loops vectorize without reassociation
+  for (std::uint64_t r = 0; r < s.rows; ++r) {
+    const T* w = reader.unit(r, buffer.data());
+    T lo[lanes], hi[lanes], squares[lanes];
+    for (std::size_t l = 0; l < lanes; ++l) lo[l] = hi[l] = w[0], squares[l] = 0;
+    std::size_t j = 0;
+    for (; j + lanes <= s.cols; j += lanes) {
+      for (std::size_t l = 0; l < lanes; ++l) {
+        const T x = w[j + l];
+        lo[l] = x < lo[l] ? x : lo[l];
+        hi[l] = hi[l] < x ? x : hi[l];
+        squares[l] += x * x;
+      }
+    }
+    for (; j < s.cols; ++j) lo[0] = std::min(lo[0], w[j]), hi[0] = std::max(hi[0], w[j]), squares[0] += w[j] * w[j];
+    double unit_lo = lo[0], unit_hi = hi[0], sum = 0;
+    for (std::size_t l = 0; l < lanes; ++l) {
+      unit_lo = std::min<double>(unit_lo, lo[l]), unit_hi = std::max<double>(unit_hi, hi[l]);
+      sum += static_cast<double>(squares[l]);
+    }
+    if (!std::isfinite(sum)) {  // a NaN or infinity, or only squares that overflow
+      for (std::uint64_t i = 0; i < s.cols; ++i) s.finite = s.finite && std::isfinite(w[i]);
+      if (!s.finite) return s;
+    }
+    T acc[sketch_width] = {};
+    for (std::uint64_t j0 = 0; j0 < s.cols; j0 += s.width) {
+      const std::uint64_t len = std::min(s.width, s.cols - j0);
+      for (std::uint64_t t = 0; t < len; ++t) acc[t] += sign[j0 + t] * w[j0 + t];
+    }
+    float* out = &s.sketch[static_cast<std::size_t>(r * s.width)];
+    double norm = 0;
+    for (std::uint64_t t = 0; t < s.width; ++t) out[t] = static_cast<float>(acc[t]), norm += double(out[t]) * out[t];
+    s.sketch_norm[r] = static_cast<float>(std::sqrt(norm));
+    if (r == 0 || unit_lo < s.lo) s.lo = unit_lo;
+    if (r == 0 || unit_hi > s.hi) s.hi = unit_hi;
+    if (unit_lo == 0 && unit_hi == 0) s.zero_units.push_back(r);
+    if (s.cols >= 2 && unit_lo == unit_hi) s.flat_units.push_back(r);
+  }
+  return s;
+}
+
+/// Two units of a reader, with the buffers to read them through.
+template <class E>
+struct unit_pair_reader {
+  using T = typename unit_reader<E>::compute;
+  explicit unit_pair_reader(const unit_reader<E>& r)
+      : reader(r), a_buffer(r.direct() ? 0 : r.cols()), b_buffer(r.direct() ? 0 : r.cols()) {}
+  bool same(std::uint64_t a, std::uint64_t b) {
+    const T* x = reader.unit(a, a_buffer.data());
+    const T* y = reader.unit(b, b_buffer.data());
+    for (std::uint64_t j = 0; j < reader.cols(); ++j) {
+      if (!(x[j] == y[j])) return false;  // == makes -0 and +0 the same weight
+    }
+    return true;
+  }
+  double cosine(std::uint64_t a, std::uint64_t b) {
+    const T* x = reader.unit(a, a_buffer.data());
+    const T* y = reader.unit(b, b_buffer.data());
+    double xx = 0, yy = 0, xy = 0;
+    for (std::uint64_t j = 0; j < reader.cols(); ++j) {
+      xx += double(x[j]) * x[j], yy += double(y[j]) * y[j], xy += double(x[j]) * y[j];
+    }
+    return xy / (std::sqrt(xx) * std::sqrt(yy));
+  }
+  const unit_reader<E>& reader;
+  std::vector<T> a_buffer, b_buffer;
+};
+
+inline std::uint64_t sketch_hash(const unit_summary& s, std::uint64_t r) {
+  std::uint64_t h = 0x6b696e646c696e67u;
+  for (std::uint64_t t = 0; t < s.width; ++t) {
+    float x = s.sketch[static_cast<std::size_t>(r * s.width + t)];
+    if (x == 0) x = 0;
+    std::uint32_t bits;
+    std::memcpy(&bits, &x, sizeof bits);
+    h = mix64(h ^ bits);
+  }
+  return h;
+}
+
+// Runs of equal keys in entries (key, unit), sorted: calls each(first, last) per run of 2 or more.
+template <class Each>
+void for_each_run(std::vector<std::pair<std::uint64_t, std::uint64_t>>& entries, Each each) {
+  std::sort(entries.begin(), entries.end());
+  for (std::size_t i = 0; i < entries.size();) {
+    std::size_t k = i + 1;
+    while (k < entries.size() && entries[k].first == entries[i].first) ++k;
+    if (k - i > 1) each(i, k);
+    i = k;
+  }
+}
+
+template <class E>
+std::vector<std::vector<std::uint64_t>> duplicate_groups(const unit_summary& s, unit_pair_reader<E>& units) {
+  std::vector<std::pair<std::uint64_t, std::uint64_t>> entries(static_cast<std::size_t>(s.rows));
+  for (std::uint64_t r = 0; r < s.rows; ++r) entries[r] = {sketch_hash(s, r), r};
   std::vector<std::vector<std::uint64_t>> groups;
-  for (auto& entry : by_hash) {
-    std::vector<std::uint64_t>& rows = entry.second;
+  for_each_run(entries, [&](std::size_t first, std::size_t last) {
+    std::vector<std::uint64_t> rows;
+    for (std::size_t i = first; i < last; ++i) rows.push_back(entries[i].second);
     while (rows.size() > 1) {  // split a collision into groups of really equal units
       std::vector<std::uint64_t> same{rows[0]}, rest;
-      for (std::size_t k = 1; k < rows.size(); ++k) (same_unit(g, rows[0], rows[k]) ? same : rest).push_back(rows[k]);
+      for (std::size_t k = 1; k < rows.size(); ++k) (units.same(rows[0], rows[k]) ? same : rest).push_back(rows[k]);
       if (same.size() > 1) groups.push_back(same);
-      rows = rest;
+      rows.swap(rest);
     }
-  }
-  for (auto& group : groups) std::sort(group.begin(), group.end());
+  });
   std::sort(groups.begin(), groups.end());
   return groups;
 }
 
-inline double unit_dot(const gathered& g, std::uint64_t a, std::uint64_t b) {
-  double s = 0;
-  for (std::uint64_t j = 0; j < g.cols; ++j) s += g.values[a * g.cols + j] * g.values[b * g.cols + j];
-  return s;
+/// q = P(two elements are equal), from the values of up to 2^20 elements of units spread over the tensor.
+template <class E>
+double equal_value_rate(const unit_reader<E>& reader) {
+  using T = typename unit_reader<E>::compute;
+  const std::uint64_t per = std::max<std::uint64_t>(1, (std::uint64_t{1} << 20) / reader.cols());
+  const std::uint64_t step = std::max<std::uint64_t>(1, reader.rows() / per);
+  std::vector<T> buffer(reader.direct() ? 0 : reader.cols());
+  std::vector<std::uint64_t> bits;
+  for (std::uint64_t r = 0; r < reader.rows() && bits.size() < (std::size_t{1} << 20); r += step) {
+    const T* w = reader.unit(r, buffer.data());
+    for (std::uint64_t j = 0; j < reader.cols(); ++j) bits.push_back(value_bits(static_cast<double>(w[j])));
+  }
+  std::sort(bits.begin(), bits.end());
+  double equal = 0;
+  for (std::size_t i = 0; i < bits.size();) {
+    std::size_t k = i + 1;
+    while (k < bits.size() && bits[k] == bits[i]) ++k;
+    equal += static_cast<double>(k - i) * static_cast<double>(k - i - 1);
+    i = k;
+  }
+  const double n = static_cast<double>(bits.size());
+  return n < 2 ? 0 : equal / (n * (n - 1));
 }
 
-inline std::vector<unit_pair> near_pairs(const gathered& g, double threshold, std::uint64_t gram_limit) {
-  std::vector<double> norm(static_cast<std::size_t>(g.rows));
-  for (std::uint64_t r = 0; r < g.rows; ++r) norm[r] = std::sqrt(unit_dot(g, r, r));
-  std::vector<unit_pair> pairs;
+/// How the near-duplicate search went.
+struct near_search {
+  std::vector<unit_pair> pairs;   // sorted by (first, second)
+  double threshold = 0;           // the cosine used
+  bool applicable = true;
+  std::string why_not;            // when not applicable
+  double miss = 0;                // probability that a pair at the threshold was missed
+  bool capped = false;            // a band was over its cap after the last redraw
+};
+
+template <class E>
+near_search near_pairs(const unit_summary& s, unit_pair_reader<E>& units, const symmetry_options& o) {
+  near_search out;
+  const double m = static_cast<double>(s.rows);
+  const double pairs = m * (m - 1) / 2;
+  out.threshold = chance_threshold(s.cols, pairs, o.alpha, o.near_cosine);
+  const double u = unit_roundoff<E>();
+  if (s.cols < 2) {
+    out.applicable = false;
+    out.why_not = "units of 1 connection are all parallel or antiparallel, so no cosine tells a copy from chance";
+    return out;
+  }
+  if (1 - out.threshold < 64 * u * u) {
+    out.applicable = false;
+    out.why_not = "among " + std::to_string(s.rows) + " independent units of " + std::to_string(s.cols) +
+                  " connections only a cosine above " + short_number(out.threshold, 15) +
+                  " would be improbable, finer than this element type resolves";
+    return out;
+  }
+  std::vector<char> zero(static_cast<std::size_t>(s.rows), 0);  // zero units are reported by the other checks
+  for (std::uint64_t r : s.zero_units) zero[r] = 1;
   auto consider = [&](std::uint64_t a, std::uint64_t b) {
-    if (norm[a] == 0 || norm[b] == 0) return;  // zero units are reported by the other checks
-    const double c = unit_dot(g, a, b) / (norm[a] * norm[b]);
-    if (c >= threshold) pairs.push_back({a, b, c});
+    if (zero[a] || zero[b]) return;
+    const double c = units.cosine(a, b);
+    if (c >= out.threshold) out.pairs.push_back({std::min(a, b), std::max(a, b), c});
   };
-  const double work = static_cast<double>(g.rows) * static_cast<double>(g.rows) * static_cast<double>(g.cols);
-  if (work <= static_cast<double>(gram_limit)) {
-    for (std::uint64_t a = 0; a < g.rows; ++a) {
-      for (std::uint64_t b = a + 1; b < g.rows; ++b) consider(a, b);
+  if (m * m * static_cast<double>(s.cols) <= static_cast<double>(o.gram_limit)) {
+    for (std::uint64_t a = 0; a < s.rows; ++a) {
+      for (std::uint64_t b = a + 1; b < s.rows; ++b) consider(a, b);
     }
-    return pairs;
+    return out;
   }
-  // Random-projection filter: signature bit t of unit r is the sign of Σ_j s(t, j) w_rj
-  // with s(t, j) = ±1 from a fixed hash, so the filter is the same on every run.
-  constexpr int bits = 128, bands = 8, band_bits = bits / bands;
-  std::vector<double> proj(static_cast<std::size_t>(g.rows) * bits, 0.0);
-  for (std::uint64_t j = 0; j < g.cols; ++j) {
-    std::uint64_t signs[2] = {mix64(2 * j + 0x9e3779b97f4a7c15u), mix64(2 * j + 1 + 0x9e3779b97f4a7c15u)};
-    for (std::uint64_t r = 0; r < g.rows; ++r) {
-      const double w = g.values[r * g.cols + j];
-      if (w == 0) continue;
-      double* p = &proj[static_cast<std::size_t>(r) * bits];
-      for (int t = 0; t < bits; ++t) p[t] += ((signs[t / 64] >> (t % 64)) & 1u) ? w : -w;
-    }
-  }
-  std::vector<std::uint64_t> seen_pairs;
+  // Sketch cosines are exact up to rounding when the sketch is the unit (n <= 64), and
+  // within a few tenths of the true one otherwise; a wide margin keeps every true pair.
+  const double margin = s.width == s.cols ? 1e-3 : 0.3;
+  auto sketch_cosine = [&](std::uint64_t a, std::uint64_t b) {
+    double xy = 0;
+    for (std::uint64_t t = 0; t < s.width; ++t) xy += double(s.sketch[a * s.width + t]) * s.sketch[b * s.width + t];
+    return xy / (double(s.sketch_norm[a]) * s.sketch_norm[b]);
+  };
+  const double pi = 3.14159265358979323846;
+  const double theta = 2 * std::asin(std::sqrt(std::max(0.0, (1 - out.threshold) / 2)));
+  const double agree_bit = 1 - theta / pi;
+  const double dims = static_cast<double>(std::min(s.cols, std::uint64_t{4096}));
+  std::uint64_t bits0 = static_cast<std::uint64_t>(std::ceil(pi * std::pow(m / 64, 1 / (dims - 1))));
+  bits0 = std::min<std::uint64_t>(1024, std::max<std::uint64_t>(16, bits0));
+  const double agree0 = std::pow(agree_bit, static_cast<double>(bits0));
+  const int bands = agree0 >= 1 ? 1 : std::min(16, std::max(1, static_cast<int>(std::ceil(std::log(1e-3) / std::log1p(-agree0)))));
+  const double cap = 64 * m + 4096;
+  const stream projections = make_stream(0, "kindling.audit.near-duplicate-units");
+  std::vector<float> plane;
+  std::vector<std::pair<std::uint64_t, std::uint64_t>> entries;
+  out.miss = 1;
   for (int band = 0; band < bands; ++band) {
-    std::unordered_map<std::uint32_t, std::vector<std::uint64_t>> buckets;
-    for (std::uint64_t r = 0; r < g.rows; ++r) {
-      if (norm[r] == 0) continue;
-      std::uint32_t key = 0;
-      for (int t = 0; t < band_bits; ++t) {
-        key = (key << 1) | (proj[static_cast<std::size_t>(r) * bits + static_cast<std::size_t>(band * band_bits + t)] > 0 ? 1u : 0u);
+    for (std::uint64_t bits = bits0;; bits *= 2) {
+      plane.assign(static_cast<std::size_t>(bits * s.width), 0.0f);
+      fill(strided_view<float>(plane.data(), shape(bits, s.width)), dist::normal{0, 1},
+           projections.indexed(static_cast<std::uint64_t>(band) * 64 + bits));
+      entries.clear();
+      for (std::uint64_t r = 0; r < s.rows; ++r) {
+        if (zero[r]) continue;
+        const float* x = &s.sketch[static_cast<std::size_t>(r * s.width)];
+        std::uint64_t key = 0x62616e64u, word = 0;
+        for (std::uint64_t t = 0; t < bits; ++t) {
+          const float* p = &plane[static_cast<std::size_t>(t * s.width)];
+          float dot = 0;
+          for (std::uint64_t i = 0; i < s.width; ++i) dot += p[i] * x[i];
+          word = (word << 1) | (dot > 0 ? 1u : 0u);
+          if (t % 64 == 63 || t + 1 == bits) key = mix64(key ^ word), word = 0;
+        }
+        entries.push_back({key, r});
       }
-      buckets[key].push_back(r);
-    }
-    for (const auto& bucket : buckets) {
-      const std::vector<std::uint64_t>& rows = bucket.second;
-      for (std::size_t x = 0; x < rows.size(); ++x) {
-        for (std::size_t y = x + 1; y < rows.size(); ++y) seen_pairs.push_back(rows[x] * g.rows + rows[y]);
-      }
+      std::sort(entries.begin(), entries.end());
+      double candidates = 0;
+      for_each_run(entries, [&](std::size_t first, std::size_t last) {
+        candidates += 0.5 * double(last - first) * double(last - first - 1);
+      });
+      const bool over = candidates > cap;
+      if (over && bits < 8192) continue;
+      // Over the cap at the most bits: each unit meets only its next `window` neighbours.
+      const std::size_t window = over ? std::max<std::size_t>(1, static_cast<std::size_t>(cap / m)) : entries.size();
+      out.capped = out.capped || over;
+      for_each_run(entries, [&](std::size_t first, std::size_t last) {
+        for (std::size_t x = first; x < last; ++x) {
+          for (std::size_t y = x + 1; y < last && y <= x + window; ++y) {
+            const std::uint64_t a = entries[x].second, b = entries[y].second;
+            if (s.sketch_norm[a] == 0 || s.sketch_norm[b] == 0 || sketch_cosine(a, b) >= out.threshold - margin) {
+              consider(a, b);
+            }
+          }
+        }
+      });
+      out.miss *= 1 - std::pow(agree_bit, static_cast<double>(bits));
+      break;
     }
   }
-  std::sort(seen_pairs.begin(), seen_pairs.end());
-  seen_pairs.erase(std::unique(seen_pairs.begin(), seen_pairs.end()), seen_pairs.end());
-  for (std::uint64_t key : seen_pairs) consider(key / g.rows, key % g.rows);
-  return pairs;
+  std::sort(out.pairs.begin(), out.pairs.end(), [](const unit_pair& x, const unit_pair& y) {
+    return std::make_pair(x.first, x.second) < std::make_pair(y.first, y.second);
+  });
+  out.pairs.erase(std::unique(out.pairs.begin(), out.pairs.end(),
+                              [](const unit_pair& x, const unit_pair& y) { return x.first == y.first && x.second == y.second; }),
+                  out.pairs.end());
+  return out;
 }
 
 inline std::string index_list(const std::vector<std::uint64_t>& xs, std::size_t most = 8) {
@@ -169,92 +472,130 @@ inline std::string index_list(const std::vector<std::uint64_t>& xs, std::size_t 
   return text;
 }
 
-inline void check_threshold(double c) {
-  if (!(c > 0 && c <= 1)) {
-    throw std::domain_error("kindling::check_symmetry: argument 'near_cosine' = " + argument_text(c) +
-                            ", expected a cosine in (0, 1]");
+inline void check_symmetry_options(const symmetry_options& o, const char* audit) {
+  if (!(o.near_cosine > 0 && o.near_cosine <= 1)) {
+    throw std::domain_error(std::string("kindling::") + audit + ": argument 'near_cosine' = " +
+                            argument_text(o.near_cosine) + ", expected a cosine in (0, 1]");
   }
+  if (!(o.alpha > 0 && o.alpha < 1)) {
+    throw std::domain_error(std::string("kindling::") + audit + ": argument 'alpha' = " + argument_text(o.alpha) +
+                            ", expected a false-alarm rate in (0, 1)");
+  }
+}
+
+template <class E>
+unit_reader<E> whole_units(const strided_view<E>& v, weight_layout layout, const char* audit) {
+  if (!v.is_whole()) {
+    throw std::invalid_argument(std::string("kindling::") + audit +
+                                ": argument 'view' holds only a region of its tensor; expected the "
+                                "whole tensor, because the check compares whole units");
+  }
+  return unit_reader<E>(v, layout);
+}
+
+template <class E>
+audit_finding duplicate_finding(const std::vector<std::vector<std::uint64_t>>& groups, const unit_reader<E>& reader,
+                                double alpha) {
+  if (groups.empty()) return {"duplicate-units", true, "no two units are equal"};
+  std::uint64_t in_groups = 0, equal_pairs = 0;
+  for (const auto& group : groups) in_groups += group.size(), equal_pairs += group.size() * (group.size() - 1) / 2;
+  const double m = static_cast<double>(reader.rows());
+  const double lambda = m * (m - 1) / 2 * std::pow(equal_value_rate(reader), static_cast<double>(reader.cols()));
+  const std::string found = "units " + index_list(groups[0]) + " are exact duplicates (" +
+                            std::to_string(groups.size()) + " group(s), " + std::to_string(in_groups) +
+                            " units in all; " + std::to_string(equal_pairs) + " equal pair(s), " +
+                            short_number(lambda) + " expected by chance";
+  if (lambda >= 1) {
+    return {"duplicate-units", true,
+            found + "): with so few distinct values a unit, chance duplicates are expected and a copy cannot be "
+                    "told from them; not decided"};
+  }
+  const double p = poisson_tail(lambda, equal_pairs);
+  return {"duplicate-units", p >= alpha, found + ", p = " + short_number(p) + ")", static_cast<double>(equal_pairs), p};
+}
+
+template <class E>
+audit_finding near_finding(const near_search& found, const unit_pair_reader<E>& units, const symmetry_options& o) {
+  if (!found.applicable) return {"near-duplicate-units", true, "not applicable: " + found.why_not};
+  std::string how = "";
+  if (found.threshold > o.near_cosine) {
+    how += " (raised from " + short_number(o.near_cosine, 6) + ": independent units of " +
+           std::to_string(units.reader.cols()) + " connections reach that by chance)";
+  }
+  if (found.capped) how += "; the candidate search was capped, so pairs may be missed";
+  if (found.pairs.empty()) {
+    return {"near-duplicate-units", true,
+            "no two units have cosine similarity >= " + short_number(found.threshold, 15) + how};
+  }
+  const unit_pair& p = found.pairs[0];
+  return {"near-duplicate-units", false,
+          "units " + std::to_string(p.first) + " and " + std::to_string(p.second) + " have cosine similarity " +
+              short_number(p.cosine, 6) + ", at or above " + short_number(found.threshold, 15) + how + " (" +
+              std::to_string(found.pairs.size()) + " pair(s) in all)"};
 }
 
 }  // namespace detail
 
-/// Groups of units that are equal bit for bit (each group sorted, groups in order).
+/// Groups of units that are equal value for value (each group sorted, groups in order).
 template <class E>
 std::vector<std::vector<std::uint64_t>> duplicate_units(const strided_view<E>& v,
                                                         weight_layout layout = weight_layout::out_in) {
-  const detail::gathered g = detail::gather(v, layout);
-  detail::require_whole(g, "duplicate_units");
-  return detail::duplicate_groups(g);
+  const detail::unit_reader<E> reader = detail::whole_units(v, layout, "duplicate_units");
+  const detail::unit_summary s = detail::summarize_units(reader);
+  detail::unit_pair_reader<E> units(reader);
+  return s.finite ? detail::duplicate_groups(s, units) : std::vector<std::vector<std::uint64_t>>{};
 }
 
-/// Pairs of distinct units whose cosine similarity is at least options.near_cosine.
+/// Pairs of distinct units whose cosine similarity is at least the threshold used (options'
+/// near_cosine, raised for few connections; empty when the check is not applicable).
 template <class E>
 std::vector<unit_pair> near_duplicate_units(const strided_view<E>& v, const symmetry_options& options = {}) {
-  detail::check_threshold(options.near_cosine);
-  const detail::gathered g = detail::gather(v, options.layout);
-  detail::require_whole(g, "near_duplicate_units");
-  return detail::near_pairs(g, options.near_cosine, options.gram_limit);
+  detail::check_symmetry_options(options, "near_duplicate_units");
+  const detail::unit_reader<E> reader = detail::whole_units(v, options.layout, "near_duplicate_units");
+  const detail::unit_summary s = detail::summarize_units(reader);
+  detail::unit_pair_reader<E> units(reader);
+  return s.finite ? detail::near_pairs(s, units, options).pairs : std::vector<unit_pair>{};
 }
 
 /// Runs every symmetry check on the whole tensor v.
 template <class E>
 audit_report check_symmetry(const strided_view<E>& v, const symmetry_options& options = {}) {
-  detail::check_threshold(options.near_cosine);
-  const detail::gathered g = detail::gather(v, options.layout);
-  detail::require_whole(g, "check_symmetry");
-  audit_report report("symmetry of " + std::to_string(g.rows) + " units of " + std::to_string(g.cols) +
+  detail::check_symmetry_options(options, "check_symmetry");
+  const detail::unit_reader<E> reader = detail::whole_units(v, options.layout, "check_symmetry");
+  audit_report report("symmetry of " + std::to_string(reader.rows()) + " units of " + std::to_string(reader.cols()) +
                       " connections");
-  if (g.non_finite != 0) {
-    report.add({"finite", false, detail::non_finite_sentence(g) + "; the symmetry checks were not run"});
+  const detail::unit_summary s = detail::summarize_units(reader);
+  if (!s.finite) {  // rare: the gathered copy only to name the first non-finite value
+    report.add({"finite", false,
+                detail::non_finite_sentence(detail::gather(v, options.layout)) + "; the symmetry checks were not run"});
     return report;
   }
   report.add({"finite", true, "all values are finite"});
-  const auto [lo, hi] = std::minmax_element(g.values.begin(), g.values.end());
-  const bool zero = *lo == 0 && *hi == 0;
+  const bool zero = s.lo == 0 && s.hi == 0;
   report.add({"zero", !zero,
-              zero ? "all " + std::to_string(g.values.size()) +
+              zero ? "all " + std::to_string(v.size()) +
                          " values are zero: every unit computes the same thing and symmetry is never broken"
                    : "not all values are zero"});
-  const bool constant = !zero && *lo == *hi;
+  const bool constant = !zero && s.lo == s.hi;
   report.add({"constant", !constant,
-              constant ? "every value is " + detail::short_number(*lo, 6) +
+              constant ? "every value is " + detail::short_number(s.lo, 6) +
                              ": a constant tensor leaves all units identical"
                        : "the values are not all equal"});
   if (zero || constant) return report;
 
-  const auto groups = detail::duplicate_groups(g);
-  std::uint64_t in_groups = 0;
-  for (const auto& group : groups) in_groups += group.size();
-  report.add({"duplicate-units", groups.empty(),
-              groups.empty() ? "no two units are equal"
-                             : "units " + detail::index_list(groups[0]) + " are exact duplicates (" +
-                                   std::to_string(groups.size()) + " group(s), " + std::to_string(in_groups) +
-                                   " units in all)"});
-
-  std::vector<std::uint64_t> flat_units;
-  if (g.cols >= 2) {
-    for (std::uint64_t r = 0; r < g.rows; ++r) {
-      bool all_same = true;
-      for (std::uint64_t j = 1; j < g.cols && all_same; ++j) all_same = g.values[r * g.cols + j] == g.values[r * g.cols];
-      if (all_same) flat_units.push_back(r);
-    }
-  }
-  report.add({"zero-variance-units", flat_units.empty(),
-              flat_units.empty() ? "every unit has varied incoming weights"
-                                 : std::to_string(flat_units.size()) + " unit(s) have zero variance, all " +
-                                       "incoming weights equal: units " + detail::index_list(flat_units)});
-
-  std::vector<unit_pair> pairs = detail::near_pairs(g, options.near_cosine, options.gram_limit);
+  detail::unit_pair_reader<E> units(reader);
+  const auto groups = detail::duplicate_groups(s, units);
+  report.add(detail::duplicate_finding(groups, reader, options.alpha));
+  report.add({"zero-variance-units", s.flat_units.empty(),
+              s.flat_units.empty() ? "every unit has varied incoming weights"
+                                   : std::to_string(s.flat_units.size()) + " unit(s) have zero variance, all " +
+                                         "incoming weights equal: units " + detail::index_list(s.flat_units)});
+  detail::near_search found = detail::near_pairs(s, units, options);
   // Exact duplicates are reported above; here only the pairs that are not equal.
-  pairs.erase(std::remove_if(pairs.begin(), pairs.end(),
-                             [&](const unit_pair& p) { return detail::same_unit(g, p.first, p.second); }),
-              pairs.end());
-  report.add({"near-duplicate-units", pairs.empty(),
-              pairs.empty() ? "no two units have cosine similarity >= " + detail::short_number(options.near_cosine, 6)
-                            : "units " + std::to_string(pairs[0].first) + " and " + std::to_string(pairs[0].second) +
-                                  " have cosine similarity " + detail::short_number(pairs[0].cosine, 6) +
-                                  ", at or above " + detail::short_number(options.near_cosine, 6) + " (" +
-                                  std::to_string(pairs.size()) + " pair(s) in all)"});
+  found.pairs.erase(std::remove_if(found.pairs.begin(), found.pairs.end(),
+                                   [&](const unit_pair& p) { return units.same(p.first, p.second); }),
+                    found.pairs.end());
+  report.add(detail::near_finding(found, units, options));
   return report;
 }
 

@@ -3,10 +3,17 @@
 // row = output unit, column = incoming connection), and notes non-finite values.
 // Every audit reads this copy, so each check is written once for every element type,
 // storage order and stride.
+//
+// unit_reader reads the same unit matrix one unit at a time without copying the tensor:
+// a pointer into the view when a unit is contiguous and already of its compute type
+// (float for float, float16 and bfloat16; double for double), otherwise the unit's
+// values converted into a caller's buffer of one unit. Audits that look at units one by
+// one (symmetry.hpp) keep their extra memory to a few values a unit this way.
 #ifndef KINDLING_AUDIT_DETAIL_GATHER_HPP
 #define KINDLING_AUDIT_DETAIL_GATHER_HPP
 
 #include <cmath>
+#include <cstddef>
 #include <cstdint>
 #include <limits>
 #include <stdexcept>
@@ -94,6 +101,68 @@ gathered gather(const strided_view<E>& v, weight_layout layout) {
   }
   return g;
 }
+
+/// The units of a whole view, read one at a time. Element (row o, column j = a inner + b)
+/// of the unit matrix sits at o on the unit axis, a's digits on the axes before it and
+/// b's on the axes after it, so its memory offset is o s + outer[a] + inner[b].
+template <class E>
+class unit_reader {
+ public:
+  using element = std::remove_const_t<E>;
+  using compute = compute_type_t<element>;
+
+  unit_reader(const strided_view<E>& v, weight_layout layout) : data_(v.data()) {
+    const shape& global = v.global_shape();
+    const std::size_t axis = unit_axis(layout, global.rank());
+    const unit_matrix um(global, layout);
+    rows_ = um.rows;
+    cols_ = um.cols;
+    unit_step_ = static_cast<std::ptrdiff_t>(v.stride(axis));
+    outer_ = offsets(v, 0, axis);
+    inner_ = offsets(v, axis + 1, global.rank());
+    direct_ = std::is_same<element, compute>::value && outer_.size() == 1;
+    for (std::size_t b = 0; b < inner_.size() && direct_; ++b) direct_ = inner_[b] == static_cast<std::ptrdiff_t>(b);
+  }
+
+  std::uint64_t rows() const noexcept { return rows_; }
+  std::uint64_t cols() const noexcept { return cols_; }
+  /// True when units are read in place (no conversion, no gather).
+  bool direct() const noexcept { return direct_; }
+
+  /// The cols values of unit o: in the view itself, or written to buffer (cols values).
+  const compute* unit(std::uint64_t o, compute* buffer) const {
+    const element* base = data_ + static_cast<std::ptrdiff_t>(o) * unit_step_;
+    if (direct_) return reinterpret_cast<const compute*>(base);
+    compute* out = buffer;
+    for (const std::ptrdiff_t a : outer_) {
+      for (const std::ptrdiff_t b : inner_) *out++ = static_cast<compute>(element_traits<element>::to_double(base[a + b]));
+    }
+    return buffer;
+  }
+
+ private:
+  // Memory offsets of every multi-index over axes [first, last), in row-major order.
+  static std::vector<std::ptrdiff_t> offsets(const strided_view<E>& v, std::size_t first, std::size_t last) {
+    std::vector<std::ptrdiff_t> out{0};
+    for (std::size_t d = first; d < last; ++d) {
+      std::vector<std::ptrdiff_t> next;
+      next.reserve(out.size() * static_cast<std::size_t>(v.global_shape()[d]));
+      for (const std::ptrdiff_t o : out) {
+        for (std::uint64_t i = 0; i < v.global_shape()[d]; ++i) {
+          next.push_back(o + static_cast<std::ptrdiff_t>(i) * static_cast<std::ptrdiff_t>(v.stride(d)));
+        }
+      }
+      out.swap(next);
+    }
+    return out;
+  }
+
+  const element* data_;
+  std::uint64_t rows_ = 0, cols_ = 0;
+  std::ptrdiff_t unit_step_ = 0;
+  std::vector<std::ptrdiff_t> outer_, inner_;
+  bool direct_ = false;
+};
 
 inline void require_whole(const gathered& g, const char* audit) {
   if (!g.whole) {
