@@ -67,3 +67,27 @@ TEST_CASE("gather reads a region through reversed and padded strides in region o
   CHECK_MESSAGE(g.first_non_finite == 31, "the first non-finite value in row-major order is global (3, 4)");
   CHECK(std::isinf(g.first_non_finite_value));
 }
+
+TEST_CASE("unit_reader gives each unit's values in place or through its buffer, in unit-matrix order") {
+  const shape global(3, 2, 4, 5);  // [k0, k1, in, out], units on the last axis
+  std::vector<float> memory(global.element_count());
+  for (std::uint64_t i = 0; i < memory.size(); ++i) memory[i] = tag(i);
+  const strided_view<const float> rm(memory.data(), global);
+  const detail::unit_reader<const float> reader(rm, weight_layout::spatial_in_out);
+  CHECK_FALSE(reader.direct());
+  std::vector<float> buffer(24);
+  bool ok = true;
+  for (std::uint64_t o = 0; o < 5; ++o) {
+    const float* unit = reader.unit(o, buffer.data());
+    for (std::uint64_t col = 0; col < 24; ++col) ok = ok && unit[col] == tag(col * 5 + o);
+  }
+  CHECK_MESSAGE(ok, "row o, column j must hold the element with o on the unit axis and j's digits on the others");
+  const detail::unit_reader<const float> rows(strided_view<const float>(memory.data(), shape(5, 24)), weight_layout::out_in);
+  CHECK(rows.direct());
+  CHECK(rows.unit(3, nullptr) == memory.data() + 72);
+  std::vector<bfloat16> half(6, round_to_bfloat16(1.5f));
+  const detail::unit_reader<const bfloat16> converted(strided_view<const bfloat16>(half.data(), shape(2, 3)),
+                                                      weight_layout::out_in);
+  CHECK_FALSE(converted.direct());
+  CHECK(converted.unit(1, buffer.data())[2] == 1.5f);
+}

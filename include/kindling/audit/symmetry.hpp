@@ -33,6 +33,9 @@
 //     the observed number of equal pairs D has Poisson tail P(X >= D; λ) < alpha
 //     (rare events; Chen–Stein, from memory), and is reported as undecidable, passing,
 //     when λ >= 1: then a copied unit cannot be told from chance.
+//   * Zero-variance units likewise: m · P(n elements all equal), estimated from the
+//     same sample, is their chance count (bfloat16 units of 2 connections are flat with
+//     probability q ≈ 0.3 % each).
 //
 // How, in bounded time and memory. One pass reads each unit in place (or through a
 // one-unit buffer, detail/gather.hpp's unit_reader), keeping per unit its minimum,
@@ -326,9 +329,16 @@ std::vector<std::vector<std::uint64_t>> duplicate_groups(const unit_summary& s, 
   return groups;
 }
 
-/// q = P(two elements are equal), from the values of up to 2^20 elements of units spread over the tensor.
+/// Chance rates of equal values, from up to 2^20 elements of units spread over the tensor:
+/// pair = P(two elements are equal), unit = P(a unit's n elements are all equal), each the
+/// unbiased estimate from the sample's counts of each value (falling factorials).
+struct equal_rates {
+  double pair = 0, unit = 0;
+  double pair_unit = 0;  // P(two units are equal) = pair^n
+};
+
 template <class E>
-double equal_value_rate(const unit_reader<E>& reader) {
+equal_rates equal_value_rates(const unit_reader<E>& reader) {
   using T = typename unit_reader<E>::compute;
   const std::uint64_t per = std::max<std::uint64_t>(1, (std::uint64_t{1} << 20) / reader.cols());
   const std::uint64_t step = std::max<std::uint64_t>(1, reader.rows() / per);
@@ -339,15 +349,30 @@ double equal_value_rate(const unit_reader<E>& reader) {
     for (std::uint64_t j = 0; j < reader.cols(); ++j) bits.push_back(value_bits(static_cast<double>(w[j])));
   }
   std::sort(bits.begin(), bits.end());
-  double equal = 0;
+  const double n = static_cast<double>(bits.size());
+  equal_rates out;
   for (std::size_t i = 0; i < bits.size();) {
     std::size_t k = i + 1;
     while (k < bits.size() && bits[k] == bits[i]) ++k;
-    equal += static_cast<double>(k - i) * static_cast<double>(k - i - 1);
+    const double c = static_cast<double>(k - i);
+    out.pair += c * (c - 1) / (n * (n - 1));
+    double all = 1;
+    for (std::uint64_t t = 0; t < reader.cols() && all > 0; ++t) all *= (c - double(t)) / (n - double(t));
+    out.unit += all;
     i = k;
   }
-  const double n = static_cast<double>(bits.size());
-  return n < 2 ? 0 : equal / (n * (n - 1));
+  out.pair_unit = std::pow(out.pair, static_cast<double>(reader.cols()));
+  return out;
+}
+
+/// A count of suspect findings against its chance mean: fails when P(X >= count) < alpha
+/// for X Poisson(lambda); undecided (passes) when lambda >= 1, chance alone explains it.
+inline audit_finding against_chance(const char* check, const std::string& found, std::uint64_t count, double lambda,
+                                    double alpha) {
+  const std::string said = found + "; " + short_number(lambda) + " expected by chance";
+  if (lambda >= 1) return {check, true, said + ": with so few distinct values a unit, chance explains it; not decided"};
+  const double p = poisson_tail(lambda, count);
+  return {check, p >= alpha, said + " (p = " + short_number(p) + ")", static_cast<double>(count), p};
 }
 
 /// How the near-duplicate search went.
@@ -493,25 +518,25 @@ unit_reader<E> whole_units(const strided_view<E>& v, weight_layout layout, const
   return unit_reader<E>(v, layout);
 }
 
-template <class E>
-audit_finding duplicate_finding(const std::vector<std::vector<std::uint64_t>>& groups, const unit_reader<E>& reader,
-                                double alpha) {
+inline audit_finding duplicate_finding(const std::vector<std::vector<std::uint64_t>>& groups, double units,
+                                       const equal_rates& rates, double alpha) {
   if (groups.empty()) return {"duplicate-units", true, "no two units are equal"};
   std::uint64_t in_groups = 0, equal_pairs = 0;
   for (const auto& group : groups) in_groups += group.size(), equal_pairs += group.size() * (group.size() - 1) / 2;
-  const double m = static_cast<double>(reader.rows());
-  const double lambda = m * (m - 1) / 2 * std::pow(equal_value_rate(reader), static_cast<double>(reader.cols()));
-  const std::string found = "units " + index_list(groups[0]) + " are exact duplicates (" +
-                            std::to_string(groups.size()) + " group(s), " + std::to_string(in_groups) +
-                            " units in all; " + std::to_string(equal_pairs) + " equal pair(s), " +
-                            short_number(lambda) + " expected by chance";
-  if (lambda >= 1) {
-    return {"duplicate-units", true,
-            found + "): with so few distinct values a unit, chance duplicates are expected and a copy cannot be "
-                    "told from them; not decided"};
-  }
-  const double p = poisson_tail(lambda, equal_pairs);
-  return {"duplicate-units", p >= alpha, found + ", p = " + short_number(p) + ")", static_cast<double>(equal_pairs), p};
+  return against_chance("duplicate-units",
+                        "units " + index_list(groups[0]) + " are exact duplicates (" + std::to_string(groups.size()) +
+                            " group(s), " + std::to_string(in_groups) + " units in all; " +
+                            std::to_string(equal_pairs) + " equal pair(s))",
+                        equal_pairs, units * (units - 1) / 2 * rates.pair_unit, alpha);
+}
+
+inline audit_finding flat_finding(const std::vector<std::uint64_t>& flat, double units, const equal_rates& rates,
+                                  double alpha) {
+  if (flat.empty()) return {"zero-variance-units", true, "every unit has varied incoming weights"};
+  return against_chance("zero-variance-units",
+                        std::to_string(flat.size()) + " unit(s) have zero variance, all incoming weights equal: units " +
+                            index_list(flat),
+                        flat.size(), units * rates.unit, alpha);
 }
 
 template <class E>
@@ -585,11 +610,12 @@ audit_report check_symmetry(const strided_view<E>& v, const symmetry_options& op
 
   detail::unit_pair_reader<E> units(reader);
   const auto groups = detail::duplicate_groups(s, units);
-  report.add(detail::duplicate_finding(groups, reader, options.alpha));
-  report.add({"zero-variance-units", s.flat_units.empty(),
-              s.flat_units.empty() ? "every unit has varied incoming weights"
-                                   : std::to_string(s.flat_units.size()) + " unit(s) have zero variance, all " +
-                                         "incoming weights equal: units " + detail::index_list(s.flat_units)});
+  // The chance rates need a sort of up to 2^20 values: only when something was found.
+  const detail::equal_rates rates =
+      groups.empty() && s.flat_units.empty() ? detail::equal_rates{} : detail::equal_value_rates(reader);
+  const double m = static_cast<double>(reader.rows());
+  report.add(detail::duplicate_finding(groups, m, rates, options.alpha));
+  report.add(detail::flat_finding(s.flat_units, m, rates, options.alpha));
   detail::near_search found = detail::near_pairs(s, units, options);
   // Exact duplicates are reported above; here only the pairs that are not equal.
   found.pairs.erase(std::remove_if(found.pairs.begin(), found.pairs.end(),
