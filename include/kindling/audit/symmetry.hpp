@@ -435,24 +435,27 @@ near_search near_pairs(const unit_summary& s, unit_pair_reader<E>& units, const 
   const int bands = agree0 >= 1 ? 1 : std::min(16, std::max(1, static_cast<int>(std::ceil(std::log(1e-3) / std::log1p(-agree0)))));
   const double cap = 64 * m + 4096;
   const stream projections = make_stream(0, "kindling.audit.near-duplicate-units");
-  std::vector<float> plane;
+  std::vector<float> plane, dots;
   std::vector<std::pair<std::uint64_t, std::uint64_t>> entries;
   out.miss = 1;
   for (int band = 0; band < bands; ++band) {
     for (std::uint64_t bits = bits0;; bits *= 2) {
-      plane.assign(static_cast<std::size_t>(bits * s.width), 0.0f);
-      fill(strided_view<float>(plane.data(), shape(bits, s.width)), dist::normal{0, 1},
+      plane.assign(static_cast<std::size_t>(bits * s.width), 0.0f);  // width × bits: plane t is column t
+      fill(strided_view<float>(plane.data(), shape(s.width, bits)), dist::normal{0, 1},
            projections.indexed(static_cast<std::uint64_t>(band) * 64 + bits));
+      dots.resize(static_cast<std::size_t>(bits));
       entries.clear();
       for (std::uint64_t r = 0; r < s.rows; ++r) {
         if (zero[r]) continue;
         const float* x = &s.sketch[static_cast<std::size_t>(r * s.width)];
+        std::fill(dots.begin(), dots.end(), 0.0f);
+        for (std::uint64_t i = 0; i < s.width; ++i) {  // all planes at once: an elementwise loop that vectorizes
+          const float* p = &plane[static_cast<std::size_t>(i * bits)];
+          for (std::uint64_t t = 0; t < bits; ++t) dots[t] += p[t] * x[i];
+        }
         std::uint64_t key = 0x62616e64u, word = 0;
         for (std::uint64_t t = 0; t < bits; ++t) {
-          const float* p = &plane[static_cast<std::size_t>(t * s.width)];
-          float dot = 0;
-          for (std::uint64_t i = 0; i < s.width; ++i) dot += p[i] * x[i];
-          word = (word << 1) | (dot > 0 ? 1u : 0u);
+          word = (word << 1) | (dots[t] > 0 ? 1u : 0u);
           if (t % 64 == 63 || t + 1 == bits) key = mix64(key ^ word), word = 0;
         }
         entries.push_back({key, r});
