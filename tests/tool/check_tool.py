@@ -228,6 +228,12 @@ elif CASE == "json":
         expect(word in texts, f"the SVG lacks the text {word!r}")
     expect(len(list(svg.iter("{http://www.w3.org/2000/svg}circle"))) >= 14, "the SVG lacks the measured points")
 elif CASE == "outputs":
+    def npy_shape(path):
+        try:
+            return np.load(path).shape
+        except (OSError, ValueError) as e:
+            return f"unreadable ({e})"
+
     # Outputs go through an exclusive temporary file with a random name and an atomic
     # rename (kindling/io/replace_file.hpp): nothing planted beside the output is
     # followed or consumed, links are written through, odd files are refused.
@@ -238,9 +244,9 @@ elif CASE == "outputs":
             os.remove(stale)
     os.symlink("victim.txt", "out.npy.kindling-partial")       # the old fixed temporary name
     expect_code(0, "draw", "--scheme", "he-normal", "--shape", "8x4", "-o", "out.npy")
-    expect(open("victim.txt").read() == "victim", "draw wrote through a link planted beside the output")
+    expect(open("victim.txt", "rb").read() == b"victim", "draw wrote through a link planted beside the output")
     expect(os.path.islink("out.npy.kindling-partial"), "draw consumed a file planted beside the output")
-    expect(not os.path.islink("out.npy") and np.load("out.npy").shape == (8, 4), "out.npy is not the new file")
+    expect(not os.path.islink("out.npy") and npy_shape("out.npy") == (8, 4), "out.npy is not the new file")
     # a symlinked output is written through: the link stays, its target gets the values and keeps its mode
     with open("real.npy", "wb") as f:
         f.write(b"old")
@@ -250,7 +256,7 @@ elif CASE == "outputs":
     os.symlink("real.npy", "link.npy")
     expect_code(0, "draw", "--scheme", "he-normal", "--shape", "8x4", "-o", "link.npy")
     expect(os.path.islink("link.npy"), "a symlinked output was replaced by a file")
-    expect(np.load("real.npy").shape == (8, 4), "the link's target does not hold the new values")
+    expect(npy_shape("real.npy") == (8, 4), "the link's target does not hold the new values")
     expect(os.stat("real.npy").st_mode & 0o777 == 0o640, f"mode {oct(os.stat('real.npy').st_mode)} not kept")
     # a 254-byte name (NAME_MAX is 255): the temporary name is shortened, not refused
     long_name = "p" * 250 + ".npy"
@@ -336,8 +342,11 @@ elif CASE == "limits":
     # Readers stop at what an input may legitimately need; sizes are estimated before
     # memory is allocated, naming the option.
     for args, name in ((["check", "/dev/zero"], "FILE '/dev/zero'"), (["plan", "/dev/zero"], "SPEC '/dev/zero'")):
-        p = subprocess.run([KINDLING, *args], capture_output=True, text=True, timeout=60)
-        expect(p.returncode == 2 and name in p.stderr and "bad_alloc" not in p.stderr, f"{args}: {p.stderr!r}")
+        try:
+            p = subprocess.run([KINDLING, *args], capture_output=True, text=True, timeout=60)
+            expect(p.returncode == 2 and name in p.stderr and "bad_alloc" not in p.stderr, f"{args}: {p.stderr!r}")
+        except subprocess.TimeoutExpired:
+            failures.append(f"{args}: still reading after 60 s")
     os.makedirs("adir", exist_ok=True)
     for args, name in ((["check", "adir"], "FILE 'adir'"), (["plan", "adir"], "SPEC 'adir'")):
         _, err = expect_code(2, *args)
