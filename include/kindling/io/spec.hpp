@@ -14,7 +14,9 @@
 // Anything else -- an unknown or repeated key, a value of the wrong type, a negative
 // or fractional width, a non-finite number -- is a std::invalid_argument or
 // std::domain_error naming the key's path (e.g. layers[2].width), its value and what
-// was expected.
+// was expected. Hostile input is bounded before it is parsed: a file of at most
+// spec_max_bytes, nested at most spec_max_depth levels; a gain whose square (the weight
+// variance factor) overflows or vanishes is refused under its key.
 //
 // Needs nlohmann-json (Debian nlohmann-json3-dev) and, for the orthogonal scheme's
 // variance, Eigen; the core of kindling needs neither.
