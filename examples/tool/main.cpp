@@ -50,7 +50,7 @@ struct integer_option {
 };
 
 void add(CLI::App* app, integer_option& m, const std::string& help) {
-  m.option = app->add_option(m.name, m.text, help);
+  m.option = app->add_option(m.name, m.text, help)->type_name("UINT");
 }
 
 // Limits of the integer options: a fan or a sparse count is used as a double, so at
