@@ -138,7 +138,7 @@ void print_report(const char* heading, const audit_report& r) {
 
 int run_check(const check_options& o) {
   if (o.file.empty()) throw std::invalid_argument("FILE is missing: expected the .npy file to check");
-  const npy_array a = read_npy(o.file);
+  const npy_array a = read_npy(o.file, max_check_elements, "FILE");
   if (a.shape.empty()) {
     throw std::invalid_argument("'" + o.file + "' holds a 0-d array, expected a weight tensor of rank 1 to 5");
   }

@@ -27,6 +27,16 @@ std::string number_text(double x, int digits) {
   return buffer;
 }
 
+std::string bytes_text(double bytes) {
+  const char* units[] = {"bytes", "KiB", "MiB", "GiB", "TiB", "PiB", "EiB"};
+  int u = 0;
+  while (bytes >= 1024 && u < 6) {
+    bytes /= 1024;
+    ++u;
+  }
+  return number_text(bytes, 3) + " " + units[u];
+}
+
 namespace {
 
 // A decimal count: digits only, no sign, fits in 64 bits.
@@ -55,6 +65,16 @@ std::vector<std::string> split(const std::string& s, char sep) {
 }
 
 }  // namespace
+
+std::uint64_t parse_integer(const std::string& option, const std::string& text, std::uint64_t min,
+                            std::uint64_t max) {
+  std::uint64_t v = 0;
+  if (!parse_count(text, &v) || v < min || v > max) {
+    throw std::invalid_argument(option + " '" + text + "': expected a whole number from " + std::to_string(min) +
+                                " to " + std::to_string(max) + " (decimal digits only)");
+  }
+  return v;
+}
 
 std::vector<std::uint64_t> parse_shape(const std::string& text) {
   std::vector<std::uint64_t> shape;

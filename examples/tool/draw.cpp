@@ -14,6 +14,7 @@
 #include <kindling/schemes/scheme.hpp>
 #include <kindling/view.hpp>
 
+#include "output.hpp"
 #include "schemes.hpp"
 #include "tool.hpp"
 
@@ -24,6 +25,14 @@ namespace {
 // Values are computed for the region only; the cap keeps a typo in --shape from
 // asking for more memory than a machine has.
 constexpr std::uint64_t max_elements = std::uint64_t{1} << 32;
+
+// Bytes an element of --dtype takes; an unknown --dtype is refused here, before any work.
+std::uint64_t element_bytes(const std::string& dtype) {
+  if (dtype == "f32") return 4;
+  if (dtype == "f64") return 8;
+  if (dtype == "f16" || dtype == "bf16") return 2;
+  throw std::invalid_argument("--dtype '" + dtype + "': expected f32, f64, f16 or bf16");
+}
 
 template <class E>
 npy_array draw_values(const any_scheme& scheme, const std::vector<std::uint64_t>& global,
@@ -53,26 +62,36 @@ int run_draw(const draw_options& o) {
   }
   std::vector<std::uint64_t> offset(global.size(), 0), extent = global;
   if (!o.region.empty()) parse_region(o.region, global, &offset, &extent);
+  const std::uint64_t item = element_bytes(o.dtype);
   std::uint64_t n = 1;
   for (std::uint64_t e : extent) {
     if (e != 0 && n > max_elements / e) n = max_elements + 1;
     else n *= e;
   }
+  const std::string asked = "--shape " + o.shape + (o.region.empty() ? "" : " --region " + o.region);
   if (n > max_elements) {
-    throw std::length_error("--shape " + o.shape + (o.region.empty() ? "" : " --region " + o.region) +
-                            " asks for more than 2^32 elements in one file; expected at most 2^32 (use --region)");
+    throw std::length_error(asked + " asks for more than 2^32 elements in one file; expected at most 2^32 (use --region)");
+  }
+  // The values and their encoded file are held together once: twice the file's data.
+  const double peak = 2.0 * static_cast<double>(n) * static_cast<double>(item);
+  if (peak > static_cast<double>(memory_budget)) {
+    throw std::length_error(asked + " (" + o.dtype + ", " + std::to_string(n) + " values) needs about " +
+                            bytes_text(peak) + " of memory; expected at most " +
+                            bytes_text(static_cast<double>(memory_budget)) +
+                            " (the tool's memory cap): write it in blocks with --region");
   }
   if (o.threads == 0) throw std::invalid_argument("--threads 0: expected at least 1 thread");
   if (o.output.empty()) throw std::invalid_argument("-o is missing: expected the output .npy file");
+  check_output("-o", o.output, {});
+  check_fits_element(o.scheme, o.dtype);
   const weight_info w{f, layout};
   const stream s = make_stream(o.seed, o.name);
   npy_array out;
   if (o.dtype == "f32") out = draw_values<float>(scheme, global, offset, extent, w, s, o.threads);
   else if (o.dtype == "f64") out = draw_values<double>(scheme, global, offset, extent, w, s, o.threads);
   else if (o.dtype == "f16") out = draw_values<float16>(scheme, global, offset, extent, w, s, o.threads);
-  else if (o.dtype == "bf16") out = draw_values<bfloat16>(scheme, global, offset, extent, w, s, o.threads);
-  else throw std::invalid_argument("--dtype '" + o.dtype + "': expected f32, f64, f16 or bf16");
-  write_npy(o.output, out);
+  else out = draw_values<bfloat16>(scheme, global, offset, extent, w, s, o.threads);
+  write_output("-o", o.output, encode_npy(out));
   std::string fan_text;
   if (f.fan_in != 0) fan_text = ", fan-in " + std::to_string(f.fan_in) + ", fan-out " + std::to_string(f.fan_out);
   std::printf("wrote %s: %s %s %s%s%s, seed %llu, name '%s'%s\n", o.output.c_str(), o.scheme.scheme.c_str(),

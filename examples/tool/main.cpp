@@ -3,6 +3,7 @@
 // line on stderr.
 #include <cstdio>
 #include <exception>
+#include <new>
 #include <stdexcept>
 #include <string>
 
@@ -35,14 +36,36 @@ void add(CLI::App* app, maybe<T>& m, const std::string& name, const std::string&
   m.option = app->add_option(name, m.value, help);
 }
 
+// An integer option, taken by CLI11 as text and parsed by parse_integer (common.cpp),
+// which refuses what CLI11 would wrap or clamp (-1, 2^64, '') with a message.
+struct integer_option {
+  std::string name;
+  std::uint64_t min = 0, max = ~std::uint64_t{0};
+  std::string text;
+  CLI::Option* option = nullptr;
+  std::optional<std::uint64_t> get() const {
+    if (option->count() == 0) return std::nullopt;
+    return parse_integer(name, text, min, max);
+  }
+};
+
+void add(CLI::App* app, integer_option& m, const std::string& help) {
+  m.option = app->add_option(m.name, m.text, help)->type_name("UINT");
+}
+
+// Limits of the integer options: a fan or a sparse count is used as a double, so at
+// most 2^53; a thread count beyond 4096 is a typo, not a machine.
+constexpr std::uint64_t max_exact_count = std::uint64_t{1} << 53;
+constexpr std::uint64_t max_threads = 4096;
+
 struct scheme_flags {
   maybe<double> gain, stddev, value;
-  maybe<std::uint64_t> nonzero;
+  integer_option nonzero{"--nonzero", 1, max_exact_count, {}, nullptr};
   void attach(CLI::App* app) {
     add(app, gain, "--gain", "Gain of Glorot, He, LeCun (then sd = gain/sqrt(fan)), orthogonal, identity schemes");
     add(app, stddev, "--std", "Standard deviation of uniform, normal, truncated-normal, and sparse's nonzeros");
     add(app, value, "--value", "The value of the constant scheme");
-    add(app, nonzero, "--nonzero", "Nonzero incoming weights a unit for sparse (default 15)");
+    add(app, nonzero, "Nonzero incoming weights a unit for sparse (default 15)");
   }
   void into(scheme_arguments& a) const {
     a.gain = gain.get();
@@ -64,7 +87,10 @@ int main(int argc, char** argv) {
 
   draw_options draw;
   scheme_flags draw_flags;
-  maybe<std::uint64_t> draw_fan_in, draw_fan_out;
+  integer_option draw_fan_in{"--fan-in", 1, max_exact_count, {}, nullptr};
+  integer_option draw_fan_out{"--fan-out", 1, max_exact_count, {}, nullptr};
+  integer_option draw_seed{"--seed", 0, ~std::uint64_t{0}, {}, nullptr};
+  integer_option draw_threads{"--threads", 1, max_threads, {}, nullptr};
   CLI::App* draw_cmd = app.add_subcommand("draw", "Write the values a scheme gives a parameter to a .npy file");
   draw_cmd->add_option("--scheme", draw.scheme.scheme,
                        "zeros, constant, uniform, normal, truncated-normal, glorot-uniform, glorot-normal, "
@@ -74,36 +100,41 @@ int main(int argc, char** argv) {
   draw_cmd->add_option("--layout", draw.layout,
                        "Axes: oi (default for rank 2), io; oiw/oihw/oidhw (default for rank 3-5), wio/hwio/dhwio, "
                        "owi/ohwi/odhwi; transposed: iow/iohw/iodhw, woi/hwoi/dhwoi");
-  add(draw_cmd, draw_fan_in, "--fan-in", "Override the fan-in the layout gives");
-  add(draw_cmd, draw_fan_out, "--fan-out", "Override the fan-out the layout gives");
+  add(draw_cmd, draw_fan_in, "Override the fan-in the layout gives");
+  add(draw_cmd, draw_fan_out, "Override the fan-out the layout gives");
   draw_flags.attach(draw_cmd);
-  draw_cmd->add_option("--seed", draw.seed, "Seed (default 0)");
+  add(draw_cmd, draw_seed, "Seed, 0 to 2^64 - 1 (default 0)");
   draw_cmd->add_option("--name", draw.name, "Parameter name, part of the stream (default 'weight')");
   draw_cmd->add_option("--dtype", draw.dtype, "f32 (default), f64, f16 or bf16");
-  draw_cmd->add_option("--threads", draw.threads, "Threads (default 1; the values do not depend on it)");
-  draw_cmd->add_option("--region", draw.region, "Write only this block, start:end per axis, e.g. 0:128,0:256");
+  add(draw_cmd, draw_threads, "Threads (default 1; the values do not depend on it)");
+  CLI::Option* draw_region =
+      draw_cmd->add_option("--region", draw.region, "Write only this block, start:end per axis, e.g. 0:128,0:256");
   draw_cmd->add_option("-o,--output", draw.output, "Output .npy file")->required();
 
   check_options check;
   scheme_flags check_flags;
-  maybe<std::uint64_t> check_fan_in, check_fan_out;
+  integer_option check_fan_in{"--fan-in", 1, max_exact_count, {}, nullptr};
+  integer_option check_fan_out{"--fan-out", 1, max_exact_count, {}, nullptr};
   CLI::App* check_cmd = app.add_subcommand("check", "Audit a .npy weight file");
   check_cmd->add_option("FILE", check.file, "The .npy file")->required();
   check_cmd->add_option("--expect", check.expect.scheme, "Check conformance with this scheme (as draw --scheme)");
   check_cmd->add_option("--layout", check.layout, "Axes of the file, as for draw");
-  add(check_cmd, check_fan_in, "--fan-in", "Override the fan-in the layout gives");
-  add(check_cmd, check_fan_out, "--fan-out", "Override the fan-out the layout gives");
+  add(check_cmd, check_fan_in, "Override the fan-in the layout gives");
+  add(check_cmd, check_fan_out, "Override the fan-out the layout gives");
   check_flags.attach(check_cmd);
   check_cmd->add_flag("--identify", check.identify, "Rank the schemes the values fit, best first");
   check_cmd->add_flag("--json", check.json, "Print the results as JSON");
 
   plan_options plan;
+  integer_option plan_batch{"--batch", 2, std::uint64_t{1} << 32, {}, nullptr};
+  integer_option plan_seed{"--seed", 0, ~std::uint64_t{0}, {}, nullptr};
+  integer_option plan_threads{"--threads", 1, max_threads, {}, nullptr};
   CLI::App* plan_cmd = app.add_subcommand("plan", "Variance through depth for a layer stack (a JSON spec)");
   plan_cmd->add_option("SPEC", plan.spec, "Network spec .json (default: a built-in pump vibration classifier)");
   plan_cmd->add_flag("--measure", plan.measure, "Also measure on a batch through the stack as drawn");
-  plan_cmd->add_option("--batch", plan.batch, "Samples for --measure (default 1024)");
-  plan_cmd->add_option("--seed", plan.seed, "Seed of the weights and inputs for --measure (default 0)");
-  plan_cmd->add_option("--threads", plan.threads, "Threads for --measure (default 1)");
+  add(plan_cmd, plan_batch, "Samples for --measure (default 1024)");
+  add(plan_cmd, plan_seed, "Seed of the weights and inputs for --measure, 0 to 2^64 - 1 (default 0)");
+  add(plan_cmd, plan_threads, "Threads for --measure (default 1)");
   plan_cmd->add_flag("--json", plan.json, "Print the table as JSON");
   plan_cmd->add_option("--svg", plan.svg, "Write the variance-through-depth plot to this SVG file");
 
@@ -120,6 +151,12 @@ int main(int argc, char** argv) {
       draw_flags.into(draw.scheme);
       draw.fan_in = draw_fan_in.get();
       draw.fan_out = draw_fan_out.get();
+      draw.seed = draw_seed.get().value_or(draw.seed);
+      draw.threads = static_cast<std::size_t>(draw_threads.get().value_or(draw.threads));
+      if (draw_region->count() && draw.region.empty()) {
+        throw std::invalid_argument("--region '': expected start:end for each axis, e.g. 0:128,0:256 "
+                                    "(leave --region out for the whole tensor)");
+      }
       return run_draw(draw);
     }
     if (check_cmd->parsed()) {
@@ -131,7 +168,22 @@ int main(int argc, char** argv) {
       }
       return run_check(check);
     }
+    plan.batch = plan_batch.get().value_or(plan.batch);
+    plan.seed = plan_seed.get().value_or(plan.seed);
+    plan.threads = static_cast<std::size_t>(plan_threads.get().value_or(plan.threads));
     return run_plan(plan);
+  } catch (const std::bad_alloc&) {
+    // The sizes were estimated before allocating; if memory still ran out, say which
+    // options sized the work rather than only "std::bad_alloc".
+    const std::string what =
+        draw_cmd->parsed()    ? "for --shape " + draw.shape + (draw.region.empty() ? "" : " --region " + draw.region) +
+                                 " --dtype " + draw.dtype + "; expected a smaller tensor, or write it in blocks with --region"
+        : check_cmd->parsed() ? "reading FILE '" + check.file + "'; expected a smaller file, or more free memory"
+                              : "for SPEC '" + (plan.spec.empty() ? std::string("(built-in)") : plan.spec) +
+                                   "'" + (plan.measure ? " with --batch " + std::to_string(plan.batch) : std::string()) +
+                                   "; expected a smaller network" + (plan.measure ? " or --batch" : "");
+    std::fprintf(stderr, "kindling %s: error: out of memory %s\n", command, one_line(what).c_str());
+    return exit_bad_input;
   } catch (const std::exception& e) {
     std::fprintf(stderr, "kindling %s: error: %s\n", command, one_line(e.what()).c_str());
     return exit_bad_input;

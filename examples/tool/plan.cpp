@@ -21,6 +21,7 @@
 #include <kindling/propagate/mean_field.hpp>
 #include <kindling/propagate/measure.hpp>
 
+#include "output.hpp"
 #include "plot.hpp"
 #include "tool.hpp"
 
@@ -72,14 +73,38 @@ struct progress_executor {
 
 std::string std_text(double variance) { return number_text(std::sqrt(variance), 4); }
 
+// --measure holds the weights and, for a batch, each layer's activations forward and
+// gradients backward (doubles); refused above the tool's memory cap before anything is
+// drawn, naming --batch and the spec's widths.
+void check_measure_memory(const network_spec& spec, std::uint64_t batch) {
+  double weights = 0, units = static_cast<double>(spec.input_width);
+  double width = static_cast<double>(spec.input_width);
+  for (const layer_spec& l : spec.layers) {
+    weights += width * static_cast<double>(l.width);
+    width = static_cast<double>(l.width);
+    units += width;
+  }
+  const double peak = 8.0 * (weights + 2.0 * static_cast<double>(batch) * units);
+  if (peak > static_cast<double>(memory_budget)) {
+    throw std::length_error("--batch " + std::to_string(batch) + " with --measure needs about " + bytes_text(peak) +
+                            " of memory for the spec's " + number_text(units, 6) + " units and " +
+                            number_text(weights, 6) + " weights; expected at most " +
+                            bytes_text(static_cast<double>(memory_budget)) +
+                            " (the tool's memory cap): give a smaller --batch");
+  }
+}
+
 }  // namespace
 
 int run_plan(const plan_options& o) {
-  const network_spec spec = o.spec.empty() ? parse_network_spec(pump_classifier, "(built-in)") : read_network_spec(o.spec);
+  const network_spec spec =
+      o.spec.empty() ? parse_network_spec(pump_classifier, "(built-in)") : read_network_spec(o.spec, "SPEC");
   if (o.threads == 0) throw std::invalid_argument("--threads 0: expected at least 1 thread");
   if (o.measure && o.batch < 2) {
     throw std::invalid_argument("--batch " + std::to_string(o.batch) + ": expected at least 2 samples");
   }
+  if (o.measure) check_measure_memory(spec, o.batch);
+  if (!o.svg.empty()) check_output("--svg", o.svg, {{"SPEC", o.spec}});
   const layer_stack stack = build_stack(spec);
   const std::vector<layer_prediction> predicted = predict(stack);
   propagation_report measured;
@@ -139,7 +164,7 @@ int run_plan(const plan_options& o) {
                                  (o.measure ? std::string(" and a pass of ") + std::to_string(o.batch) +
                                                   " samples through the drawn weights (seed " + std::to_string(o.seed) + ")"
                                             : std::string(" (add --measure for measured points)"));
-    write_file_replacing(o.svg, variance_plot_svg(title, subtitle, series, stack.depth()));
+    write_output("--svg", o.svg, variance_plot_svg(title, subtitle, series, stack.depth()));
   }
   if (o.json) {
     json out = {{"layers", layers}, {"warnings", warnings}};

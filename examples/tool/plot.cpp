@@ -16,10 +16,16 @@ std::string fmt(double x) {
   return b;
 }
 
+// Text as XML character data. Control characters are not allowed in XML 1.0, not even
+// as character references, so a name from a spec that holds one (JSON allows "\u0001")
+// shows U+FFFD instead, and tab, newline and return show as a space.
 std::string escape(const std::string& s) {
   std::string o;
   for (char c : s) {
-    if (c == '&') o += "&amp;";
+    const auto u = static_cast<unsigned char>(c);
+    if (c == '\t' || c == '\n' || c == '\r') o += ' ';
+    else if (u < 0x20 || u == 0x7f) o += "\xEF\xBF\xBD";
+    else if (c == '&') o += "&amp;";
     else if (c == '<') o += "&lt;";
     else if (c == '>') o += "&gt;";
     else if (c == '"') o += "&quot;";

@@ -4,6 +4,7 @@
 #define KINDLING_TOOL_SCHEMES_HPP
 
 #include <cmath>
+#include <limits>
 #include <stdexcept>
 #include <string>
 #include <variant>
@@ -49,9 +50,19 @@ inline any_scheme make_scheme(const scheme_arguments& a) {
   if (fixed && !a.stddev) throw std::invalid_argument("scheme '" + s + "' needs --std (its standard deviation)");
   if (s == "constant" && !a.value) throw std::invalid_argument("scheme 'constant' needs --value");
   const double gain = a.gain.value_or(1.0);
+  const bool fan_rule = gained && s != "orthogonal" && s != "identity" && s != "delta-orthogonal";
+  // The fan-scaled schemes square the gain (Var W = gain^2 / fan): a gain whose square
+  // overflows or vanishes in double is refused here, under the user's own option name,
+  // rather than deep in the library under an internal one.
+  if (a.gain && (!std::isfinite(gain) || (fan_rule && !(gain > 0 && std::isfinite(gain * gain) &&
+                                                        gain * gain >= std::numeric_limits<double>::min())))) {
+    throw std::invalid_argument("--gain " + number_text(gain, 6) + ": expected a finite number" +
+                                (fan_rule ? std::string(" > 0 whose square (the variance factor of '" + s +
+                                                        "') is finite and nonzero, e.g. 1e-150 to 1e150")
+                                          : std::string()));
+  }
   const auto scaled = [&](fan_scaled rule) -> any_scheme {
     if (!a.gain) return rule;
-    detail::require_positive_argument(gain, "fan_scaled", "gain");
     rule.scale = gain * gain;
     return rule;
   };
@@ -73,6 +84,33 @@ inline any_scheme make_scheme(const scheme_arguments& a) {
   if (a.nonzero) sp.nonzero = *a.nonzero;
   if (a.stddev) sp.stddev = *a.stddev;
   return sp;
+}
+
+/// The largest finite value of the element type --dtype names (f32, f64, f16, bf16).
+inline double element_max(const std::string& dtype) {
+  if (dtype == "f64") return std::numeric_limits<double>::max();
+  if (dtype == "f16") return 65504.0;                       // (2 - 2^-10) * 2^15
+  if (dtype == "bf16") return 3.3895313892515355e38;        // (2 - 2^-7) * 2^127
+  return static_cast<double>(std::numeric_limits<float>::max());
+}
+
+/// Refuses arguments whose values do not fit --dtype: a constant beyond its largest
+/// value would be written as +-inf, and an orthogonal or identity gain beyond it would
+/// be clamped (no longer orthogonal); a --std beyond it draws mostly infinities.
+inline void check_fits_element(const scheme_arguments& a, const std::string& dtype) {
+  const double top = element_max(dtype);
+  const auto refuse = [&](const char* option, double x, const char* why) {
+    throw std::invalid_argument(std::string(option) + " " + number_text(x, 6) + " does not fit --dtype " + dtype +
+                                " (largest finite value " + number_text(top, 6) + "): " + why +
+                                "; expected a magnitude of at most " + number_text(top, 6));
+  };
+  const std::string& s = a.scheme;
+  if (a.value && !(std::fabs(*a.value) <= top)) refuse("--value", *a.value, "it would be written as infinity");
+  if (a.gain && (s == "orthogonal" || s == "identity" || s == "delta-orthogonal") && !(std::fabs(*a.gain) <= top)) {
+    refuse("--gain", *a.gain, "the values would be clamped and no longer orthogonal");
+  }
+  const double spread = s == "uniform" ? std::sqrt(3.0) : 1.0;
+  if (a.stddev && !(std::fabs(*a.stddev) * spread <= top)) refuse("--std", *a.stddev, "most values would be infinite");
 }
 
 /// Whether the scheme divides by a fan (and so needs fans).

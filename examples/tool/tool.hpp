@@ -62,6 +62,17 @@ struct plan_options {
   std::size_t threads = 1;
 };
 
+/// The memory a run may plan to use: draw and plan estimate their peak before
+/// allocating and refuse above it, naming the option that asked (--shape, --batch);
+/// check reads files of at most max_check_elements elements. 8 GiB fits the machines
+/// the tool is for and keeps a typo from starting a swap storm.
+inline constexpr std::uint64_t memory_budget = std::uint64_t{8} << 30;
+/// check holds about 32 bytes an element (the file's data, its values as doubles, a
+/// regenerated copy and the audits' work space).
+inline constexpr std::uint64_t max_check_elements = memory_budget / 32;
+/// "8 GiB", "1.5 MiB": a size for a message.
+std::string bytes_text(double bytes);
+
 int run_draw(const draw_options& o);
 int run_check(const check_options& o);
 int run_plan(const plan_options& o);
@@ -70,6 +81,13 @@ int run_plan(const plan_options& o);
 
 /// The scheme names `draw` accepts, in the order the help lists them.
 const std::vector<std::string>& scheme_names();
+
+/// The whole number `text` given to `option`: decimal digits only (no sign, space or
+/// trailing junk), from `min` to `max`. Anything else, an empty text or a value beyond
+/// 2^64 - 1 included, is std::invalid_argument naming the option, the text and the range
+/// (CLI11 would wrap -1 or clamp 2^64 to 2^64 - 1 without a word).
+std::uint64_t parse_integer(const std::string& option, const std::string& text, std::uint64_t min,
+                            std::uint64_t max);
 
 /// "512x256" -> {512, 256}; every size a positive integer.
 std::vector<std::uint64_t> parse_shape(const std::string& text);

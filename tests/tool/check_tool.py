@@ -108,7 +108,8 @@ elif CASE == "untouched":
         expect_code(2, "draw", *bad, "-o", "keep.npy")
         with open("keep.npy", "rb") as f:
             expect(f.read() == b"precious", f"draw {' '.join(bad)} changed the existing output file")
-        expect(not os.path.exists("keep.npy.kindling-partial"), "a temporary file was left behind")
+        expect(not [n for n in os.listdir(".") if n.endswith((".kindling-tmp", ".kindling-partial"))],
+               "a temporary file was left behind")
     # ... and a good run replaces it completely.
     expect_code(0, "draw", "--scheme", "he-normal", "--shape", "8x4", "-o", "keep.npy")
     expect(np.load("keep.npy").shape == (8, 4), "a good run should replace the file")
@@ -226,6 +227,170 @@ elif CASE == "json":
     for word in ("layer (depth)", "variance (log scale)", "predicted", "measured"):
         expect(word in texts, f"the SVG lacks the text {word!r}")
     expect(len(list(svg.iter("{http://www.w3.org/2000/svg}circle"))) >= 14, "the SVG lacks the measured points")
+elif CASE == "outputs":
+    def npy_shape(path):
+        try:
+            return np.load(path).shape
+        except (OSError, ValueError) as e:
+            return f"unreadable ({e})"
+
+    # Outputs go through an exclusive temporary file with a random name and an atomic
+    # rename (kindling/io/replace_file.hpp): nothing planted beside the output is
+    # followed or consumed, links are written through, odd files are refused.
+    with open("victim.txt", "w") as f:
+        f.write("victim")
+    for stale in ("out.npy.kindling-partial",):
+        if os.path.lexists(stale):
+            os.remove(stale)
+    os.symlink("victim.txt", "out.npy.kindling-partial")       # the old fixed temporary name
+    expect_code(0, "draw", "--scheme", "he-normal", "--shape", "8x4", "-o", "out.npy")
+    expect(open("victim.txt", "rb").read() == b"victim", "draw wrote through a link planted beside the output")
+    expect(os.path.islink("out.npy.kindling-partial"), "draw consumed a file planted beside the output")
+    expect(not os.path.islink("out.npy") and npy_shape("out.npy") == (8, 4), "out.npy is not the new file")
+    # a symlinked output is written through: the link stays, its target gets the values and keeps its mode
+    with open("real.npy", "wb") as f:
+        f.write(b"old")
+    os.chmod("real.npy", 0o640)
+    if os.path.lexists("link.npy"):
+        os.remove("link.npy")
+    os.symlink("real.npy", "link.npy")
+    expect_code(0, "draw", "--scheme", "he-normal", "--shape", "8x4", "-o", "link.npy")
+    expect(os.path.islink("link.npy"), "a symlinked output was replaced by a file")
+    expect(npy_shape("real.npy") == (8, 4), "the link's target does not hold the new values")
+    expect(os.stat("real.npy").st_mode & 0o777 == 0o640, f"mode {oct(os.stat('real.npy').st_mode)} not kept")
+    # a 254-byte name (NAME_MAX is 255): the temporary name is shortened, not refused
+    long_name = "p" * 250 + ".npy"
+    expect_code(0, "draw", "--scheme", "he-normal", "--shape", "8x4", "-o", long_name)
+    expect(os.path.exists(long_name), "the 254-byte output was not written")
+    # a directory or a FIFO is refused, naming the option, the path and the reason
+    os.makedirs("adir", exist_ok=True)
+    _, err = expect_code(2, "draw", "--scheme", "he-normal", "--shape", "8x4", "-o", "adir")
+    expect("-o 'adir'" in err and "directory" in err and "rename failed" not in err, f"directory output: {err!r}")
+    if not os.path.exists("afifo"):
+        os.mkfifo("afifo")
+    p = subprocess.run([KINDLING, "draw", "--scheme", "he-normal", "--shape", "8x4", "-o", "afifo"],
+                       capture_output=True, text=True, timeout=60)
+    expect(p.returncode == 2 and "FIFO" in p.stderr, f"FIFO output: exit {p.returncode}, {p.stderr!r}")
+    expect(os.path.exists("afifo") and not os.path.isfile("afifo"), "the FIFO was replaced by a file")
+    # an output that is the input: refused, by name and through a hard link
+    spec = '{"input": {"width": 8}, "layers": [{"width": 4, "activation": "relu", "scheme": "he-normal"}]}'
+    with open("spec.json", "w") as f:
+        f.write(spec)
+    if os.path.exists("alias.json"):
+        os.remove("alias.json")
+    os.link("spec.json", "alias.json")
+    for svg in ("spec.json", "alias.json"):
+        _, err = expect_code(2, "plan", "spec.json", "--svg", svg)
+        expect("--svg" in err and "SPEC" in err, f"--svg {svg} over the spec: {err!r}")
+    expect(open("spec.json").read() == spec, "plan overwrote its own spec")
+    # a write that fails part way (a file size limit) leaves the old file and no temporary,
+    # and says why, with the option and the path
+    import resource
+    import signal
+
+    def small_files():
+        signal.signal(signal.SIGXFSZ, signal.SIG_IGN)
+        resource.setrlimit(resource.RLIMIT_FSIZE, (1000, 1000))
+    with open("keep.npy", "wb") as f:
+        f.write(b"precious")
+    before = set(os.listdir("."))
+    p = subprocess.run([KINDLING, "draw", "--scheme", "he-normal", "--shape", "64x64", "-o", "keep.npy"],
+                       capture_output=True, text=True, preexec_fn=small_files)
+    expect(p.returncode == 2 and "-o 'keep.npy'" in p.stderr and os.strerror(27) in p.stderr,
+           f"a failed write: exit {p.returncode}, {p.stderr!r}")
+    expect(open("keep.npy", "rb").read() == b"precious", "a failed write changed the existing file")
+    expect(set(os.listdir(".")) == before, f"a failed write left {set(os.listdir('.')) - before}")
+    # two writers at once: each succeeds, and the file is one of the two, complete
+    for seed in ("1", "2"):
+        expect_code(0, "draw", "--scheme", "he-normal", "--shape", "512x512", "--seed", seed, "-o", f"ref{seed}.npy")
+    refs = [open(f"ref{seed}.npy", "rb").read() for seed in ("1", "2")]
+    for _ in range(4):
+        procs = [subprocess.Popen([KINDLING, "draw", "--scheme", "he-normal", "--shape", "512x512", "--seed", seed,
+                                   "-o", "both.npy"], stdout=subprocess.PIPE, stderr=subprocess.PIPE)
+                 for seed in ("1", "2")]
+        codes = [p.wait() for p in procs]
+        expect(codes == [0, 0], f"concurrent writers exited {codes}")
+        expect(open("both.npy", "rb").read() in refs, "concurrent writers left a file that is neither run's")
+    leftovers = [n for n in os.listdir(".") if n.endswith(".kindling-tmp")]
+    expect(not leftovers, f"temporary files left behind: {leftovers}")
+
+elif CASE == "numbers":
+    # Integer options are parsed by the tool: negatives, overflow, empty text and junk are
+    # bad input naming the option and the value (CLI11 wrapped or clamped them).
+    draw = ["draw", "--scheme", "he-normal", "--shape", "4x4", "-o", "n.npy"]
+    for option, value in (("--seed", "-1"), ("--seed", "18446744073709551616"), ("--seed", "99999999999999999999"),
+                          ("--seed", ""), ("--seed", "2^64"), ("--seed", "12abc"), ("--fan-in", "-1"),
+                          ("--fan-out", "1e3"), ("--threads", "-1")):
+        _, err = expect_code(2, *draw, option, value)
+        expect(f"{option} '{value}'" in err and "expected" in err, f"{option} {value!r}: {err!r}")
+    _, err = expect_code(2, "draw", "--scheme", "sparse", "--shape", "4x4", "--nonzero", "-3", "-o", "n.npy")
+    expect("--nonzero '-3'" in err, f"--nonzero -3: {err!r}")
+    for option, value in (("--batch", "-1"), ("--batch", "x"), ("--seed", "-1"), ("--threads", "")):
+        _, err = expect_code(2, "plan", "--measure", option, value)
+        expect(f"{option} '{value}'" in err, f"plan {option} {value!r}: {err!r}")
+    _, err = expect_code(2, *draw, "--region", "")
+    expect("--region ''" in err, f"--region '': {err!r}")
+    # values that do not fit the element type
+    for args, option in ((["--scheme", "constant", "--value", "1e300"], "--value"),
+                         (["--scheme", "constant", "--value", "70000", "--dtype", "f16"], "--value"),
+                         (["--scheme", "orthogonal", "--gain", "1e300"], "--gain")):
+        _, err = expect_code(2, "draw", *args, "--shape", "4x4", "-o", "n.npy")
+        expect(option in err and "--dtype" in err, f"{args}: {err!r}")
+    expect(not os.path.exists("n.npy"), "a refused draw wrote n.npy")
+
+elif CASE == "limits":
+    # Readers stop at what an input may legitimately need; sizes are estimated before
+    # memory is allocated, naming the option.
+    for args, name in ((["check", "/dev/zero"], "FILE '/dev/zero'"), (["plan", "/dev/zero"], "SPEC '/dev/zero'")):
+        try:
+            p = subprocess.run([KINDLING, *args], capture_output=True, text=True, timeout=60)
+            expect(p.returncode == 2 and name in p.stderr and "bad_alloc" not in p.stderr, f"{args}: {p.stderr!r}")
+        except subprocess.TimeoutExpired:
+            failures.append(f"{args}: still reading after 60 s")
+    os.makedirs("adir", exist_ok=True)
+    for args, name in ((["check", "adir"], "FILE 'adir'"), (["plan", "adir"], "SPEC 'adir'")):
+        _, err = expect_code(2, *args)
+        expect(name in err and "directory" in err and "basic_filebuf" not in err, f"{args}: {err!r}")
+    with open("deep.json", "w") as f:
+        f.write('{"input": ' + "[" * 200000 + "]" * 200000 + "}")
+    _, err = expect_code(2, "plan", "deep.json")
+    expect("nested deeper" in err, f"a deeply nested spec: {err!r}")
+    with open("huge.json", "w") as f:
+        f.write(" " * (2 << 20) + '{"input": {"width": 8}, "layers": []}')
+    _, err = expect_code(2, "plan", "huge.json")
+    expect("SPEC 'huge.json'" in err and "MiB" in err, f"a 2 MiB spec: {err!r}")
+    _, err = expect_code(2, "draw", "--scheme", "he-normal", "--shape", "65536x65536", "-o", "big.npy")
+    expect("--shape 65536x65536" in err and "memory" in err, f"--shape 65536x65536: {err!r}")
+    _, err = expect_code(2, "plan", "--measure", "--batch", "4294967296")
+    expect("--batch 4294967296" in err and "memory" in err, f"--batch 2^32: {err!r}")
+    # a header announcing more data than check may hold is refused before reading the data
+    with open("wide.npy", "wb") as f:
+        header = "{'descr': '<f8', 'fortran_order': False, 'shape': (1073741824, 4), }"
+        header += " " * ((64 - (10 + len(header) + 1) % 64) % 64) + "\n"
+        f.write(b"\x93NUMPY\x01\x00" + len(header).to_bytes(2, "little") + header.encode())
+    _, err = expect_code(2, "check", "wide.npy")
+    expect("4294967296 elements" in err and "at most" in err, f"a header of 2^32 elements: {err!r}")
+
+elif CASE == "messages":
+    # Messages name the user's option or key, never an internal parameter.
+    _, err = expect_code(2, "draw", "--scheme", "he-normal", "--shape", "4x4", "--gain", "1e200", "-o", "m.npy")
+    expect("--gain" in err and "scale" not in err, f"--gain 1e200: {err!r}")
+    with open("g.json", "w") as f:
+        f.write('{"input": {"width": 8}, "layers": [{"width": 4, "activation": "relu", "scheme": "he-normal",'
+                ' "gain": 1e200}]}')
+    _, err = expect_code(2, "plan", "g.json")
+    expect("layers[0].gain" in err and "weight_variance" not in err, f"a spec gain of 1e200: {err!r}")
+    expect_code(0, "draw", "--scheme", "he-normal", "--shape", "16x8", "-o", "m.npy")
+    out, err = expect_code(2, "check", "m.npy", "--expect", "he-normal", "--gain", "1e200")
+    expect(out == "" and "--gain" in err, f"check --gain 1e200 printed {out!r} before failing: {err!r}")
+    with open("ctl.json", "w") as f:
+        f.write('{"name": "heat exchanger\\u0001", "input": {"width": 8}, "layers": [{"width": 4, '
+                '"activation": "tanh", "scheme": "glorot-normal", "label": "fin\\u0007\\u001b"}]}')
+    expect_code(0, "plan", "ctl.json", "--svg", "ctl.svg")
+    try:
+        ET.parse("ctl.svg")
+    except ET.ParseError as e:
+        failures.append(f"a control character in a spec name made malformed SVG: {e}")
 else:
     failures.append(f"unknown case {CASE}")
 

@@ -13,7 +13,11 @@ if(KINDLING_BUILD_EXAMPLES)
           "untouched;an existing output file is never replaced by a failed run"
           "region;--region writes exactly that block of the whole tensor, whatever the threads"
           "numpy;numpy.load reads every element type and the values match, and numpy's files read back"
-          "json;check --identify --json ranks candidates best first, plan --json and --svg")
+          "json;check --identify --json ranks candidates best first, plan --json and --svg"
+          "outputs;outputs go through an exclusive temporary file and a rename, links written through, odd files refused"
+          "numbers;integer options refuse negatives, overflow, empty text and junk, and values that do not fit"
+          "limits;inputs are read within a size limit and memory is estimated before it is allocated"
+          "messages;errors name the user's option or key, and SVG text is escaped")
     list(GET _kindling_tool_case 0 _case)
     list(GET _kindling_tool_case 1 _what)
     add_test(NAME "tool: ${_what}"

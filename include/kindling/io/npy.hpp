@@ -14,12 +14,13 @@
 // count), fortran_order (only False: a Fortran-ordered file is refused with a message
 // saying how to rewrite it) and that the data fills the rest of the file exactly.
 // Errors are std::invalid_argument (malformed input) or std::length_error (sizes),
-// naming the source, the field, its value and what was expected. write_npy writes a
-// temporary file in the target's directory and renames it over the target, so a
-// failed run never replaces an existing file.
+// naming the source, the field, its value and what was expected. read_npy reads no more
+// than the header announces (read_file.hpp); write_npy writes an exclusive temporary
+// file in the target's directory and renames it over the target (replace_file.hpp), so
+// a failed run never replaces an existing file.
 //
-// Standard library only; the data are encoded byte by byte, so the files are
-// little-endian on any host.
+// parse_npy and encode_npy need only the standard library; read_npy and write_npy need
+// POSIX. The data are encoded byte by byte, so the files are little-endian on any host.
 #ifndef KINDLING_IO_NPY_HPP
 #define KINDLING_IO_NPY_HPP
 
@@ -33,6 +34,8 @@
 #include <vector>
 
 #include "../element.hpp"
+#include "read_file.hpp"
+#include "replace_file.hpp"
 
 namespace kindling {
 
@@ -335,9 +338,17 @@ inline std::uint32_t npy_le(const std::string& b, std::size_t at, std::size_t n)
 
 }  // namespace detail
 
-/// Parses the bytes of a whole .npy file; `source` names it in error messages.
-inline npy_array parse_npy(const std::string& file, const std::string& source = "npy data") {
-  using detail::npy_fail;
+namespace detail {
+
+// What a .npy file's preamble and header say: the array without its data, where the
+// data start and how many bytes they take. Everything before the data is validated.
+struct npy_head {
+  npy_array array;
+  std::uint64_t data_at = 0;
+  std::uint64_t data_bytes = 0;
+};
+
+inline npy_head npy_parse_head(const std::string& file, const std::string& source) {
   static const char magic[] = "\x93NUMPY";
   if (file.size() < 10 || file.compare(0, 6, magic, 6) != 0) {
     npy_fail(source, "does not start with the .npy magic string \\x93NUMPY (" + std::to_string(file.size()) +
@@ -350,50 +361,93 @@ inline npy_array parse_npy(const std::string& file, const std::string& source = 
   }
   const std::size_t len_bytes = major == 1 ? 2 : 4;
   if (file.size() < 8 + len_bytes) npy_fail(source, "ends inside the header length field");
-  const std::uint64_t header_len = detail::npy_le(file, 8, len_bytes);
-  const std::uint64_t data_at = 8 + len_bytes + header_len;
-  if (data_at > file.size()) {
+  const std::uint64_t header_len = npy_le(file, 8, len_bytes);
+  npy_head h;
+  h.data_at = 8 + len_bytes + header_len;
+  if (h.data_at > file.size()) {
     throw std::length_error("kindling::read_npy: " + source + ": header length " + std::to_string(header_len) +
                             " runs past the end of the file (" + std::to_string(file.size()) + " bytes)");
   }
   const std::string text = file.substr(8 + len_bytes, static_cast<std::size_t>(header_len));
-  const detail::npy_header_parser::header h = detail::npy_header_parser(text, source).parse();
-  npy_array a;
-  a.type = detail::npy_type_of(h, source);
-  if (h.fortran_order) {
+  const npy_header_parser::header parsed = npy_header_parser(text, source).parse();
+  npy_array& a = h.array;
+  a.type = npy_type_of(parsed, source);
+  if (parsed.fortran_order) {
     npy_fail(source, "has fortran_order True, expected False (C order); rewrite it with "
                      "np.save(f, np.ascontiguousarray(a))");
   }
-  a.shape = h.shape;
+  a.shape = parsed.shape;
   std::uint64_t count = 1;
   for (std::uint64_t e : a.shape) {
     if (e != 0 && count > std::numeric_limits<std::uint64_t>::max() / e) {
-      throw std::length_error("kindling::read_npy: " + source + ": shape " + detail::npy_shape_text(a.shape) +
+      throw std::length_error("kindling::read_npy: " + source + ": shape " + npy_shape_text(a.shape) +
                               " has more elements than fit in 64 bits");
     }
     count *= e;
   }
   const std::uint64_t item = npy_type_size(a.type);
-  const std::uint64_t have = file.size() - data_at;
-  if (count > std::numeric_limits<std::uint64_t>::max() / item || count * item != have) {
-    throw std::length_error("kindling::read_npy: " + source + ": shape " + detail::npy_shape_text(a.shape) + " of " +
-                            npy_type_name(a.type) + " needs " +
-                            (count > std::numeric_limits<std::uint64_t>::max() / item
-                                 ? std::string("more than 2^64")
-                                 : std::to_string(count * item)) +
-                            " data bytes, the file holds " + std::to_string(have));
-  }
-  a.bytes.assign(file.begin() + static_cast<std::ptrdiff_t>(data_at), file.end());
-  return a;
+  h.data_bytes = count > std::numeric_limits<std::uint64_t>::max() / item ? std::numeric_limits<std::uint64_t>::max()
+                                                                         : count * item;
+  return h;
 }
 
-/// Reads a .npy file.
-inline npy_array read_npy(const std::string& path) {
-  std::ifstream in(path, std::ios::binary);
-  if (!in) throw std::invalid_argument("kindling::read_npy: argument 'path' = '" + path + "' cannot be opened for reading");
-  std::string bytes((std::istreambuf_iterator<char>(in)), std::istreambuf_iterator<char>());
-  if (in.bad()) throw std::invalid_argument("kindling::read_npy: '" + path + "': read error");
-  return parse_npy(bytes, "'" + path + "'");
+}  // namespace detail
+
+/// Parses the bytes of a whole .npy file; `source` names it in error messages.
+inline npy_array parse_npy(const std::string& file, const std::string& source = "npy data") {
+  detail::npy_head h = detail::npy_parse_head(file, source);
+  const std::uint64_t have = file.size() - h.data_at;
+  if (h.data_bytes != have) {
+    throw std::length_error("kindling::read_npy: " + source + ": shape " + detail::npy_shape_text(h.array.shape) +
+                            " of " + npy_type_name(h.array.type) + " needs " +
+                            (h.data_bytes == std::numeric_limits<std::uint64_t>::max()
+                                 ? std::string("more than 2^64")
+                                 : std::to_string(h.data_bytes)) +
+                            " data bytes, the file holds " + std::to_string(have));
+  }
+  h.array.bytes.assign(file.begin() + static_cast<std::ptrdiff_t>(h.data_at), file.end());
+  return std::move(h.array);
+}
+
+/// The longest header read_npy accepts: NumPy writes a few hundred bytes at most for
+/// any shape kindling handles, so a longer one is not worth holding in memory.
+inline constexpr std::uint64_t npy_max_header_bytes = 65536;
+
+/// Reads a .npy file of at most `max_elements` elements. Nothing is read beyond what
+/// the file may need: the preamble, a header of at most npy_max_header_bytes, then
+/// exactly the data the header announces (a longer file is refused), so a device, a
+/// FIFO or a huge file costs no more memory than a legitimate one. `what` names the
+/// file in the open/read errors (e.g. "FILE").
+inline npy_array read_npy(const std::string& path, std::uint64_t max_elements = std::uint64_t{1} << 32,
+                          const std::string& what = "kindling::read_npy: file") {
+  const std::string source = "'" + path + "'";
+  bounded_reader in(path, what);
+  std::string file;
+  in.read_up_to(file, 12);  // magic, version and the header length of either version
+  if (file.size() >= 12 && file.compare(0, 6, "\x93NUMPY", 6) == 0 && (file[6] == 1 || file[6] == 2)) {
+    const std::size_t len_bytes = file[6] == 1 ? 2 : 4;
+    const std::uint64_t header_len = detail::npy_le(file, 8, len_bytes);
+    if (header_len > npy_max_header_bytes) {
+      throw std::length_error("kindling::read_npy: " + source + ": header length " + std::to_string(header_len) +
+                              ", expected at most " + std::to_string(npy_max_header_bytes) + " bytes");
+    }
+    const std::uint64_t data_at = 8 + len_bytes + header_len;
+    if (data_at > file.size()) in.read_up_to(file, data_at - file.size());
+  }
+  const detail::npy_head h = detail::npy_parse_head(file, source);
+  const std::uint64_t item = npy_type_size(h.array.type);
+  if (h.data_bytes / item > max_elements) {
+    throw std::length_error("kindling::read_npy: " + source + ": shape " + detail::npy_shape_text(h.array.shape) +
+                            " has " + std::to_string(h.data_bytes / item) + " elements, expected at most " +
+                            std::to_string(max_elements));
+  }
+  const std::uint64_t have = file.size() - h.data_at;
+  if (have > h.data_bytes || !in.read_up_to(file, h.data_bytes - have)) {
+    throw std::length_error("kindling::read_npy: " + source + ": shape " + detail::npy_shape_text(h.array.shape) +
+                            " of " + npy_type_name(h.array.type) + " needs " + std::to_string(h.data_bytes) +
+                            " data bytes, the file holds more");
+  }
+  return parse_npy(file, source);
 }
 
 /// The bytes of a .npy file holding `a`: version 1.0 when the header fits its 16-bit
@@ -455,28 +509,10 @@ npy_array make_npy(std::vector<std::uint64_t> shape, const std::vector<E>& value
   return a;
 }
 
-/// Writes `bytes` to `path` through a temporary file beside it and a rename, so the
-/// file at `path` is either the complete new content or left as it was.
-inline void write_file_replacing(const std::string& path, const std::string& bytes) {
-  const std::string temp = path + ".kindling-partial";
-  {
-    std::ofstream out(temp, std::ios::binary | std::ios::trunc);
-    if (!out) {
-      throw std::invalid_argument("kindling: output '" + path + "' cannot be written (cannot create '" + temp + "')");
-    }
-    out.write(bytes.data(), static_cast<std::streamsize>(bytes.size()));
-    out.flush();
-    if (!out) {
-      out.close();
-      std::remove(temp.c_str());
-      throw std::invalid_argument("kindling: output '" + path + "' could not be written in full");
-    }
-  }
-  if (std::rename(temp.c_str(), path.c_str()) != 0) {
-    std::remove(temp.c_str());
-    throw std::invalid_argument("kindling: output '" + path + "' cannot be replaced (rename failed)");
-  }
-}
+/// Writes `bytes` to `path` safely: an exclusive temporary file beside the target, then
+/// an atomic rename (kindling/io/replace_file.hpp), so the file at `path` is either the
+/// complete new content or left as it was.
+inline void write_file_replacing(const std::string& path, const std::string& bytes) { replace_file(path, bytes); }
 
 /// Writes `a` as a .npy file (temporary file, then rename).
 inline void write_npy(const std::string& path, const npy_array& a) { write_file_replacing(path, encode_npy(a)); }

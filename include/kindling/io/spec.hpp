@@ -14,7 +14,9 @@
 // Anything else -- an unknown or repeated key, a value of the wrong type, a negative
 // or fractional width, a non-finite number -- is a std::invalid_argument or
 // std::domain_error naming the key's path (e.g. layers[2].width), its value and what
-// was expected.
+// was expected. Hostile input is bounded before it is parsed: a file of at most
+// spec_max_bytes, nested at most spec_max_depth levels; a gain whose square (the weight
+// variance factor) overflows or vanishes is refused under its key.
 //
 // Needs nlohmann-json (Debian nlohmann-json3-dev) and, for the orthogonal scheme's
 // variance, Eigen; the core of kindling needs neither.
@@ -23,7 +25,7 @@
 
 #include <cmath>
 #include <cstdint>
-#include <fstream>
+#include <limits>
 #include <optional>
 #include <set>
 #include <stdexcept>
@@ -38,6 +40,7 @@
 #include "../schemes/fixed.hpp"
 #include "../schemes/orthogonal.hpp"
 #include "../schemes/variance_scaling.hpp"
+#include "read_file.hpp"
 
 namespace kindling {
 
@@ -149,9 +152,58 @@ inline std::string spec_name(const nlohmann::json& v, const std::string& source,
 
 }  // namespace detail
 
+/// The deepest nesting of objects and arrays a spec may have: a spec needs 3
+/// ({"layers": [{...}]}); the bound keeps a hostile document (200000 open brackets)
+/// from exhausting the stack in the parser or in printing a value for a message.
+inline constexpr std::size_t spec_max_depth = 32;
+
+/// The largest spec file read_network_spec reads: a layer takes about 100 bytes.
+inline constexpr std::uint64_t spec_max_bytes = std::uint64_t{1} << 20;
+
+namespace detail {
+
+// Refuses text nested deeper than spec_max_depth, counting brackets outside strings,
+// before the parser sees it.
+inline void spec_check_depth(const std::string& text, const std::string& source) {
+  std::size_t depth = 0;
+  bool in_string = false;
+  for (std::size_t i = 0; i < text.size(); ++i) {
+    const char c = text[i];
+    if (in_string) {
+      if (c == '\\') ++i;
+      else if (c == '"') in_string = false;
+    } else if (c == '"') {
+      in_string = true;
+    } else if (c == '{' || c == '[') {
+      if (++depth > spec_max_depth) {
+        throw std::invalid_argument("kindling network spec " + source + ": nested deeper than " +
+                                    std::to_string(spec_max_depth) + " levels at byte " + std::to_string(i) +
+                                    ", expected a JSON object as in kindling/io/spec.hpp (3 levels)");
+      }
+    } else if ((c == '}' || c == ']') && depth > 0) {
+      --depth;
+    }
+  }
+}
+
+// A layer's gain is squared (Var W = gain^2 / fan): one whose square overflows or
+// vanishes in double is refused under its own key, not as an internal variance.
+inline double spec_gain(const nlohmann::json& v, const std::string& source, const std::string& path) {
+  const double g = spec_number(v, source, path, true, false);
+  if (!std::isfinite(g * g) || g * g < std::numeric_limits<double>::min()) {
+    throw std::domain_error("kindling network spec " + source + ": '" + path + "' = " + spec_value_text(v) +
+                            ", expected a number > 0 whose square (the weight variance factor) is finite and "
+                            "nonzero, e.g. 1e-150 to 1e150");
+  }
+  return g;
+}
+
+}  // namespace detail
+
 /// Parses the JSON text of a network spec; `source` names it in messages.
 inline network_spec parse_network_spec(const std::string& text, const std::string& source = "(text)") {
   using namespace detail;
+  spec_check_depth(text, source);
   // nlohmann keeps the last of repeated keys; a spec with a repeated key is refused.
   std::vector<std::set<std::string>> open;
   std::string repeated;
@@ -198,7 +250,7 @@ inline network_spec parse_network_spec(const std::string& text, const std::strin
     s.activation = spec_name(spec_required(l, source, path, "activation"), source, path + ".activation",
                              spec_activation_names());
     s.scheme = spec_name(spec_required(l, source, path, "scheme"), source, path + ".scheme", spec_scheme_names());
-    if (l.contains("gain")) s.gain = spec_number(l["gain"], source, path + ".gain", true, false);
+    if (l.contains("gain")) s.gain = spec_gain(l["gain"], source, path + ".gain");
     if (l.contains("bias_variance")) s.bias_variance = spec_number(l["bias_variance"], source, path + ".bias_variance", false, true);
     if (l.contains("slope")) {
       if (s.activation != "leaky_relu") {
@@ -223,11 +275,11 @@ inline network_spec parse_network_spec(const std::string& text, const std::strin
   return spec;
 }
 
-/// Reads a network spec from a file.
-inline network_spec read_network_spec(const std::string& path) {
-  std::ifstream in(path, std::ios::binary);
-  if (!in) throw std::invalid_argument("kindling network spec: argument 'path' = '" + path + "' cannot be opened for reading");
-  const std::string text((std::istreambuf_iterator<char>(in)), std::istreambuf_iterator<char>());
+/// Reads a network spec from a file of at most spec_max_bytes (a device, a FIFO or a
+/// huge file is refused before it fills memory); `what` names the file in the errors
+/// of opening and reading it (e.g. "SPEC").
+inline network_spec read_network_spec(const std::string& path, const std::string& what = "kindling network spec: file") {
+  const std::string text = read_file_bounded(path, spec_max_bytes, what, "1 MiB, far more than a network spec needs");
   return parse_network_spec(text, "'" + path + "'");
 }
 
