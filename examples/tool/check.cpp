@@ -2,6 +2,7 @@
 // audits on it: the symmetry checks always, conformance with --expect, and a ranked
 // list of the schemes it fits with --identify. Exit 1 when a check fails.
 #include <cctype>
+#include <cmath>
 #include <cstdio>
 #include <stdexcept>
 #include <string>
@@ -76,6 +77,43 @@ audit_report exact_values(const npy_array& a, const std::vector<double>& x, cons
   return r;
 }
 
+// The file's values in their own element type: the conformance checks test against the
+// declared distribution as stored in that type (a bf16 file against the bf16 rounding).
+template <class E>
+std::vector<E> as_elements(const npy_array& a) {
+  std::vector<E> out(static_cast<std::size_t>(a.size()));
+  for (std::uint64_t i = 0; i < a.size(); ++i) {
+    const double x = a.value(i);  // exact, so rounding back gives the stored bits
+    if constexpr (std::is_same<E, float16>::value) {
+      out[static_cast<std::size_t>(i)] = round_to_float16(static_cast<float>(x));
+    } else if constexpr (std::is_same<E, bfloat16>::value) {
+      out[static_cast<std::size_t>(i)] = round_to_bfloat16(static_cast<float>(x));
+    } else {
+      out[static_cast<std::size_t>(i)] = static_cast<E>(x);
+    }
+  }
+  return out;
+}
+
+template <class Scheme>
+audit_report conformance_in_type(const npy_array& a, const std::vector<std::uint64_t>& global, const weight_info& w,
+                                 const Scheme& scheme, const check_options& o) {
+  audit_options options;
+  options.alpha = o.alpha;
+  const auto run = [&](auto element) {
+    using E = decltype(element);
+    const std::vector<E> values = as_elements<E>(a);
+    return check_scheme(strided_view<const E>(values.data(), shape(global.begin(), global.end())), w, scheme, options);
+  };
+  switch (a.type) {
+    case npy_type::f32: return run(float{});
+    case npy_type::f64: return run(double{});
+    case npy_type::f16: return run(float16{});
+    case npy_type::bf16: return run(bfloat16{});
+  }
+  throw std::logic_error("unreachable");
+}
+
 audit_report expect_report(const npy_array& a, const std::vector<double>& x, const check_options& o,
                            const std::vector<std::uint64_t>& global, const weight_info& w) {
   const any_scheme scheme = make_scheme(o.expect);
@@ -101,16 +139,25 @@ audit_report expect_report(const npy_array& a, const std::vector<double>& x, con
                       std::is_same<S, delta_orthogonal>::value || std::is_same<S, sparse>::value) {
           throw std::logic_error("unreachable");
         } else {
-          return check_scheme(v, w, sc);
+          return conformance_in_type(a, global, w, sc, o);
         }
       },
       scheme);
 }
 
+// A statistic, p-value or interval bound in JSON: null when the check has none.
+json number_or_null(double x) { return std::isfinite(x) ? json(x) : json(nullptr); }
+
 json report_json(const audit_report& r) {
   json findings = json::array();
   for (const audit_finding& f : r.findings()) {
-    findings.push_back({{"check", f.check}, {"passed", f.passed}, {"sentence", f.sentence}});
+    json one = {{"check", f.check}, {"passed", f.passed}, {"sentence", f.sentence}};
+    if (!std::isnan(f.p_value)) {
+      one["statistic"] = number_or_null(f.statistic);
+      one["p_value"] = number_or_null(f.p_value);
+      one["interval"] = {number_or_null(f.lower), number_or_null(f.upper)};
+    }
+    findings.push_back(one);
   }
   return {{"subject", r.subject()}, {"passed", r.passed()}, {"findings", findings}};
 }
@@ -122,15 +169,27 @@ std::string candidate_scheme(const scheme_candidate& c) {
   return name;
 }
 
+// One line a check: its name, its verdict, its sentence and, for a statistical check,
+// the statistic, the p-value and the interval it accepted.
 void print_report(const char* heading, const audit_report& r) {
   std::printf("%s: %s\n", heading, r.passed() ? "passed" : "FAILED");
-  std::string text = r.explain();
-  std::size_t start = 0;
-  while (start <= text.size()) {
-    const std::size_t end = text.find('\n', start);
-    std::printf("  %s\n", text.substr(start, end == std::string::npos ? std::string::npos : end - start).c_str());
-    if (end == std::string::npos) break;
-    start = end + 1;
+  if (r.passed() && r.findings().size() > 1 && std::isnan(r.findings().front().p_value)) {
+    bool statistical = false;
+    for (const audit_finding& f : r.findings()) statistical = statistical || !std::isnan(f.p_value);
+    if (!statistical) {  // structural checks only: one summary line
+      std::printf("  %s\n", r.explain().c_str());
+      return;
+    }
+  }
+  for (const audit_finding& f : r.findings()) {
+    std::string line = "  " + f.check + " " + (f.passed ? "passed" : "FAILED") + ": " + f.sentence;
+    if (!std::isnan(f.p_value)) {
+      line += " [statistic " + number_text(f.statistic, 4) + ", p = " + number_text(f.p_value, 3) + ", accepted " +
+              (f.check == "ks" ? "D <= " + number_text(f.upper, 4)
+                               : "[" + number_text(f.lower, 4) + ", " + number_text(f.upper, 4) + "]") +
+              "]";
+    }
+    std::printf("%s\n", line.c_str());
   }
 }
 
@@ -176,6 +235,7 @@ int run_check(const check_options& o) {
   if (a.shape.size() >= 2) {
     symmetry_options so;
     so.layout = layout;
+    so.alpha = o.alpha;
     const audit_report sym = check_symmetry(v, so);
     passed = passed && sym.passed();
     out["symmetry"] = report_json(sym);

@@ -123,6 +123,8 @@ int main(int argc, char** argv) {
   add(check_cmd, check_fan_out, "Override the fan-out the layout gives");
   check_flags.attach(check_cmd);
   check_cmd->add_flag("--identify", check.identify, "Rank the schemes the values fit, best first");
+  check_cmd->add_option("--alpha", check.alpha,
+                        "False-alarm rate of each report (symmetry, expect) on a correct tensor, in (0, 1); default 0.001");
   check_cmd->add_flag("--json", check.json, "Print the results as JSON");
 
   plan_options plan;
@@ -163,6 +165,10 @@ int main(int argc, char** argv) {
       check_flags.into(check.expect);
       check.fan_in = check_fan_in.get();
       check.fan_out = check_fan_out.get();
+      if (!(check.alpha > 0 && check.alpha < 1)) {
+        throw std::invalid_argument("--alpha " + number_text(check.alpha, 6) +
+                                    ": expected a false-alarm rate in (0, 1), e.g. 0.001");
+      }
       if (check.expect.scheme.empty() && (check.expect.gain || check.expect.stddev || check.expect.value || check.expect.nonzero)) {
         throw std::invalid_argument("--gain, --std, --value and --nonzero describe the --expect scheme; give --expect");
       }

@@ -50,6 +50,7 @@ struct check_options {
   std::optional<std::uint64_t> fan_in, fan_out;
   bool identify = false;
   bool json = false;
+  double alpha = 1e-3;                 // family-wise false-alarm rate of each report
 };
 
 struct plan_options {

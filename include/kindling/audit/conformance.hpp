@@ -1,14 +1,25 @@
 // kindling/audit/conformance.hpp: does a tensor follow the distribution it claims?
 //
-// check_distribution(view, distribution) and check_scheme(view, layer, scheme) run
+// check_distribution(view, distribution) and check_scheme(view, layer, scheme) test the
+// values against the declared distribution *as kindling stores it* in the view's
+// element type (detail/stored.hpp: rounded to bfloat16, float16, float or double, kept
+// inside the bounds), a discrete distribution for the 16-bit types. The checks:
 //   - finite:   every value is a number (NaN and infinities are reported, and the
 //               statistical checks are then not run: they would mean nothing);
 //   - bounds:   every value lies inside the declared interval (not statistical);
-//   - ks:       Kolmogorov–Smirnov against the exact CDF (kolmogorov.hpp);
-//   - mean:     the sample mean against the declared mean, z = (m - μ) / (σ / √n);
-//   - variance: the sample variance s² against σ², with the exact variance of s²,
-//               Var s² = μ4 / n - σ⁴ (n - 3) / (n (n - 1)) (Cramér, Mathematical
+//   - ks:       Kolmogorov–Smirnov against the stored CDF, on the values counted into
+//               a fine grid of bins (kolmogorov.hpp, ks_statistic_binned); the p-value
+//               from Kolmogorov's distribution is conservative for grouped values and a
+//               discrete null, so a correct tensor fails less often than alpha says;
+//   - mean:     the sample mean against the stored mean, z = (m - μ) / (s' / √n) with
+//               s' the larger of the sample's and the declared standard deviation, so
+//               a pure scale error fails the variance check alone;
+//   - variance: the sample variance s² against the stored σ², with the exact variance
+//               of s², Var s² = μ4 / n - σ⁴ (n - 3) / (n (n - 1)) (Cramér, Mathematical
 //               Methods of Statistics, 1946, 27.4; from memory), and a normal z.
+// All of it comes from one pass over the view (detail/tally.hpp): no copy, no sort,
+// memory bounded by the grid (at most 2^18 bins), and the same verdict bit for bit on
+// any executor.
 // The significance level alpha (default 0.001) is the family-wise false-alarm rate:
 // each of the three statistical checks runs at alpha / 3 (Bonferroni), so a correct
 // tensor fails at most at rate alpha, and a fixed seed always gives the same verdict.
@@ -29,8 +40,11 @@
 #include "../detail/dmath.hpp"
 #include "../schemes/scheme.hpp"
 #include "../schemes/variance_scaling.hpp"
+#include "../schemes/detail/unit_matrix.hpp"
 #include "detail/declared.hpp"
 #include "detail/gather.hpp"
+#include "detail/stored.hpp"
+#include "detail/tally.hpp"
 #include "kolmogorov.hpp"
 #include "result.hpp"
 
@@ -108,138 +122,202 @@ inline sample_moments moments_of(const std::vector<double>& x) {
   return m;
 }
 
-inline bool outside(double x, const element_bounds& b) {
-  return x < b.lo || x > b.hi || (b.lo_open && x == b.lo) || (b.hi_open && x == b.hi);
+// The grid the values are counted on: the declared support (an unbounded normal cut at
+// 8.5 sigma, beyond which a float Box–Muller never reaches and a double one with
+// probability 2e-17), in bins fine enough that one bin holds at most about 1/10 of the
+// Kolmogorov–Smirnov critical distance 1.9 / sqrt(n) (a normal's bin mass is at most
+// 0.4 * 17 / bins), between 1024 and 2^18 bins. Grouping lowers D by at most one bin's
+// mass, so the power lost is that small.
+inline value_grid grid_for(const declared& d, std::uint64_t n) {
+  double lo = d.a, hi = d.b;
+  if (d.family != declared_family::uniform) {
+    const double cut_lo = d.family == declared_family::normal ? -8.5 : std::max(d.cut_lo, -8.5);
+    const double cut_hi = d.family == declared_family::normal ? 8.5 : std::min(d.cut_hi, 8.5);
+    lo = d.a + d.b * cut_lo;
+    hi = d.a + d.b * cut_hi;
+  }
+  const double wanted = 36 * std::sqrt(static_cast<double>(n));
+  std::uint32_t bins = 1024;
+  while (bins < wanted && bins < (std::uint32_t{1} << 18)) bins *= 2;
+  return value_grid(lo, hi, bins);
 }
 
-inline audit_report conformance(const gathered& g, const declared& d, double alpha, const std::string& subject,
-                                const fan_hint* hint) {
+// Where a value is, in words: its flat index, and its unit and connection when the
+// view is a whole weight ("flat index 70 (unit 1, connection 6)"); with units_only, just
+// the part in parentheses when there is one.
+template <class E>
+std::string position_text(const strided_view<E>& v, weight_layout layout, std::uint64_t local,
+                          bool units_only = false) {
+  const std::uint64_t flat = global_flat_index(v, local);
+  const std::string index = "flat index " + std::to_string(flat);
+  if (!v.is_whole()) return index;
+  std::uint64_t row = 0, col = 0;
+  unit_matrix(v.global_shape(), layout).locate(flat, &row, &col);
+  const std::string unit = "unit " + std::to_string(row) + ", connection " + std::to_string(col);
+  return units_only ? unit : index + " (" + unit + ")";
+}
+
+inline std::string non_finite_text(const value_tally& t, const std::string& where) {
+  const chunk_tally& c = t.totals;
+  const double x = c.first_non_finite_value;
+  const std::string first = std::isnan(x) ? "NaN" : (x > 0 ? "+infinity" : "-infinity");
+  return std::to_string(c.non_finite) + " of " + std::to_string(t.n) + " values are not finite (" +
+         std::to_string(c.nan_count) + " NaN, " + std::to_string(c.non_finite - c.nan_count) +
+         " infinite; the first, " + first + ", at " + where + ")";
+}
+
+inline std::string interval_text(const element_bounds& b) {
+  return std::string(b.lo_open ? "(" : "[") + short_number(b.lo, 6) + ", " + short_number(b.hi, 6) +
+         (b.hi_open ? ")" : "]");
+}
+
+// The sample's moments from the tally's sums around the declared mean.
+inline sample_moments moments_of(const value_tally& t, double shift) {
+  const double n = static_cast<double>(t.n);
+  const chunk_tally& c = t.totals;
+  const double a = c.sum1 / n;  // mean - shift
+  sample_moments m;
+  m.mean = shift + a;
+  m.variance = t.n > 1 ? std::max(0.0, (c.sum2 - c.sum1 * a) / (n - 1)) : 0.0;
+  m.fourth = c.sum4 / n - 4 * a * c.sum3 / n + 6 * a * a * c.sum2 / n - 3 * a * a * a * a;
+  return m;
+}
+
+// What each statistical check needs: the sample, the stored distribution's moments,
+// the level of each check.
+struct conformance_input {
+  const declared& d;
+  declared_moments stored;
+  sample_moments sample;
+  std::uint64_t n;
+  double alpha, each;
+  const std::string& subject;
+};
+
+inline audit_finding ks_finding(const conformance_input& in, double statistic) {
+  const ks_result ks = ks_p_value(in.n, statistic);
+  const double critical = ks_critical_value(in.n, in.each);
+  audit_finding f{"ks", ks.p_value >= in.each, "", ks.statistic, ks.p_value, 0.0, critical};
+  const std::string text = "Kolmogorov-Smirnov D = " + short_number(ks.statistic) + " over " + std::to_string(in.n) +
+                           " values, p = " + short_number(ks.p_value);
+  if (f.passed) {
+    f.sentence = text + " against " + in.subject;
+    return f;
+  }
+  f.sentence = "the values do not follow " + in.subject + ", " + in.d.text() + ": " + text + " is below " +
+               short_number(in.each) + " (alpha " + short_number(in.alpha) + " over 3 checks)";
+  if (in.sample.variance > 0 && in.n >= 4) {
+    const double kurt = in.sample.fourth / (in.sample.variance * in.sample.variance);
+    const double want = in.stored.fourth / (in.stored.variance * in.stored.variance);
+    f.sentence += "; their kurtosis is " + short_number(kurt) + " against the " + short_number(want) +
+                  " of the declared shape";
+  }
+  return f;
+}
+
+// The mean is tested with the larger of the sample's and the declared standard
+// deviation: under the declared distribution that is at least the true one (a
+// conservative z), and a tensor whose only fault is its scale does not fail the mean.
+inline audit_finding mean_finding(const conformance_input& in) {
+  const double rn = static_cast<double>(in.n);
+  const double se = std::max(std::sqrt(in.sample.variance), std::sqrt(in.stored.variance)) / std::sqrt(rn);
+  const double z = (in.sample.mean - in.stored.mean) / se;
+  const double half = two_sided_quantile(in.each) * se;
+  const double lo = in.stored.mean - half, hi = in.stored.mean + half;
+  audit_finding f{"mean", two_sided_p(z) >= in.each, "", z, two_sided_p(z), lo, hi};
+  const std::string around = "[" + short_number(lo) + ", " + short_number(hi) + "]";
+  f.sentence = f.passed ? "mean " + short_number(in.sample.mean) + " lies inside " + around
+                        : "mean " + short_number(in.sample.mean) + " lies outside " + around + ", the " +
+                              percent_text(in.each) + " interval around the " + short_number(in.stored.mean) +
+                              " expected for " + in.subject + " with " + std::to_string(in.n) + " values";
+  return f;
+}
+
+// Which fan would give the variance seen? Prefer one of this layer's fans, then a
+// power-of-two multiple of the declared fan (the usual mistake), else the fan itself.
+inline std::string fan_match(const fan_hint& hint, double variance, double half, double declared_variance) {
+  for (fan_basis b : {fan_basis::in, fan_basis::out, fan_basis::average}) {
+    const fan_scaled rule{hint.scale, b, draw_shape::normal, 2};
+    if (b != hint.basis && std::fabs(rule.variance(hint.fans) - variance) <= half) {
+      return "; the value matches " + fan_text(b, hint.fans) + " of this layer";
+    }
+  }
+  // The fans consistent with the variance seen (its interval scaled to it).
+  const double seen_half = half * variance / declared_variance;
+  const double fan_lo = hint.scale / (variance + seen_half);
+  const double fan_hi =
+      variance > seen_half ? hint.scale / (variance - seen_half) : std::numeric_limits<double>::infinity();
+  const double declared_fan = fan_scaled{hint.scale, hint.basis, draw_shape::normal, 2}.fan(hint.fans);
+  const char* basis = basis_name(hint.basis);
+  for (double factor : {0.5, 2.0, 0.25, 4.0, 0.125, 8.0}) {
+    const double candidate = declared_fan * factor;
+    if (candidate >= fan_lo && candidate <= fan_hi) {
+      return "; the value matches " + std::string(basis) + " " + short_number(candidate, 6) + " (" +
+             (factor < 1 ? "1/" + short_number(1 / factor) : short_number(factor)) + " times the declared)";
+    }
+  }
+  return "; the value matches " + std::string(basis) + " " + short_number(hint.scale / variance, 4) +
+         " (interval [" + short_number(fan_lo, 4) + ", " + short_number(fan_hi, 4) + "])";
+}
+
+// The sample variance s² against the stored distribution's, with the exact variance of
+// s², Var s² = mu4 / n - sigma^4 (n - 3) / (n (n - 1)) (Cramér, Mathematical Methods of
+// Statistics, 1946, 27.4; from memory, checked by simulation in tests/audit), as a normal z;
+// reported as a standard deviation.
+inline audit_finding variance_finding(const conformance_input& in, const fan_hint* hint) {
+  const double rn = static_cast<double>(in.n);
+  const double v = in.stored.variance;
+  const double var_se = std::sqrt(std::max(0.0, in.stored.fourth / rn - v * v * (rn - 3) / (rn * (rn - 1))));
+  const double z = (in.sample.variance - v) / var_se;
+  const double half = two_sided_quantile(in.each) * var_se;
+  const double lo = std::sqrt(std::max(0.0, v - half)), hi = std::sqrt(v + half);
+  const double sd = std::sqrt(in.sample.variance), want = std::sqrt(v);
+  audit_finding f{"variance", two_sided_p(z) >= in.each, "", z, two_sided_p(z), lo, hi};
+  if (f.passed) {
+    f.sentence = "standard deviation " + short_number(sd) + " lies inside [" + short_number(lo) + ", " +
+                 short_number(hi) + "]";
+    return f;
+  }
+  f.sentence = "standard deviation " + short_number(sd) + " is " + short_number(sd / want) + "x the " +
+               short_number(want) + " expected for " + in.subject + " (" + percent_text(in.each) + " interval [" +
+               short_number(lo) + ", " + short_number(hi) + "])";
+  if (hint != nullptr && in.sample.variance > 0) f.sentence += fan_match(*hint, in.sample.variance, half, v);
+  return f;
+}
+
+// The conformance checks of view v (element type E, as stored) against d, in one pass
+// over v on executor exec.
+template <class E, class Exec>
+audit_report conformance(const strided_view<E>& v, weight_layout layout, const declared& d, double alpha,
+                         const std::string& subject, const fan_hint* hint, const Exec& exec) {
+  using element = std::remove_const_t<E>;
+  const stored_distribution<element> stored(d);
+  const value_grid grid = grid_for(d, v.size());
+  const value_tally t = tally_values(v, grid, d.mean, d.bounds, exec);
+  const std::uint64_t n = t.n;
   audit_report report(subject);
-  const std::uint64_t n = g.values.size();
-  if (g.non_finite != 0) {
-    report.add({"finite", false, non_finite_sentence(g) + "; the statistical checks against " + subject +
-                                     " were not run"});
+  if (t.totals.non_finite != 0) {
+    report.add({"finite", false,
+                non_finite_text(t, position_text(v, layout, t.totals.first_non_finite)) +
+                    "; the statistical checks against " + subject + " were not run"});
     return report;
   }
   report.add({"finite", true, "all " + std::to_string(n) + " values are finite"});
-
-  // Bounds.
-  std::uint64_t out = 0, worst_at = 0;
-  double worst = 0;
-  for (std::size_t i = 0; i < g.values.size(); ++i) {
-    const double x = g.values[i];
-    if (outside(x, d.bounds)) {
-      const double excess = std::max(d.bounds.lo - x, x - d.bounds.hi);
-      if (out == 0 || excess > std::max(d.bounds.lo - worst, worst - d.bounds.hi)) {
-        worst = x;
-        worst_at = i;
-      }
-      ++out;
-    }
-  }
-  const std::string interval = std::string(d.bounds.lo_open ? "(" : "[") + short_number(d.bounds.lo, 6) + ", " +
-                               short_number(d.bounds.hi, 6) + (d.bounds.hi_open ? ")" : "]");
-  if (out != 0) {
-    report.add({"bounds", false, std::to_string(out) + " of " + std::to_string(n) + " values lie outside " +
-                                     interval + ", the bounds of " + subject + "; the farthest is " +
-                                     short_number(worst, 6) + " (unit " + std::to_string(worst_at / g.cols) +
-                                     ", connection " + std::to_string(worst_at % g.cols) + ")"});
+  const std::string interval = interval_text(d.bounds);
+  if (t.totals.outside != 0) {
+    report.add({"bounds", false, std::to_string(t.totals.outside) + " of " + std::to_string(n) +
+                                     " values lie outside " + interval + ", the bounds of " + subject +
+                                     "; the farthest is " + short_number(t.totals.farthest, 6) + " (" +
+                                     position_text(v, layout, t.totals.farthest_at, true) + ")"});
   } else {
     report.add({"bounds", true, "every value lies inside " + interval});
   }
 
-  const double each = alpha / 3;  // Bonferroni over ks, mean and variance
-  const sample_moments m = moments_of(g.values);
-  const double rn = static_cast<double>(n);
-
-  // Kolmogorov–Smirnov.
-  {
-    const ks_result ks = ks_test(g.values, [&d](double x) { return d.cdf(x); });
-    audit_finding f{"ks", ks.p_value >= each, "", ks.statistic, ks.p_value};
-    std::string text = "Kolmogorov-Smirnov D = " + short_number(ks.statistic) + " over " + std::to_string(n) +
-                       " values, p = " + short_number(ks.p_value);
-    if (f.passed) {
-      f.sentence = text + " against " + subject;
-    } else {
-      f.sentence = "the values do not follow " + subject + ", " + d.text() + ": " + text + " is below " +
-                   short_number(each) + " (alpha " + short_number(alpha) + " over 3 checks)";
-      if (m.variance > 0 && n >= 4) {
-        const double kurt = m.fourth / (m.variance * m.variance);
-        const double want = d.fourth / (d.variance * d.variance);
-        f.sentence += "; their kurtosis is " + short_number(kurt) + " against the " + short_number(want) +
-                      " of the declared shape";
-      }
-    }
-    report.add(f);
-  }
-
-  // Mean.
-  {
-    const double se = d.stddev() / std::sqrt(rn);
-    const double z = (m.mean - d.mean) / se;
-    const double half = two_sided_quantile(each) * se;
-    audit_finding f{"mean", two_sided_p(z) >= each, "", z, two_sided_p(z)};
-    const std::string around = "[" + short_number(d.mean - half) + ", " + short_number(d.mean + half) + "]";
-    f.sentence = f.passed ? "mean " + short_number(m.mean) + " lies inside " + around
-                          : "mean " + short_number(m.mean) + " lies outside " + around + ", the " +
-                                percent_text(each) + " interval around the " + short_number(d.mean) +
-                                " expected for " + subject + " with " + std::to_string(n) + " values";
-    report.add(f);
-  }
-
-  // Variance, reported as a standard deviation.
-  if (n >= 2) {
-    const double var_se = std::sqrt(std::max(
-        0.0, d.fourth / rn - d.variance * d.variance * (rn - 3) / (rn * (rn - 1))));
-    const double z = (m.variance - d.variance) / var_se;
-    const double half = two_sided_quantile(each) * var_se;
-    const double lo = std::sqrt(std::max(0.0, d.variance - half)), hi = std::sqrt(d.variance + half);
-    const double sd = std::sqrt(m.variance), want = d.stddev();
-    audit_finding f{"variance", two_sided_p(z) >= each, "", z, two_sided_p(z)};
-    if (f.passed) {
-      f.sentence = "standard deviation " + short_number(sd) + " lies inside [" + short_number(lo) + ", " +
-                   short_number(hi) + "]";
-    } else {
-      f.sentence = "standard deviation " + short_number(sd) + " is " + short_number(sd / want) + "x the " +
-                   short_number(want) + " expected for " + subject + " (" + percent_text(each) + " interval [" +
-                   short_number(lo) + ", " + short_number(hi) + "])";
-      if (hint != nullptr && m.variance > 0) {
-        // Which fan would give the variance seen? Prefer one of this layer's fans.
-        std::string match;
-        for (fan_basis b : {fan_basis::in, fan_basis::out, fan_basis::average}) {
-          const fan_scaled rule{hint->scale, b, draw_shape::normal, 2};
-          if (b != hint->basis && std::fabs(rule.variance(hint->fans) - m.variance) <= half) {
-            match = "; the value matches " + fan_text(b, hint->fans) + " of this layer";
-            break;
-          }
-        }
-        if (match.empty()) {
-          // The fans consistent with the variance seen (its interval scaled to it); a
-          // power-of-two multiple of the declared fan inside it is the usual mistake.
-          const double seen_half = half * m.variance / d.variance;
-          const double fan_lo = hint->scale / (m.variance + seen_half);
-          const double fan_hi = m.variance > seen_half ? hint->scale / (m.variance - seen_half)
-                                                       : std::numeric_limits<double>::infinity();
-          const double declared_fan = fan_scaled{hint->scale, hint->basis, draw_shape::normal, 2}.fan(hint->fans);
-          const char* basis = basis_name(hint->basis);
-          for (double factor : {0.5, 2.0, 0.25, 4.0, 0.125, 8.0}) {
-            const double candidate = declared_fan * factor;
-            if (candidate >= fan_lo && candidate <= fan_hi) {
-              match = "; the value matches " + std::string(basis) + " " + short_number(candidate, 6) + " (" +
-                      (factor < 1 ? "1/" + short_number(1 / factor) : short_number(factor)) + " times the declared)";
-              break;
-            }
-          }
-          if (match.empty()) {
-            match = "; the value matches " + std::string(basis) + " " + short_number(hint->scale / m.variance, 4) +
-                    " (interval [" + short_number(fan_lo, 4) + ", " + short_number(fan_hi, 4) + "])";
-          }
-        }
-        f.sentence += match;
-      }
-    }
-    report.add(f);
-  }
+  const conformance_input in{d, stored.moments(), moments_of(t, d.mean), n, alpha, alpha / 3, subject};
+  const double statistic = ks_statistic_binned(t.counts, n, [&](std::uint32_t j) { return stored.below(grid.edge(j)); });
+  report.add(ks_finding(in, statistic));
+  report.add(mean_finding(in));
+  if (n >= 2) report.add(variance_finding(in, hint));
   return report;
 }
 
@@ -289,24 +367,26 @@ std::string scheme_subject(const Scheme& scheme, const fans& f) {
 }  // namespace detail
 
 /// Checks that the values of v follow distribution d (dist::uniform,
-/// dist::symmetric_uniform, dist::normal or dist::truncated_normal). The view may be a
-/// region of its tensor. `subject` names the claim in sentences (default: d's text).
-template <class E, class D>
+/// dist::symmetric_uniform, dist::normal or dist::truncated_normal) as stored in v's
+/// element type. The view may be a region of its tensor. `subject` names the claim in
+/// sentences (default: d's text). One pass over v on executor exec (any executor, the
+/// same verdict bit for bit).
+template <class E, class D, class Exec = serial_executor>
 audit_report check_distribution(const strided_view<E>& v, const D& d, const audit_options& options = {},
-                                std::string subject = "") {
+                                std::string subject = "", const Exec& exec = Exec{}) {
   detail::check_alpha(options.alpha, "check_distribution");
   const detail::declared declared = detail::declare(d);
   if (subject.empty()) subject = declared.text();
-  return detail::conformance(detail::gather(v, options.layout), declared, options.alpha, subject, nullptr);
+  return detail::conformance(v, options.layout, declared, options.alpha, subject, nullptr, exec);
 }
 
 /// Checks that v holds what `scheme` draws for a weight with these fans and layout.
 /// Works for every scheme with distribution(fans) (variance scaling, Glorot, He,
 /// LeCun, fixed); when the scheme is a variance-scaling rule, a wrong standard
 /// deviation is explained by the fan that would give it.
-template <class E, class Scheme>
+template <class E, class Scheme, class Exec = serial_executor>
 audit_report check_scheme(const strided_view<E>& v, const weight_info& w, const Scheme& scheme,
-                          const audit_options& options = {}) {
+                          const audit_options& options = {}, const Exec& exec = Exec{}) {
   detail::check_alpha(options.alpha, "check_scheme");
   scheme.check(v.global_shape(), w);
   const std::string subject = detail::scheme_subject(scheme, w.fans);
@@ -316,16 +396,16 @@ audit_report check_scheme(const strided_view<E>& v, const weight_info& w, const 
   detail::fan_hint hint;
   const bool scaling = detail::scaling_rule_of(scheme, &rule);
   if (scaling) hint = detail::fan_hint{rule.scale, rule.basis, w.fans};
-  return detail::conformance(detail::gather(v, w.layout), declared, options.alpha, subject,
-                             scaling ? &hint : nullptr);
+  return detail::conformance(v, w.layout, declared, options.alpha, subject, scaling ? &hint : nullptr, exec);
 }
 
 /// The same for the weight of a layer description (dense, convolution, embedding, ...):
 /// its shape is checked against the layer and its fans come from the layer. A packed
 /// layer (LSTM, GRU) is checked block by block, each with its own fans.
-template <class E, class Layer, class Scheme, class = decltype(std::declval<const Layer&>().layer_fans())>
+template <class E, class Layer, class Scheme, class Exec = serial_executor,
+          class = decltype(std::declval<const Layer&>().layer_fans())>
 audit_report check_scheme(const strided_view<E>& v, const Layer& layer, const Scheme& scheme,
-                          const audit_options& options = {}) {
+                          const audit_options& options = {}, const Exec& exec = Exec{}) {
   layer.check_shape(detail::shape_vector(v.global_shape()));
   const weight_layout layout = detail::layout_of(layer);
   if constexpr (detail::is_packed<Layer>::value) {
@@ -341,7 +421,7 @@ audit_report check_scheme(const strided_view<E>& v, const Layer& layer, const Sc
       strided_view<E> part = v;
       detail::block_part(v, b, &part);
       // Each block is a weight of its own; its sentences say which block.
-      const audit_report one = check_scheme(part, weight_info{b.block_fans, layout}, scheme, each);
+      const audit_report one = check_scheme(part, weight_info{b.block_fans, layout}, scheme, each, exec);
       for (audit_finding f : one.findings()) {
         f.sentence = "block " + std::to_string(b.index) + ": " + f.sentence;
         report.add(f);
@@ -349,7 +429,7 @@ audit_report check_scheme(const strided_view<E>& v, const Layer& layer, const Sc
     }
     return report;
   } else {
-    return check_scheme(v, weight_info{layer.layer_fans(), layout}, scheme, options);
+    return check_scheme(v, weight_info{layer.layer_fans(), layout}, scheme, options, exec);
   }
 }
 

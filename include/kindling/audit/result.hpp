@@ -16,13 +16,17 @@ namespace kindling {
 
 /// One check: its short name ("ks", "mean", "duplicate-units", ...), whether it
 /// passed, a sentence that says what was found, and (for statistical checks) the
-/// statistic and its p-value (NaN when the check is not statistical).
+/// statistic, its p-value and the interval the check accepted (for "ks" [0, critical D],
+/// for "mean" the interval of the mean, for "variance" that of the standard deviation);
+/// NaN when the check is not statistical.
 struct audit_finding {
   std::string check;
   bool passed = true;
   std::string sentence;
   double statistic = std::nan("");
   double p_value = std::nan("");
+  double lower = std::nan("");
+  double upper = std::nan("");
 };
 
 class audit_report {
