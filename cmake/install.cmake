@@ -2,6 +2,10 @@
 # pkg-config file.
 include(CMakePackageConfigHelpers)
 
+# Installing (and cpack) must not first build every target: the headers need no
+# build, and the tool is installed only when it was built (examples/tool).
+set(CMAKE_SKIP_INSTALL_ALL_DEPENDENCY ON)
+
 set(KINDLING_CMAKE_DIR ${CMAKE_INSTALL_DATADIR}/cmake/kindling)
 
 install(DIRECTORY ${PROJECT_SOURCE_DIR}/include/kindling
@@ -30,7 +34,20 @@ install(FILES ${PROJECT_BINARY_DIR}/kindlingConfig.cmake
               ${PROJECT_BINARY_DIR}/kindlingConfigVersion.cmake
         DESTINATION ${KINDLING_CMAKE_DIR})
 
+# The .pc file lives in DATADIR/pkgconfig and finds the prefix relative to itself.
+set(_kindling_pc_dir ${CMAKE_INSTALL_DATADIR}/pkgconfig)
+file(RELATIVE_PATH KINDLING_PC_PREFIX_FROM_PCFILEDIR /prefix/${_kindling_pc_dir} /prefix)
+string(REGEX REPLACE "/$" "" KINDLING_PC_PREFIX_FROM_PCFILEDIR "${KINDLING_PC_PREFIX_FROM_PCFILEDIR}")  # "../.."
+if(IS_ABSOLUTE "${CMAKE_INSTALL_INCLUDEDIR}")
+  set(KINDLING_PC_INCLUDEDIR "${CMAKE_INSTALL_INCLUDEDIR}")
+else()
+  set(KINDLING_PC_INCLUDEDIR "\${prefix}/${CMAKE_INSTALL_INCLUDEDIR}")
+endif()
 configure_file(${PROJECT_SOURCE_DIR}/cmake/kindling.pc.in
                ${PROJECT_BINARY_DIR}/kindling.pc @ONLY)
 install(FILES ${PROJECT_BINARY_DIR}/kindling.pc
-        DESTINATION ${CMAKE_INSTALL_DATADIR}/pkgconfig)
+        DESTINATION ${_kindling_pc_dir})
+
+# `cpack` in the build tree makes a Debian package of whatever the install rules
+# install (with the tool when it was built); see cmake/package.cmake.
+include(${PROJECT_SOURCE_DIR}/cmake/package.cmake)

@@ -5,12 +5,14 @@
 #include <cstdio>
 #include <stdexcept>
 #include <string>
+#include <variant>
 #include <vector>
 
 #include <kindling/element.hpp>
 #include <kindling/fill.hpp>
 #include <kindling/io/npy.hpp>
 #include <kindling/random/stream.hpp>
+#include <kindling/schemes/detail/unit_matrix.hpp>
 #include <kindling/schemes/scheme.hpp>
 #include <kindling/view.hpp>
 
@@ -59,6 +61,17 @@ int run_draw(const draw_options& o) {
   if (uses_fans(scheme) && (f.fan_in == 0 || f.fan_out == 0)) {
     throw std::invalid_argument("scheme '" + o.scheme.scheme + "' needs fans, and the rank-1 shape " +
                                 shape_text(global) + " has none: give both --fan-in and --fan-out");
+  }
+  // sparse draws each unit's --nonzero positions among the incoming weights the shape
+  // gives; a different --fan-in would be reported but not used, so it is refused.
+  if (std::holds_alternative<sparse>(scheme) && o.fan_in) {
+    const detail::unit_matrix m(shape(global.begin(), global.end()), layout);
+    if (*o.fan_in != m.cols) {
+      throw std::invalid_argument("--fan-in " + std::to_string(*o.fan_in) +
+                                  " does not apply to scheme 'sparse': each unit draws its --nonzero positions "
+                                  "among the " + std::to_string(m.cols) + " incoming weights of --shape " +
+                                  o.shape + "; expected --fan-in " + std::to_string(m.cols) + " or no --fan-in");
+    }
   }
   std::vector<std::uint64_t> offset(global.size(), 0), extent = global;
   if (!o.region.empty()) parse_region(o.region, global, &offset, &extent);

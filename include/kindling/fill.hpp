@@ -23,6 +23,14 @@
 // done (rethrowing a task's exception if one threw). serial_executor,
 // thread_executor and (with OpenMP) openmp_executor are provided; a trainer's own
 // thread pool becomes one with a lambda.
+//
+// An executor that breaks this promise is caught, not trusted: the fill marks each
+// task it completes, and if the executor throws, returns with a task never run, or
+// calls a task number outside [0, n_tasks), the fill throws fill_incomplete (a
+// std::runtime_error; an executor's own exception is nested inside it). The tensor's
+// contents are then unspecified: the chunks of completed tasks hold their values, a
+// chunk cut short is partly written, the others keep what they held, and nothing is
+// restored. Throws before the executor runs (bad arguments) write nothing at all.
 #ifndef KINDLING_FILL_HPP
 #define KINDLING_FILL_HPP
 
@@ -48,6 +56,21 @@
 #include "kindling/view.hpp"
 
 namespace kindling {
+
+/// A fill whose executor threw, skipped tasks or called a task that does not exist; the
+/// view's contents are unspecified (see the top of this header). tasks_done() of
+/// tasks() chunks were written completely.
+class fill_incomplete : public std::runtime_error {
+ public:
+  fill_incomplete(const std::string& what, std::size_t done, std::size_t tasks)
+      : std::runtime_error(what), done_(done), tasks_(tasks) {}
+  std::size_t tasks_done() const noexcept { return done_; }
+  std::size_t tasks() const noexcept { return tasks_; }
+
+ private:
+  std::size_t done_;
+  std::size_t tasks_;
+};
 
 /// Elements of a view's region per executor task; fixed, never derived from the thread count.
 inline constexpr std::uint64_t fill_chunk_elements = 16384;
@@ -421,11 +444,45 @@ void fill_generated(const strided_view<E>& v, const element_bounds& bounds, cons
   const std::uint64_t total = v.size();
   const detail::element_rounder<E> rounder(bounds);
   const bool stream = total * sizeof(E) >= fill_streaming_bytes;
+  const std::size_t n_tasks = detail::fill_task_count(total);
+  std::vector<std::atomic<bool>> completed(n_tasks);  // value-initialized: all false
   const std::function<void(std::size_t)> task = [&](std::size_t k) {
+    if (k >= n_tasks) {
+      throw std::out_of_range("kindling::fill: the executor called task " + std::to_string(k) +
+                              "; expected a task number from 0 to " + std::to_string(n_tasks - 1));
+    }
     const std::uint64_t first = static_cast<std::uint64_t>(k) * fill_chunk_elements;
     detail::fill_chunk(v, rounder, stream, gen, first, std::min(fill_chunk_elements, total - first));
+    completed[k].store(true, std::memory_order_relaxed);  // the executor's return orders it
   };
-  std::forward<Exec>(exec)(detail::fill_task_count(total), task);
+  const auto done_count = [&]() {
+    return static_cast<std::size_t>(std::count_if(completed.begin(), completed.end(),
+                                                  [](const std::atomic<bool>& c) { return c.load(); }));
+  };
+  const auto tally = [&](std::size_t done) {
+    return std::to_string(done) + " of " + std::to_string(n_tasks) + " tasks (chunks of " +
+           std::to_string(fill_chunk_elements) + " elements) completed; the tensor's contents are "
+           "unspecified (completed chunks written, the rest partly written or as they were)";
+  };
+  try {
+    std::forward<Exec>(exec)(n_tasks, task);
+  } catch (const std::exception& e) {
+    const std::size_t done = done_count();
+    std::throw_with_nested(fill_incomplete(
+        std::string("kindling::fill: the executor threw (") + e.what() + ") with " + tally(done), done, n_tasks));
+  } catch (...) {
+    const std::size_t done = done_count();
+    std::throw_with_nested(
+        fill_incomplete("kindling::fill: the executor threw a non-standard exception with " + tally(done), done,
+                        n_tasks));
+  }
+  const std::size_t done = done_count();
+  if (done != n_tasks) {
+    throw fill_incomplete("kindling::fill: the executor returned with " + tally(done) +
+                              "; expected an executor that calls task(k) once for every k in [0, " +
+                              std::to_string(n_tasks) + ")",
+                          done, n_tasks);
+  }
 }
 
 /// Fills a view with distribution d drawn from stream s, domain dom. The values are

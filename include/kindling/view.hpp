@@ -328,6 +328,19 @@ inline void check_strides(const region& part, const strides& steps) {
     }
     span += step * reach;
   }
+  // The fill steps through every axis, those of extent 1 too: it adds a stride, then
+  // takes back extent * stride when the index wraps. So each |stride| * extent, added to
+  // the span, must fit as well, or a size-1 axis with a huge stride overflows there.
+  for (std::size_t d = 0; d < r; ++d) {
+    const std::uint64_t step = magnitude(d);
+    if (step > (limit - span) / part.extent()[d]) {
+      throw std::length_error("kindling: argument 'strides' = " + steps.text() + " has stride " +
+                              std::to_string(steps[d]) + " in dimension " + std::to_string(d) +
+                              " (extent " + std::to_string(part.extent()[d]) + ") of region " +
+                              part.text() + "; expected |stride| * extent + " + std::to_string(span) +
+                              " (the span of the region) to fit std::ptrdiff_t (2^63 - 1)");
+    }
+  }
 }
 
 }  // namespace detail

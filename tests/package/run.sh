@@ -7,20 +7,32 @@ here=$(cd "$(dirname "$0")" && pwd)
 src=$(cd "$here/../.." && pwd)
 work=${1:-$(mktemp -d)}
 rm -rf "$work"; mkdir -p "$work"
+jobs=${KINDLING_PACKAGE_JOBS:-2}  # parallel build jobs (1 on a shared machine)
+
+# The usual way to install a header-only library works at top level with every default
+# (tests and examples configured, nothing built): headers and package files are
+# installed, the tool is skipped because it was not built.
+cmake -S "$src" -B "$work/top" >/dev/null
+cmake --install "$work/top" --prefix "$work/top-prefix" >"$work/top-install.log"
+test -f "$work/top-prefix/include/kindling/kindling.hpp"
+test -f "$work/top-prefix/share/cmake/kindling/kindlingConfig.cmake"
+test -f "$work/top-prefix/share/pkgconfig/kindling.pc"
+test ! -e "$work/top-prefix/bin/kindling"
+grep -q "kindling tool not built, so not installed" "$work/top-install.log"
 
 # The library and the command-line tool, installed (only the tool among the examples
 # has an install rule, so building just that target is enough).
 cmake -S "$src" -B "$work/lib" -DCMAKE_BUILD_TYPE=Release \
   -DKINDLING_BUILD_TESTS=OFF -DKINDLING_BUILD_EXAMPLES=ON -DKINDLING_BUILD_BENCHMARKS=OFF \
   -DCMAKE_INSTALL_PREFIX="$work/prefix" >/dev/null
-cmake --build "$work/lib" -j2 --target kindling_tool >/dev/null
+cmake --build "$work/lib" -j"$jobs" --target kindling_tool >/dev/null
 cmake --install "$work/lib" >/dev/null
 test -x "$work/prefix/bin/kindling"
 test -f "$work/prefix/share/pkgconfig/kindling.pc"
 test -f "$work/prefix/share/cmake/kindling/kindlingConfigVersion.cmake"
 
 cmake -S "$here/find_package" -B "$work/fp" -DCMAKE_PREFIX_PATH="$work/prefix" >/dev/null
-cmake --build "$work/fp" -j2 >/dev/null
+cmake --build "$work/fp" -j"$jobs" >/dev/null
 "$work/fp/consumer"
 "$work/fp/consumer_eigen"
 
@@ -30,9 +42,17 @@ PKG_CONFIG_PATH="$work/prefix/share/pkgconfig" pkg-config --exists kindling
 c++ "$here/find_package/consumer.cpp" -o "$work/pc_consumer" \
   $(PKG_CONFIG_PATH="$work/prefix/share/pkgconfig" pkg-config --cflags --libs kindling)
 "$work/pc_consumer"
+# The .pc file must not choose the language standard: a C++20 user keeps C++20.
+if PKG_CONFIG_PATH="$work/prefix/share/pkgconfig" pkg-config --cflags kindling | grep -q -- '-std='; then
+  echo "kindling.pc forces a -std flag" >&2; exit 1
+fi
+# shellcheck disable=SC2046
+c++ -std=c++20 "$here/find_package/consumer.cpp" -o "$work/pc_consumer20" \
+  $(PKG_CONFIG_PATH="$work/prefix/share/pkgconfig" pkg-config --cflags --libs kindling)
+"$work/pc_consumer20"
 
 cmake -S "$here/subdirectory" -B "$work/sub" -DKINDLING_SOURCE_DIR="$src" >/dev/null
-cmake --build "$work/sub" -j2 >/dev/null
+cmake --build "$work/sub" -j"$jobs" >/dev/null
 "$work/sub/consumer"
 # add_subdirectory must not build our tests, examples or benchmarks.
 if find "$work/sub" -name 'kindling_test_*' -o -name 'kindling_demo' -o -name 'kindling_bench*' | grep -q .; then
@@ -42,4 +62,38 @@ fi
 "$work/prefix/bin/kindling" draw --scheme glorot-uniform --shape 64x32 --seed 3 --name pkg.w -o "$work/pkg.npy"
 "$work/prefix/bin/kindling" check "$work/pkg.npy" --expect glorot-uniform
 "$work/prefix/bin/kindling" plan >/dev/null
+
+# The Debian package: made by CPack from the build that has the tool, installed with
+# dpkg (as root, which CI is), used through find_package and pkg-config without any
+# path hints, then removed.
+(cd "$work/lib" && cpack -G DEB >/dev/null)
+deb=$(ls "$work/lib"/kindling_*.deb)
+dpkg-deb --contents "$deb" >"$work/deb-contents.txt"
+grep -q './usr/bin/kindling$' "$work/deb-contents.txt"
+grep -q './usr/share/pkgconfig/kindling.pc$' "$work/deb-contents.txt"
+if [ "$(id -u)" != 0 ]; then
+  echo "packaging: .deb built ($deb); not root, so the dpkg -i test is skipped" >&2
+else
+  if dpkg -s kindling >/dev/null 2>&1 || [ -e /usr/include/kindling ]; then
+    echo "kindling is already installed under /usr; refusing to replace or remove it" >&2; exit 1
+  fi
+  dpkg -i "$deb" >/dev/null
+  trap 'dpkg -r kindling >/dev/null 2>&1 || true' EXIT
+  cmake -S "$here/find_package" -B "$work/deb-fp" >/dev/null
+  grep -q '^kindling_DIR:PATH=/usr/share/cmake/kindling$' "$work/deb-fp/CMakeCache.txt"
+  cmake --build "$work/deb-fp" -j"$jobs" >/dev/null
+  "$work/deb-fp/consumer"
+  "$work/deb-fp/consumer_eigen"
+  # shellcheck disable=SC2046
+  c++ -std=c++20 "$here/find_package/consumer.cpp" -o "$work/deb_pc_consumer" \
+    $(env -u PKG_CONFIG_PATH pkg-config --cflags --libs kindling)
+  "$work/deb_pc_consumer"
+  /usr/bin/kindling draw --scheme he-normal --shape 16x8 --seed 5 --name deb.w -o "$work/deb.npy"
+  /usr/bin/kindling check "$work/deb.npy" --expect he-normal
+  dpkg -r kindling >/dev/null
+  trap - EXIT
+  if [ -e /usr/include/kindling ] || [ -e /usr/bin/kindling ]; then
+    echo "dpkg -r kindling left files behind" >&2; exit 1
+  fi
+fi
 echo "packaging tests passed"

@@ -361,6 +361,21 @@ elif CASE == "limits":
     expect("SPEC 'huge.json'" in err and "MiB" in err, f"a 2 MiB spec: {err!r}")
     _, err = expect_code(2, "draw", "--scheme", "he-normal", "--shape", "65536x65536", "-o", "big.npy")
     expect("--shape 65536x65536" in err and "memory" in err, f"--shape 65536x65536: {err!r}")
+    # structured schemes on a tiny region: orthogonal refuses the whole factorization a
+    # region would cost; sparse draws only the region's unit (quick even for 2^21 nonzeros)
+    _, err = expect_code(2, "draw", "--scheme", "orthogonal", "--shape", "16384x16384", "--region", "0:1,0:1",
+                         "-o", "o.npy")
+    expect("[16384, 16384]" in err and "16384 x 16384 factorization" in err and "2^26" in err,
+           f"orthogonal on a one-element region: {err!r}")
+    try:
+        p = subprocess.run([KINDLING, "draw", "--scheme", "sparse", "--shape", "2x4194304", "--nonzero", "2097152",
+                            "--region", "1:2,5:6", "-o", "s.npy"], capture_output=True, text=True, timeout=60)
+        expect(p.returncode == 0, f"sparse --nonzero 2^21 on one element: {p.stderr!r}")
+    except subprocess.TimeoutExpired:
+        failures.append("sparse --nonzero 2^21 on one element: still drawing after 60 s")
+    _, err = expect_code(2, "draw", "--scheme", "sparse", "--shape", "8x16", "--fan-in", "4", "-o", "s.npy")
+    expect("--fan-in 4 does not apply to scheme 'sparse'" in err and "expected --fan-in 16" in err,
+           f"sparse with a --fan-in override: {err!r}")
     _, err = expect_code(2, "plan", "--measure", "--batch", "4294967296")
     expect("--batch 4294967296" in err and "memory" in err, f"--batch 2^32: {err!r}")
     # a header announcing more data than check may hold is refused before reading the data

@@ -22,7 +22,11 @@
 //     compute type (float for float, float16 and bfloat16, which are then rounded to
 //     nearest-even from that float), then written through fill_generated, so any view,
 //     region, storage order and executor works. A region computes the whole matrix
-//     and writes its own part: a shard costs as much as the whole weight.
+//     and writes its own part: a shard costs as much as the whole weight. So a region
+//     (any view that is not the whole tensor) is refused when the factorized matrix has
+//     more than 2^26 entries (8192 x 8192, about a minute of QR on one core): one
+//     element of a 16384 x 16384 weight would cost the whole 16384 x 16384
+//     factorization. Fill such a weight whole, once, and copy out the shards.
 //
 // delta_orthogonal{gain} (Xiao, Bahri, Sohl-Dickstein, Schoenholz & Pennington, ICML
 // 2018, "Dynamical isometry and a mean field theory of CNNs"): a convolution kernel
@@ -93,6 +97,22 @@ inline void require_orthogonal_size(std::uint64_t rows, std::uint64_t cols, cons
   }
 }
 
+/// Largest factorized matrix (rows * cols) for which a region of the weight is filled.
+inline constexpr std::uint64_t max_orthogonal_region_entries = std::uint64_t{1} << 26;
+
+// A region of the weight costs the whole rows x cols factorization: refused above
+// max_orthogonal_region_entries, before anything is computed or written.
+template <class E>
+void require_orthogonal_region(const strided_view<E>& v, std::uint64_t rows, std::uint64_t cols,
+                               const char* scheme) {
+  if (v.is_whole() || cols <= max_orthogonal_region_entries / rows) return;
+  throw std::length_error(std::string("kindling::") + scheme + ": argument 'region' (" + v.part().text() +
+                          ") of shape " + v.global_shape().text() + " needs the whole " + std::to_string(rows) +
+                          " x " + std::to_string(cols) +
+                          " factorization, however small the region; expected a region of a weight whose "
+                          "matrix has at most 2^26 entries (e.g. 8192 x 8192), or the whole tensor");
+}
+
 /// A dense double matrix in row-major storage (the order the writers read it in).
 using row_major_matrix = Eigen::Matrix<double, Eigen::Dynamic, Eigen::Dynamic, Eigen::RowMajor>;
 
@@ -153,6 +173,7 @@ struct orthogonal {
   template <class E, class Exec>
   void write(const strided_view<E>& v, const weight_info& w, const stream& s, Exec&& exec) const {
     const detail::unit_matrix um(v.global_shape(), w.layout);
+    detail::require_orthogonal_region(v, um.rows, um.cols, "orthogonal");
     const detail::row_major_matrix q = detail::haar_orthogonal(um.rows, um.cols, gain, s);
     const auto entry = [&q](std::uint64_t row, std::uint64_t col) {
       return q(static_cast<Eigen::Index>(row), static_cast<Eigen::Index>(col));
@@ -180,6 +201,7 @@ struct delta_orthogonal {
         detail::centre_tap_geometry::of(v.global_shape(), w, "delta_orthogonal");
     // The centre tap as one out x in matrix: group k's block in rows k*out/g .. (k+1)*out/g - 1.
     const std::uint64_t per_group = g.out_per_group();
+    detail::require_orthogonal_region(v, g.out, g.in, "delta_orthogonal");  // every group is factorized
     detail::row_major_matrix centre(static_cast<Eigen::Index>(g.out), static_cast<Eigen::Index>(g.in));
     for (std::uint64_t k = 0; k < g.groups; ++k) {
       const stream group_stream = g.groups == 1 ? s : s.indexed(k);
