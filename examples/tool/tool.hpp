@@ -79,9 +79,6 @@ int run_plan(const plan_options& o);
 
 // ---- shared helpers (common.cpp) -----------------------------------------------------
 
-/// The scheme names `draw` accepts, in the order the help lists them.
-const std::vector<std::string>& scheme_names();
-
 /// The whole number `text` given to `option`: decimal digits only (no sign, space or
 /// trailing junk), from `min` to `max`. Anything else, an empty text or a value beyond
 /// 2^64 - 1 included, is std::invalid_argument naming the option, the text and the range
