@@ -7,14 +7,6 @@
 
 namespace kindling::tool {
 
-const std::vector<std::string>& scheme_names() {
-  static const std::vector<std::string> names{
-      "zeros",          "constant",      "uniform",    "normal",        "truncated-normal",
-      "glorot-uniform", "glorot-normal", "he-uniform", "he-normal",     "lecun-uniform",
-      "lecun-normal",   "orthogonal",    "identity",   "delta-orthogonal", "sparse"};
-  return names;
-}
-
 std::string shape_text(const std::vector<std::uint64_t>& shape) {
   std::string s = "[";
   for (std::size_t i = 0; i < shape.size(); ++i) s += (i ? ", " : "") + std::to_string(shape[i]);

@@ -1,4 +1,5 @@
-// examples/tool/main.cpp: the `kindling` command line (CLI11): draw, check, plan.
+// examples/tool/main.cpp: the `kindling` command line (CLI11): draw, check, plan,
+// assemble, verify.
 // Exit status 0 on success, 1 when a check fails, 2 on bad input; every error is one
 // line on stderr.
 #include <cstdio>
@@ -81,7 +82,9 @@ int main(int argc, char** argv) {
   CLI::App app{"kindling: reproducible initialization of neural-network parameters.\n"
                "  draw   write a scheme's values for a parameter to a .npy file\n"
                "  check  audit a .npy weight file (symmetry, --expect, --identify)\n"
-               "  plan   predict (and --measure) variance through a layer stack",
+               "  plan   predict (and --measure) variance through a layer stack\n"
+               "  assemble  write a whole model plan into one .safetensors file and its manifest\n"
+               "  verify    check a .safetensors checkpoint against a manifest, tensor by tensor",
                "kindling"};
   app.require_subcommand(1);
 
@@ -140,6 +143,19 @@ int main(int argc, char** argv) {
   plan_cmd->add_flag("--json", plan.json, "Print the table as JSON");
   plan_cmd->add_option("--svg", plan.svg, "Write the variance-through-depth plot to this SVG file");
 
+  assemble_options assemble;
+  integer_option assemble_seed{"--seed", 0, ~std::uint64_t{0}, {}, nullptr};
+  CLI::App* assemble_cmd = app.add_subcommand("assemble", "Write a whole model plan into one .safetensors file and a manifest");
+  assemble_cmd->add_option("PLAN", assemble.plan, "Model plan .json (see kindling/io/manifest.hpp)")->required();
+  add(assemble_cmd, assemble_seed, "Seed, 0 to 2^64 - 1 (default: the plan's \"seed\", else 0)");
+  assemble_cmd->add_option("-o,--output", assemble.output, "Output .safetensors file")->required();
+  assemble_cmd->add_option("--manifest", assemble.manifest, "Output manifest .json (default: OUTPUT.manifest.json)");
+
+  verify_options verify;
+  CLI::App* verify_cmd = app.add_subcommand("verify", "Check a .safetensors checkpoint against a manifest exactly");
+  verify_cmd->add_option("FILE", verify.file, "The .safetensors file")->required();
+  verify_cmd->add_option("--manifest", verify.manifest, "The manifest .json that assemble wrote")->required();
+
   try {
     app.parse(argc, argv);
   } catch (const CLI::ParseError& e) {
@@ -147,8 +163,17 @@ int main(int argc, char** argv) {
     std::fprintf(stderr, "kindling: error: %s (see kindling --help)\n", one_line(e.what()).c_str());
     return exit_bad_input;
   }
-  const char* command = draw_cmd->parsed() ? "draw" : check_cmd->parsed() ? "check" : "plan";
+  const char* command = draw_cmd->parsed()       ? "draw"
+                        : check_cmd->parsed()    ? "check"
+                        : assemble_cmd->parsed() ? "assemble"
+                        : verify_cmd->parsed()   ? "verify"
+                                                 : "plan";
   try {
+    if (assemble_cmd->parsed()) {
+      assemble.seed = assemble_seed.get();
+      return run_assemble(assemble);
+    }
+    if (verify_cmd->parsed()) return run_verify(verify);
     if (draw_cmd->parsed()) {
       draw_flags.into(draw.scheme);
       draw.fan_in = draw_fan_in.get();
@@ -185,6 +210,8 @@ int main(int argc, char** argv) {
         draw_cmd->parsed()    ? "for --shape " + draw.shape + (draw.region.empty() ? "" : " --region " + draw.region) +
                                  " --dtype " + draw.dtype + "; expected a smaller tensor, or write it in blocks with --region"
         : check_cmd->parsed() ? "reading FILE '" + check.file + "'; expected a smaller file, or more free memory"
+        : assemble_cmd->parsed() ? "for PLAN '" + assemble.plan + "'; expected smaller parameters, or more free memory"
+        : verify_cmd->parsed()   ? "reading --manifest '" + verify.manifest + "'; expected a smaller manifest"
                               : "for SPEC '" + (plan.spec.empty() ? std::string("(built-in)") : plan.spec) +
                                    "'" + (plan.measure ? " with --batch " + std::to_string(plan.batch) : std::string()) +
                                    "; expected a smaller network" + (plan.measure ? " or --batch" : "");

@@ -1,5 +1,5 @@
 // examples/tool/schemes.hpp: a scheme chosen by name on the command line, with its
-// arguments (--gain, --std, --value, --nonzero), as one value of a std::variant.
+// arguments (--gain, --std, --value, --nonzero), through the library's scheme registry.
 #ifndef KINDLING_TOOL_SCHEMES_HPP
 #define KINDLING_TOOL_SCHEMES_HPP
 
@@ -9,82 +9,69 @@
 #include <string>
 #include <variant>
 
-#include <kindling/schemes/constant.hpp>
-#include <kindling/schemes/fixed.hpp>
-#include <kindling/schemes/identity.hpp>
-#include <kindling/schemes/orthogonal.hpp>
-#include <kindling/schemes/sparse.hpp>
-#include <kindling/schemes/variance_scaling.hpp>
+#include <kindling/schemes/registry.hpp>
 
 #include "tool.hpp"
 
 namespace kindling::tool {
 
-using any_scheme = std::variant<zeros, constant, fixed_uniform, fixed_normal, fixed_truncated_normal, glorot_uniform,
-                                glorot_normal, he_uniform, he_normal, lecun_uniform, lecun_normal, fan_scaled,
-                                orthogonal, identity, delta_orthogonal, sparse>;
+using any_scheme = scheme_variant;
 
-/// The scheme `a` names. --gain on a He or LeCun scheme sets its standard deviation to
-/// gain / sqrt(fan) (the scheme's fan, its draw). --std is the standard deviation of
-/// uniform (on ±sqrt(3) std), normal, truncated-normal (cut at 2 sigma) and of the
-/// nonzero weights of sparse. An argument the scheme does not take is an error.
-inline any_scheme make_scheme(const scheme_arguments& a) {
+/// The scheme `a` names, built through the library's registry (schemes/registry.hpp)
+/// from the options given: --gain, --std, --value and --nonzero are the registry's
+/// arguments gain, std, value and nonzero. --gain on a He or LeCun scheme sets its
+/// standard deviation to gain / sqrt(fan) (the scheme's fan, its draw). --std is the
+/// standard deviation of uniform (on +-sqrt(3) std), normal, truncated-normal (cut at 2
+/// sigma) and of the nonzero weights of sparse. An argument the scheme does not take is
+/// an error naming the option.
+inline scheme_value make_scheme_value(const scheme_arguments& a) {
   const std::string& s = a.scheme;
-  const auto refuse = [&](bool given, const char* option, const char* expected) {
-    if (given) throw std::invalid_argument(std::string(option) + " does not apply to scheme '" + s + "'; " + expected);
+  const scheme_entry* e = find_scheme_entry(s);
+  if (e == nullptr) throw std::invalid_argument("--scheme '" + s + "' is not a scheme, expected one of " + scheme_names_text());
+  const auto refuse = [&](bool given, const char* key, const char* option, const char* expected) {
+    if (given && e->argument(key) == nullptr) {
+      throw std::invalid_argument(std::string(option) + " does not apply to scheme '" + s + "'; " + expected);
+    }
   };
-  const bool fixed = s == "uniform" || s == "normal" || s == "truncated-normal";
-  const bool gained = s.rfind("glorot-", 0) == 0 || s.rfind("he-", 0) == 0 || s.rfind("lecun-", 0) == 0 ||
-                      s == "orthogonal" || s == "identity" || s == "delta-orthogonal";
-  bool known = false;
-  for (const std::string& n : scheme_names()) known = known || n == s;
-  if (!known) {
-    std::string list;
-    for (const std::string& n : scheme_names()) list += (list.empty() ? "" : ", ") + n;
-    throw std::invalid_argument("--scheme '" + s + "' is not a scheme, expected one of " + list);
+  refuse(a.gain.has_value(), "gain", "--gain", "it applies to the Glorot, He, LeCun, orthogonal and identity schemes");
+  refuse(a.stddev.has_value(), "std", "--std", "it applies to uniform, normal, truncated-normal and sparse");
+  refuse(a.value.has_value(), "value", "--value", "it applies to constant");
+  refuse(a.nonzero.has_value(), "nonzero", "--nonzero", "it applies to sparse");
+  const scheme_argument* std_arg = e->argument("std");
+  if (std_arg != nullptr && std_arg->required && !a.stddev) {
+    throw std::invalid_argument("scheme '" + s + "' needs --std (its standard deviation)");
   }
-  refuse(a.gain && !gained, "--gain", "it applies to the Glorot, He, LeCun, orthogonal and identity schemes");
-  refuse(a.stddev && !fixed && s != "sparse", "--std", "it applies to uniform, normal, truncated-normal and sparse");
-  refuse(a.value && s != "constant", "--value", "it applies to constant");
-  refuse(a.nonzero && s != "sparse", "--nonzero", "it applies to sparse");
-  if (fixed && !a.stddev) throw std::invalid_argument("scheme '" + s + "' needs --std (its standard deviation)");
-  if (s == "constant" && !a.value) throw std::invalid_argument("scheme 'constant' needs --value");
-  const double gain = a.gain.value_or(1.0);
-  const bool fan_rule = gained && s != "orthogonal" && s != "identity" && s != "delta-orthogonal";
+  if (e->argument("value") != nullptr && !a.value) throw std::invalid_argument("scheme '" + s + "' needs --value");
   // The fan-scaled schemes square the gain (Var W = gain^2 / fan): a gain whose square
-  // overflows or vanishes in double is refused here, under the user's own option name,
-  // rather than deep in the library under an internal one.
-  if (a.gain && (!std::isfinite(gain) || (fan_rule && !(gain > 0 && std::isfinite(gain * gain) &&
-                                                        gain * gain >= std::numeric_limits<double>::min())))) {
-    throw std::invalid_argument("--gain " + number_text(gain, 6) + ": expected a finite number" +
-                                (fan_rule ? std::string(" > 0 whose square (the variance factor of '" + s +
-                                                        "') is finite and nonzero, e.g. 1e-150 to 1e150")
-                                          : std::string()));
+  // overflows or vanishes in double is refused here, under the user's own option name.
+  if (a.gain) {
+    const bool fan_rule = e->argument("gain")->rule == argument_rule::squarable;
+    const double gain = *a.gain;
+    if (!std::isfinite(gain) || (fan_rule && !(gain > 0 && std::isfinite(gain * gain) &&
+                                               gain * gain >= std::numeric_limits<double>::min()))) {
+      throw std::invalid_argument("--gain " + number_text(gain, 6) + ": expected a finite number" +
+                                  (fan_rule ? std::string(" > 0 whose square (the variance factor of '" + s +
+                                                          "') is finite and nonzero, e.g. 1e-150 to 1e150")
+                                            : std::string()));
+    }
   }
-  const auto scaled = [&](fan_scaled rule) -> any_scheme {
-    if (!a.gain) return rule;
-    rule.scale = gain * gain;
-    return rule;
+  scheme_arguments_list given;
+  const auto give = [&](const std::optional<double>& x, const char* key, const char* option) {
+    if (!x) return;
+    const argument_rule rule = e->argument(key)->rule;
+    if (!detail::rule_holds(rule, *x)) {
+      throw std::invalid_argument(std::string(option) + " " + number_text(*x, 6) + ": expected " + detail::rule_text(rule));
+    }
+    given.emplace_back(key, *x);
   };
-  if (s == "zeros") return zeros{};
-  if (s == "constant") return constant{*a.value};
-  if (s == "uniform") return fixed_uniform{-std::sqrt(3.0) * *a.stddev, std::sqrt(3.0) * *a.stddev};
-  if (s == "normal") return fixed_normal{0.0, *a.stddev};
-  if (s == "truncated-normal") return fixed_truncated_normal{0.0, *a.stddev, 2.0};
-  if (s == "glorot-uniform") return glorot_uniform{gain};
-  if (s == "glorot-normal") return glorot_normal{gain};
-  if (s == "he-uniform") return a.gain ? scaled(he_uniform{}.rule()) : any_scheme(he_uniform{});
-  if (s == "he-normal") return a.gain ? scaled(he_normal{}.rule()) : any_scheme(he_normal{});
-  if (s == "lecun-uniform") return a.gain ? scaled(lecun_uniform{}.rule()) : any_scheme(lecun_uniform{});
-  if (s == "lecun-normal") return a.gain ? scaled(lecun_normal{}.rule()) : any_scheme(lecun_normal{});
-  if (s == "orthogonal") return orthogonal{gain};
-  if (s == "identity") return identity{gain};
-  if (s == "delta-orthogonal") return delta_orthogonal{gain};
-  sparse sp;
-  if (a.nonzero) sp.nonzero = *a.nonzero;
-  if (a.stddev) sp.stddev = *a.stddev;
-  return sp;
+  give(a.gain, "gain", "--gain");
+  give(a.stddev, "std", "--std");
+  give(a.value, "value", "--value");
+  if (a.nonzero) give(static_cast<double>(*a.nonzero), "nonzero", "--nonzero");
+  return kindling::make_scheme_value(s, given, "--scheme '" + s + "'");
 }
+
+inline any_scheme make_scheme(const scheme_arguments& a) { return make_scheme_value(a).variant(); }
 
 /// The largest finite value of the element type --dtype names (f32, f64, f16, bf16).
 inline double element_max(const std::string& dtype) {
@@ -115,10 +102,7 @@ inline void check_fits_element(const scheme_arguments& a, const std::string& dty
 
 /// Whether the scheme divides by a fan (and so needs fans).
 inline bool uses_fans(const any_scheme& s) {
-  return std::holds_alternative<glorot_uniform>(s) || std::holds_alternative<glorot_normal>(s) ||
-         std::holds_alternative<he_uniform>(s) || std::holds_alternative<he_normal>(s) ||
-         std::holds_alternative<lecun_uniform>(s) || std::holds_alternative<lecun_normal>(s) ||
-         std::holds_alternative<fan_scaled>(s);
+  return std::visit([](const auto& sc) { return sc.name() == "fan-scaled" || find_scheme_entry(sc.name())->uses_fans; }, s);
 }
 
 }  // namespace kindling::tool

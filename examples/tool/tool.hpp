@@ -1,5 +1,5 @@
 // examples/tool/tool.hpp: the pieces the commands of the `kindling` tool share. Each
-// command is in its own file (draw.cpp, check.cpp, plan.cpp) so that CLI11 (main.cpp)
+// command is in its own file (draw.cpp, check.cpp, plan.cpp, model.cpp) so that CLI11 (main.cpp)
 // and nlohmann-json are compiled once each, and the schemes are not compiled three times.
 //
 // Exit status: 0 success, 1 a check failed, 2 bad input. Bad input is reported by
@@ -63,6 +63,18 @@ struct plan_options {
   std::size_t threads = 1;
 };
 
+struct assemble_options {
+  std::string plan;                    // a model plan .json (kindling/io/manifest.hpp)
+  std::optional<std::uint64_t> seed;   // overrides the plan's "seed"
+  std::string output;                  // the .safetensors file
+  std::string manifest;                // "" = output + ".manifest.json"
+};
+
+struct verify_options {
+  std::string file;                    // the .safetensors checkpoint
+  std::string manifest;
+};
+
 /// The memory a run may plan to use: draw and plan estimate their peak before
 /// allocating and refuse above it, naming the option that asked (--shape, --batch);
 /// check reads files of at most max_check_elements elements. 8 GiB fits the machines
@@ -77,11 +89,10 @@ std::string bytes_text(double bytes);
 int run_draw(const draw_options& o);
 int run_check(const check_options& o);
 int run_plan(const plan_options& o);
+int run_assemble(const assemble_options& o);
+int run_verify(const verify_options& o);
 
 // ---- shared helpers (common.cpp) -----------------------------------------------------
-
-/// The scheme names `draw` accepts, in the order the help lists them.
-const std::vector<std::string>& scheme_names();
 
 /// The whole number `text` given to `option`: decimal digits only (no sign, space or
 /// trailing junk), from `min` to `max`. Anything else, an empty text or a value beyond

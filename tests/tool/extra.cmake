@@ -25,3 +25,11 @@ if(KINDLING_BUILD_EXAMPLES)
                      $<TARGET_FILE:kindling_tool> ${_case} ${CMAKE_CURRENT_BINARY_DIR}/tool_${_case})
   endforeach()
 endif()
+# Whole models (tests/tool/check_models.py, /usr/bin/python3 with numpy, json, struct):
+# `kindling assemble` of examples/models/conveyor_belt.json read with np.frombuffer,
+# a file written by the script verified by `kindling verify`, a flipped byte caught.
+if(KINDLING_BUILD_EXAMPLES)
+  add_test(NAME "tool: assemble and verify a whole model, checked with numpy"
+           COMMAND /usr/bin/python3 ${CMAKE_CURRENT_SOURCE_DIR}/tool/check_models.py
+                   $<TARGET_FILE:kindling_tool> ${PROJECT_SOURCE_DIR} ${CMAKE_CURRENT_BINARY_DIR}/tool_models)
+endif()

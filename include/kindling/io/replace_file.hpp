@@ -150,9 +150,29 @@ inline std::string check_replaceable(const std::string& path, const std::string&
   return detail::resolve_output(what, path, &mode);
 }
 
-/// Replaces the file at `path` (see the top of this header) by `bytes`. `what` names the
-/// output in error messages (an option such as "-o", or "output").
-inline void replace_file(const std::string& path, const std::string& bytes, const std::string& what = "output") {
+/// Where replace_file_streamed's producer writes the new content, in order.
+class file_sink {
+ public:
+  file_sink(int fd, const std::string& what, const std::string& path) : fd_(fd), what_(what), path_(path) {}
+  void write(const char* data, std::size_t size) {
+    if (!detail::write_all(fd_, data, size)) detail::file_fail(what_, path_, "cannot write", errno);
+    written_ += size;
+  }
+  std::uint64_t written() const noexcept { return written_; }
+
+ private:
+  int fd_;
+  const std::string& what_;
+  const std::string& path_;
+  std::uint64_t written_ = 0;
+};
+
+/// Replaces the file at `path` (see the top of this header) by what `produce(sink)`
+/// writes to its file_sink, piece by piece: a file larger than memory can be written.
+/// If produce throws, the temporary file is removed, the target is left as it was and
+/// the exception goes on. `what` names the output in error messages.
+template <class Produce>
+void replace_file_streamed(const std::string& path, Produce&& produce, const std::string& what = "output") {
   using namespace detail;
   long mode = -1;
   const std::string target = resolve_output(what, path, &mode);
@@ -174,7 +194,14 @@ inline void replace_file(const std::string& path, const std::string& bytes, cons
     file_fail(what, path, doing, error);
   };
   if (mode >= 0 && ::fchmod(fd, static_cast<mode_t>(mode)) != 0) abandon("cannot keep the file's mode");
-  if (!write_all(fd, bytes.data(), bytes.size())) abandon("cannot write");
+  try {
+    file_sink sink(fd, what, path);
+    produce(sink);
+  } catch (...) {
+    ::close(fd);
+    ::unlink(temp.c_str());
+    throw;
+  }
   if (::fsync(fd) != 0) abandon("cannot flush to disk");
   const int closed = ::close(fd);
   fd = -1;
@@ -186,6 +213,12 @@ inline void replace_file(const std::string& path, const std::string& bytes, cons
     (void)::fsync(dfd);
     ::close(dfd);
   }
+}
+
+/// Replaces the file at `path` (see the top of this header) by `bytes`. `what` names the
+/// output in error messages (an option such as "-o", or "output").
+inline void replace_file(const std::string& path, const std::string& bytes, const std::string& what = "output") {
+  replace_file_streamed(path, [&](file_sink& sink) { sink.write(bytes.data(), bytes.size()); }, what);
 }
 
 }  // namespace kindling

@@ -30,6 +30,8 @@
 #include <set>
 #include <stdexcept>
 #include <string>
+#include <type_traits>
+#include <variant>
 #include <vector>
 
 #include <nlohmann/json.hpp>
@@ -37,9 +39,7 @@
 #include "../gain.hpp"
 #include "../propagate/measure.hpp"
 #include "../propagate/stack.hpp"
-#include "../schemes/fixed.hpp"
-#include "../schemes/orthogonal.hpp"
-#include "../schemes/variance_scaling.hpp"
+#include "../schemes/registry.hpp"
 #include "read_file.hpp"
 
 namespace kindling {
@@ -64,7 +64,8 @@ struct network_spec {
   std::vector<layer_spec> layers;
 };
 
-/// The scheme names a spec may use (those whose weight variance the analysis knows).
+/// The scheme names a spec may use: the registry's schemes (schemes/registry.hpp) whose
+/// weight variance the analysis knows.
 inline const std::vector<std::string>& spec_scheme_names() {
   static const std::vector<std::string> names{"glorot-uniform", "glorot-normal", "he-uniform", "he-normal",
                                               "lecun-uniform",  "lecun-normal",  "orthogonal", "uniform",
@@ -307,25 +308,25 @@ inline layer_stack build_stack(const network_spec& spec) {
   for (const layer_spec& l : spec.layers) {
     const activation act = spec_activation(l);
     const double slope = l.activation == "leaky_relu" ? l.slope : 0.0;
-    const auto add = [&](const auto& scheme) { stack.add_dense(l.width, act, scheme, l.bias_variance, l.label); };
-    const auto scaled = [&](fan_scaled rule) {
-      rule.scale = *l.gain * *l.gain;
-      add(rule);
-    };
-    const std::string& s = l.scheme;
-    if (s == "glorot-uniform") add(glorot_uniform{l.gain.value_or(1.0)});
-    else if (s == "glorot-normal") add(glorot_normal{l.gain.value_or(1.0)});
-    else if (s == "he-uniform") l.gain ? scaled(he_uniform{slope}.rule()) : add(he_uniform{slope});
-    else if (s == "he-normal") l.gain ? scaled(he_normal{slope}.rule()) : add(he_normal{slope});
-    else if (s == "lecun-uniform") l.gain ? scaled(lecun_uniform{}.rule()) : add(lecun_uniform{});
-    else if (s == "lecun-normal") l.gain ? scaled(lecun_normal{}.rule()) : add(lecun_normal{});
-    else if (s == "orthogonal") add(orthogonal{l.gain.value_or(1.0)});
-    else if (s == "normal") add(fixed_normal{0.0, *l.stddev});
-    else if (s == "uniform") add(fixed_uniform{-std::sqrt(3.0) * *l.stddev, std::sqrt(3.0) * *l.stddev});
-    else {
-      throw std::invalid_argument("kindling::build_stack: argument 'scheme' = '" + s + "', expected one of " +
-                                  detail::spec_join(spec_scheme_names()));
-    }
+    // The scheme comes from the registry (schemes/registry.hpp), as everywhere else.
+    scheme_arguments_list given;
+    if (l.gain) given.emplace_back("gain", *l.gain);
+    if (l.stddev) given.emplace_back("std", *l.stddev);
+    const scheme_entry* entry = find_scheme_entry(l.scheme);
+    if (slope != 0.0 && entry != nullptr && entry->argument("slope") != nullptr) given.emplace_back("slope", slope);
+    const scheme_value scheme = make_scheme_value(l.scheme, given, "kindling::build_stack: argument 'scheme'");
+    std::visit(
+        [&](const auto& sc) {
+          using S = std::decay_t<decltype(sc)>;
+          if constexpr (detail::has_variance<S>::value || std::is_same<S, fixed_normal>::value ||
+                        std::is_same<S, fixed_uniform>::value || std::is_same<S, orthogonal>::value) {
+            stack.add_dense(l.width, act, sc, l.bias_variance, l.label);
+          } else {
+            throw std::invalid_argument("kindling::build_stack: argument 'scheme' = '" + l.scheme +
+                                        "', expected one of " + detail::spec_join(spec_scheme_names()));
+          }
+        },
+        scheme.variant());
   }
   return stack;
 }
