@@ -7,12 +7,11 @@
 
 #include <cmath>
 #include <cstdint>
-#include <fstream>
-#include <string>
 #include <vector>
 
 #include "kindling/audit/symmetry.hpp"
 #include "kindling/kindling.hpp"
+#include "peak_memory.hpp"
 
 namespace {
 
@@ -30,27 +29,12 @@ const std::vector<float>& make_tensor_4096() {
   return w;
 }
 
-// kB of the /proc/self/status line `key` ("VmHWM:", "VmRSS:"), 0 if absent.
-double status_kib(const std::string& key) {
-  std::ifstream in("/proc/self/status");
-  std::string word;
-  while (in >> word) {
-    if (word == key) {
-      double kib = 0;
-      in >> kib;
-      return kib;
-    }
-  }
-  return 0;
-}
-
 // Peak extra MiB of one check_symmetry call on v.
 double peak_extra_mib(const kindling::strided_view<const float>& v) {
-  std::ofstream("/proc/self/clear_refs") << "5";
-  const double before = status_kib("VmRSS:");
-  auto report = kindling::check_symmetry(v);
-  benchmark::DoNotOptimize(report);
-  return (status_kib("VmHWM:") - before) / 1024;
+  return kindling_bench::peak_extra_mib([&] {
+    auto report = kindling::check_symmetry(v);
+    benchmark::DoNotOptimize(report);
+  });
 }
 
 void symmetry_tensor(benchmark::State& state, const std::vector<float>& w, std::uint64_t rows, std::uint64_t cols) {

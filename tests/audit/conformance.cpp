@@ -198,3 +198,96 @@ TEST_CASE("bad input to the conformance checks is refused before anything is rea
     CHECK_MESSAGE(mentions(bound, "bound"), bound);
   }
 }
+
+namespace {
+
+// A tensor of element type E drawn from d, as a view.
+template <class E, class D>
+strided_view<const E> drawn(std::vector<E>& storage, std::uint64_t rows, std::uint64_t cols, const D& d,
+                            std::uint64_t seed) {
+  storage.resize(rows * cols);
+  fill(strided_view<E>(storage.data(), shape(rows, cols)), d, make_stream(seed, "heat.exchanger.weight"));
+  return strided_view<const E>(storage.data(), shape(rows, cols));
+}
+
+// The power cases of the audit-trust issue, in one element type, at 10^4 values.
+// He normal's variance is 2 / fan-in (He et al., ICCV 2015, eq. 10).
+template <class E>
+void power_in(const char* type) {
+  std::vector<E> w;
+  const dense layer(100, 100);
+  const double he_sd = std::sqrt(2.0 / 100);
+  for (std::uint64_t seed = 1; seed <= 10; ++seed) {
+    // A fan wrong by 2 either way: the sd is off by sqrt(2), some 50 standard errors.
+    for (double factor : {2.0, 0.5}) {
+      const audit_report r =
+          check_scheme(drawn<E>(w, 100, 100, dist::normal{0, he_sd / std::sqrt(factor)}, seed), layer, he_normal{});
+      CHECK_MESSAGE(!r.find("variance")->passed, type << " fan x" << factor << ": " << r.explain());
+      // The mean is right: its check must not take the blame for the scale.
+      CHECK_MESSAGE(r.find("mean")->passed, type << " fan x" << factor << ": " << r.explain());
+    }
+    // A uniform with the declared normal's mean and variance: only its shape is wrong.
+    const double b = he_sd * std::sqrt(3.0);
+    const audit_report u = check_scheme(drawn<E>(w, 100, 100, dist::uniform{-b, b}, seed), layer, he_normal{});
+    CHECK_MESSAGE(!u.find("ks")->passed, type << " uniform declared normal: " << u.explain());
+  }
+}
+
+}  // namespace
+
+TEST_CASE("power in every element type: a fan off by 2 and a uniform declared normal fail at 10^4 values") {
+  // Miss rates over random seeds: a fan off by 2 moves the sd by 41%, about 50 standard
+  // errors of the sample sd at n = 10^4, so below 1e-100; a uniform against a normal of
+  // the same variance has D about 0.03 against a critical 0.02 at alpha/3, below 1e-4.
+  power_in<float>("f32");
+  power_in<double>("f64");
+  power_in<float16>("f16");
+  power_in<bfloat16>("bf16");
+}
+
+TEST_CASE("a pure scale error fails the variance check and never the mean check") {
+  // The issue's case: fan-in 32 used where 96 is right. The mean check uses the larger
+  // of the sample's and the declared sd, so its false-alarm rate is still <= alpha / 3
+  // when the sd is wrong; over 100 seeds at alpha = 0.01 that is <= 0.33 expected.
+  std::vector<float> w;
+  const dense layer(96, 64);
+  int mean_failures = 0, variance_failures = 0;
+  const audit_options at_01{0.01, weight_layout::out_in};
+  for (std::uint64_t seed = 1; seed <= 100; ++seed) {
+    const audit_report r =
+        check_scheme(drawn<float>(w, 64, 96, dist::normal{0, std::sqrt(2.0 / 32)}, seed), layer, he_normal{}, at_01);
+    mean_failures += r.find("mean")->passed ? 0 : 1;
+    variance_failures += r.find("variance")->passed ? 0 : 1;
+  }
+  CHECK(variance_failures == 100);
+  CHECK(mean_failures <= 2);  // P(X >= 3 | 100, 0.0033) = 0.004
+}
+
+TEST_CASE("the verdict is the same bit for bit on every executor") {
+  std::vector<bfloat16> w;
+  const auto v = drawn<bfloat16>(w, 300, 700, dist::normal{0, 0.05}, 4);  // 4 chunks and a part
+  const audit_report serial = check_distribution(v, dist::normal{0, 0.05});
+  const audit_report threads = check_distribution(v, dist::normal{0, 0.05}, {}, "", thread_executor(3));
+  REQUIRE(serial.findings().size() == threads.findings().size());
+  for (std::size_t i = 0; i < serial.findings().size(); ++i) {
+    const audit_finding &a = serial.findings()[i], &b = threads.findings()[i];
+    CHECK(a.sentence == b.sentence);
+    CHECK((a.statistic == b.statistic || (std::isnan(a.statistic) && std::isnan(b.statistic))));
+  }
+}
+
+TEST_CASE("each statistical finding carries the interval it accepted") {
+  std::vector<float> w;
+  const audit_report r = check_distribution(drawn<float>(w, 64, 64, dist::normal{0.5, 2}, 8), dist::normal{0.5, 2});
+  CHECK_MESSAGE(r, r.explain());
+  const audit_finding* ks = r.find("ks");
+  CHECK(ks->lower == 0);
+  CHECK(ks->statistic <= ks->upper);
+  const audit_finding* mean = r.find("mean");
+  CHECK(mean->lower < 0.5);
+  CHECK(mean->upper > 0.5);
+  const audit_finding* sd = r.find("variance");
+  CHECK(sd->lower < 2);
+  CHECK(sd->upper > 2);
+  CHECK(std::isnan(r.find("bounds")->p_value));
+}

@@ -406,6 +406,24 @@ elif CASE == "messages":
         ET.parse("ctl.svg")
     except ET.ParseError as e:
         failures.append(f"a control character in a spec name made malformed SVG: {e}")
+elif CASE == "rate-4096":
+    # The tool's own correct draws pass its own check at 4096 x 4096 in every element type
+    # (a bf16 tensor holds a few thousand distinct values; the check tests against the
+    # declared distribution rounded to bf16, so it must not reject them), and a fan off
+    # by 1.1 fails. --alpha is the false-alarm rate the user accepts.
+    for dtype in ("f32", "f64", "f16", "bf16"):
+        for scheme in ("he-normal", "glorot-uniform"):
+            expect_code(0, "draw", "--scheme", scheme, "--shape", "4096x4096", "--dtype", dtype, "--seed", "1",
+                        "-o", "big.npy")
+            out, _ = expect_code(0, "check", "big.npy", "--expect", scheme)
+            expect("ks passed" in out and "accepted D <=" in out, f"{dtype} {scheme}: check lines {out!r}")
+        expect_code(1, "check", "big.npy", "--expect", "glorot-uniform", "--fan-in", "4506", "--fan-out", "4506")
+    out, _ = expect_code(0, "check", "big.npy", "--expect", "glorot-uniform", "--alpha", "0.05", "--json")
+    report = json.loads(out)
+    ks = [f for f in report["expect"]["findings"] if f["check"] == "ks"][0]
+    expect(ks["interval"][0] == 0 and ks["statistic"] <= ks["interval"][1] and 0.0 <= ks["p_value"] <= 1.0,
+           f"--json ks finding {ks}")
+    expect_code(2, "check", "big.npy", "--expect", "glorot-uniform", "--alpha", "1.5")
 else:
     failures.append(f"unknown case {CASE}")
 

@@ -17,7 +17,8 @@ if(KINDLING_BUILD_EXAMPLES)
           "outputs;outputs go through an exclusive temporary file and a rename, links written through, odd files refused"
           "numbers;integer options refuse negatives, overflow, empty text and junk, and values that do not fit"
           "limits;inputs are read within a size limit and memory is estimated before it is allocated"
-          "messages;errors name the user's option or key, and SVG text is escaped")
+          "messages;errors name the user's option or key, and SVG text is escaped"
+          "rate-4096;rate: correct 4096x4096 draws pass kindling check in every dtype, a fan off by 1.1 fails")
     list(GET _kindling_tool_case 0 _case)
     list(GET _kindling_tool_case 1 _what)
     add_test(NAME "tool: ${_what}"

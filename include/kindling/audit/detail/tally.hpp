@@ -1,9 +1,9 @@
 // kindling/audit/detail/tally.hpp: one pass over a view that the conformance checks
 // read instead of a copy of the tensor. It counts the values into the bins of a grid
-// (value_grid), sums the powers of their distance from a shift (for the mean, variance
-// and kurtosis), and notes non-finite values and values outside the declared bounds.
+// (value_grid), sums their distance from a shift and its square (for the mean and
+// variance; the kurtosis a failure report quotes takes a second pass), and notes non-finite values and values outside the declared bounds.
 //
-// Memory: one count per bin (the grid has at most 2^18 + 2 bins, 2 MiB), plus a 32-bit
+// Memory: one count per bin (the grid has at most 2^16 + 2 bins, 512 KiB), plus a 32-bit
 // count per bin for each executor task while it runs; nothing proportional to the
 // tensor. Any executor gives the same result bit for bit: the counts are integers, and
 // the sums are formed per fixed chunk of audit_chunk_elements values (whatever the
@@ -40,11 +40,13 @@ struct value_grid {
   value_grid(double lo_, double hi_, std::uint32_t count_)
       : lo(lo_), hi(hi_), inv_width(static_cast<double>(count_) / (hi_ - lo_)), count(count_) {}
 
+  // Written without branches, so that a loop of them vectorizes: 1 + floor(t) with t
+  // clamped to [0, count - 1] equals min(count, 1 + floor(t)) for t >= 0.
   std::uint32_t bin(double x) const noexcept {
-    if (!(x >= lo)) return 0;
-    if (x >= hi) return count + 1;
-    const double k = (x - lo) * inv_width;
-    return std::min(count, 1 + static_cast<std::uint32_t>(k));
+    const double t = std::min(std::max((x - lo) * inv_width, 0.0), static_cast<double>(count - 1));
+    std::uint32_t b = 1 + static_cast<std::uint32_t>(t);
+    b = x >= lo ? b : 0u;  // NaN too (never asked: non-finite values are not binned)
+    return x >= hi ? count + 1 : b;
   }
 
   /// The smallest double x with bin(x) >= j, for j in 1..count + 1: a bisection over
@@ -82,7 +84,8 @@ struct value_grid {
 
 /// What one chunk of values adds up to. Indices are local: row-major in the view's region.
 struct chunk_tally {
-  double sum1 = 0, sum2 = 0, sum3 = 0, sum4 = 0;  // powers of x - shift
+  double sum1 = 0, sum2 = 0;  // x - shift and its square
+  double sum3 = 0, sum4 = 0;  // third and fourth powers: filled in by add_higher_sums
   std::uint64_t non_finite = 0, nan_count = 0, first_non_finite = 0;
   double first_non_finite_value = 0;
   std::uint64_t outside = 0, farthest_at = 0;  // values outside the bounds; the farthest
@@ -115,11 +118,11 @@ struct value_tally {
   chunk_tally totals;
 };
 
-/// Calls f(x, local) for each value of v's region with local row-major index in
-/// [begin, end), x its exact value as a double: a row at a time, an odometer between rows.
+/// Calls f(row, step, n, first) for the rows of v's region that hold local row-major
+/// indices [begin, end): n values from `row`, `step` elements apart, the first of them
+/// local index `first`; an odometer between rows, no division per value.
 template <class E, class F>
-void for_each_value(const strided_view<E>& v, std::uint64_t begin, std::uint64_t end, F&& f) {
-  using element = std::remove_const_t<E>;
+void for_each_row(const strided_view<E>& v, std::uint64_t begin, std::uint64_t end, F&& f) {
   const std::size_t r = v.rank();
   const shape& extent = v.part().extent();
   std::vector<std::uint64_t> at(r);
@@ -133,10 +136,7 @@ void for_each_value(const strided_view<E>& v, std::uint64_t begin, std::uint64_t
   const std::ptrdiff_t step = static_cast<std::ptrdiff_t>(v.stride(r - 1));
   for (std::uint64_t i = begin; i < end;) {
     const std::uint64_t run = std::min(extent[r - 1] - at[r - 1], end - i);
-    const E* row = v.data() + offset;
-    for (std::uint64_t k = 0; k < run; ++k) {
-      f(element_traits<element>::to_double(row[static_cast<std::ptrdiff_t>(k) * step]), i + k);
-    }
+    f(v.data() + offset, step, run, i);
     i += run;
     offset += static_cast<std::ptrdiff_t>(run) * step;
     at[r - 1] += run;
@@ -147,6 +147,18 @@ void for_each_value(const strided_view<E>& v, std::uint64_t begin, std::uint64_t
       ++at[d - 1];
     }
   }
+}
+
+/// Calls f(x, local) for each value of v's region with local row-major index in
+/// [begin, end), x its exact value as a double.
+template <class E, class F>
+void for_each_value(const strided_view<E>& v, std::uint64_t begin, std::uint64_t end, F&& f) {
+  using element = std::remove_const_t<E>;
+  for_each_row(v, begin, end, [&](const E* row, std::ptrdiff_t step, std::uint64_t n, std::uint64_t first) {
+    for (std::uint64_t k = 0; k < n; ++k) {
+      f(element_traits<element>::to_double(row[static_cast<std::ptrdiff_t>(k) * step]), first + k);
+    }
+  });
 }
 
 /// The global row-major flat index of local index `local` of v's region.
@@ -172,8 +184,53 @@ std::size_t audit_task_count(const Exec&) noexcept {
 inline std::size_t audit_task_count(const serial_executor&) noexcept { return 1; }
 inline std::size_t audit_task_count(const thread_executor& e) noexcept { return e.threads(); }
 
-/// One pass over v: bins of `grid`, sums of powers of x - shift, non-finite values and
-/// values outside `bounds`, on executor exec.
+// The sums and bins of one stretch of values in memory (n values, step apart): the hot
+// loop of the pass, with everything in locals so that the stores into the bins do not
+// force the sums back to memory; values in pairs, with an accumulator for each of the
+// pair, to halve the add chains. Values that are not finite or lie outside
+// [inside_lo, inside_hi] (the bounds, made closed and finite) go to `slow` as well.
+template <class E, class Slow>
+void tally_stretch(const E* p, std::ptrdiff_t step, std::uint64_t n, std::uint64_t first, const value_grid& grid,
+                   double shift, double inside_lo, double inside_hi, std::uint32_t* bins, chunk_tally& out,
+                   Slow&& slow) {
+  using element = std::remove_const_t<E>;
+  // A value the fast test lets through is finite and inside; the others go to `slow`
+  // and, when finite, are counted like the rest.
+  const auto usable = [&](double x, std::uint64_t at) {
+    if (x >= inside_lo && x <= inside_hi) return true;
+    slow(x, at);
+    return static_cast<bool>(std::isfinite(x));
+  };
+  double s1a = 0, s1b = 0, s2a = 0, s2b = 0;
+  std::uint64_t k = 0;
+  for (; k + 2 <= n; k += 2) {
+    const double x = element_traits<element>::to_double(p[static_cast<std::ptrdiff_t>(k) * step]);
+    const double y = element_traits<element>::to_double(p[static_cast<std::ptrdiff_t>(k + 1) * step]);
+    if (usable(x, first + k)) {
+      ++bins[grid.bin(x)];
+      s1a += x - shift;
+      s2a += (x - shift) * (x - shift);
+    }
+    if (usable(y, first + k + 1)) {
+      ++bins[grid.bin(y)];
+      s1b += y - shift;
+      s2b += (y - shift) * (y - shift);
+    }
+  }
+  if (k < n) {
+    const double x = element_traits<element>::to_double(p[static_cast<std::ptrdiff_t>(k) * step]);
+    if (usable(x, first + k)) {
+      ++bins[grid.bin(x)];
+      s1a += x - shift;
+      s2a += (x - shift) * (x - shift);
+    }
+  }
+  out.sum1 += s1a + s1b;
+  out.sum2 += s2a + s2b;
+}
+
+/// One pass over v: bins of `grid`, sums of x - shift and its square, non-finite values
+/// and values outside `bounds`, on executor exec.
 template <class E, class Exec>
 value_tally tally_values(const strided_view<E>& v, const value_grid& grid, double shift, const element_bounds& bounds,
                          const Exec& exec) {
@@ -183,6 +240,9 @@ value_tally tally_values(const strided_view<E>& v, const value_grid& grid, doubl
   const std::uint64_t chunks = (t.n + audit_chunk_elements - 1) / audit_chunk_elements;
   const std::size_t tasks = static_cast<std::size_t>(std::min<std::uint64_t>(chunks, audit_task_count(exec)));
   std::vector<chunk_tally> parts(static_cast<std::size_t>(chunks));
+  const double big = std::numeric_limits<double>::max(), inf = std::numeric_limits<double>::infinity();
+  const double inside_lo = std::max(-big, bounds.lo_open ? std::nextafter(bounds.lo, inf) : bounds.lo);
+  const double inside_hi = std::min(big, bounds.hi_open ? std::nextafter(bounds.hi, -inf) : bounds.hi);
   std::mutex merge;
   const std::function<void(std::size_t)> task = [&](std::size_t s) {
     std::vector<std::uint32_t> local(t.counts.size(), 0);  // 32 bits: flushed before it could wrap
@@ -194,8 +254,7 @@ value_tally tally_values(const strided_view<E>& v, const value_grid& grid, doubl
     std::uint64_t since_flush = 0;
     for (std::uint64_t c = s; c < chunks; c += tasks) {
       chunk_tally& p = parts[static_cast<std::size_t>(c)];
-      const std::uint64_t begin = c * audit_chunk_elements, end = std::min(t.n, begin + audit_chunk_elements);
-      for_each_value(v, begin, end, [&](double x, std::uint64_t i) {
+      const auto slow = [&p, &bounds](double x, std::uint64_t i) {
         if (!std::isfinite(x)) {
           if (p.non_finite++ == 0) {
             p.first_non_finite = i;
@@ -204,20 +263,17 @@ value_tally tally_values(const strided_view<E>& v, const value_grid& grid, doubl
           if (std::isnan(x)) ++p.nan_count;
           return;
         }
-        ++local[grid.bin(x)];
-        const double d = x - shift, d2 = d * d;
-        p.sum1 += d;
-        p.sum2 += d2;
-        p.sum3 += d2 * d;
-        p.sum4 += d2 * d2;
-        if (side_of(x, bounds) != 0) {
-          const double excess = std::max(bounds.lo - x, x - bounds.hi);
-          if (p.outside++ == 0 || excess > p.farthest_excess) {
-            p.farthest_excess = excess;
-            p.farthest = x;
-            p.farthest_at = i;
-          }
+        if (side_of(x, bounds) == 0) return;
+        const double excess = std::max(bounds.lo - x, x - bounds.hi);
+        if (p.outside++ == 0 || excess > p.farthest_excess) {
+          p.farthest_excess = excess;
+          p.farthest = x;
+          p.farthest_at = i;
         }
+      };
+      const std::uint64_t begin = c * audit_chunk_elements, end = std::min(t.n, begin + audit_chunk_elements);
+      for_each_row(v, begin, end, [&](const E* row, std::ptrdiff_t step, std::uint64_t n, std::uint64_t first) {
+        tally_stretch(row, step, n, first, grid, shift, inside_lo, inside_hi, local.data(), p, slow);
       });
       since_flush += end - begin;
       if (since_flush >= (std::uint64_t{1} << 31)) {
@@ -230,6 +286,24 @@ value_tally tally_values(const strided_view<E>& v, const value_grid& grid, doubl
   exec(tasks, task);
   for (const chunk_tally& p : parts) t.totals.add(p);
   return t;
+}
+
+/// Sums of the third and fourth powers of x - shift over v's finite values, in fixed
+/// chunks added in order (only when a report needs the kurtosis: a second pass).
+template <class E>
+void add_higher_sums(const strided_view<E>& v, double shift, chunk_tally& totals) {
+  totals.sum3 = totals.sum4 = 0;
+  for (std::uint64_t begin = 0; begin < v.size(); begin += audit_chunk_elements) {
+    double s3 = 0, s4 = 0;
+    for_each_value(v, begin, std::min(v.size(), begin + audit_chunk_elements), [&](double x, std::uint64_t) {
+      if (!std::isfinite(x)) return;
+      const double d = x - shift, d2 = d * d;
+      s3 += d2 * d;
+      s4 += d2 * d2;
+    });
+    totals.sum3 += s3;
+    totals.sum4 += s4;
+  }
 }
 
 }  // namespace kindling::detail

@@ -1,0 +1,76 @@
+// Tests of audit/detail/stored.hpp: the distribution of values as stored in an element
+// type. The expected masses are worked out by hand from the rounding rule (IEEE 754
+// round to nearest; binary16 has 10 fraction bits, so its values in [1, 2) are
+// 1 + k 2^-10; bfloat16 has 7) and from the bounds rule of DEVELOPERS.md (a value
+// rounded onto an open bound moves one step inside).
+#include "kindling/audit/detail/stored.hpp"
+
+#include <doctest/doctest.h>
+
+#include <cmath>
+
+using namespace kindling;
+
+namespace {
+
+// U[1, 2) stored with `bits` fraction bits: atoms 1 + k h, h = 2^-bits. Atom 0 takes
+// [1, 1 + h/2), atom k takes [1 + (k - 1/2) h, 1 + (k + 1/2) h), and the last atom,
+// 2 - h, also takes [2 - h/2, 2), which rounds to the open bound 2 and moves down.
+template <class E>
+void uniform_one_two(int bits) {
+  const double h = std::ldexp(1.0, -bits);
+  const long atoms = 1L << bits;
+  const auto mass = [&](long k) { return k == 0 ? h / 2 : (k == atoms - 1 ? 1.5 * h : h); };
+  const detail::stored_distribution<E> s(detail::declare(dist::uniform{1.0, 2.0}));
+  double below = 0, m1 = 0, m2 = 0;
+  for (long k = 0; k < atoms; ++k) {
+    const double t = 1 + static_cast<double>(k) * h;
+    CHECK(s.below(t + h / 4) == doctest::Approx(below + mass(k)).epsilon(1e-12));  // just above atom k
+    below += mass(k);
+    m1 += mass(k) * t;
+    m2 += mass(k) * t * t;
+  }
+  CHECK(s.below(1.0) == 0.0);
+  CHECK(s.below(2.5) == 1.0);
+  const detail::declared_moments m = s.moments();
+  CHECK(m.mean == doctest::Approx(m1).epsilon(1e-12));
+  CHECK(m.variance == doctest::Approx(m2 - m1 * m1).epsilon(1e-9));
+  // The continuous U[1, 2) has mean 1.5 and variance 1/12; stored, they differ.
+  CHECK(std::fabs(m.mean - 1.5) > h / 8);
+}
+
+}  // namespace
+
+TEST_CASE("a uniform stored as float16 or bfloat16 has the atom masses the rounding rule gives") {
+  uniform_one_two<float16>(10);
+  uniform_one_two<bfloat16>(7);
+}
+
+TEST_CASE("a normal stored as bfloat16: its CDF steps at the atoms and its variance grows by about step^2/12") {
+  const detail::declared d = detail::declare(dist::normal{0, 1});
+  const detail::stored_distribution<bfloat16> s(d);
+  // Between two neighbouring atoms the stored CDF is flat: 1.0 and 1.0078125 (1 + 2^-7).
+  CHECK(s.below(1.001) == s.below(1.007));
+  // ... and equals the normal CDF at their midpoint, 1.00390625.
+  CHECK(s.below(1.005) == doctest::Approx(0.8422880981257646).epsilon(1e-9));  // scipy.stats.norm.cdf(1.00390625)
+  // Sheppard's correction (W. F. Sheppard 1898; from memory): rounding to a grid of
+  // step w adds w^2/12 to the variance. bfloat16's step at |x| in [2^e, 2^(e+1)) is
+  // 2^(e-7), so the added variance is E[w^2]/12 with w = 2^(floor(log2 |x|) - 7), which for
+  // N(0, 1) is 2^-14 E[4^floor(log2 |x|)] / 12, about 6.3e-6 (computed below by quadrature).
+  double expected = 0;
+  for (int e = -30; e < 4; ++e) {  // P(2^e <= |Z| < 2^(e+1)) * 4^(e-7)
+    const double p = 2 * (detail::normal_cdf(std::ldexp(1.0, e + 1)) - detail::normal_cdf(std::ldexp(1.0, e)));
+    expected += p * std::ldexp(1.0, 2 * (e - 7)) / 12;
+  }
+  const detail::declared_moments m = s.moments();
+  CHECK(m.mean == doctest::Approx(0).epsilon(1e-12));
+  CHECK(m.variance - 1 == doctest::Approx(expected).epsilon(0.05));
+  CHECK(m.variance - 1 > 1e-6);
+}
+
+TEST_CASE("float and double are stored as the continuous distribution to test precision") {
+  const detail::declared d = detail::declare(dist::normal{0, 1});
+  CHECK(detail::stored_distribution<double>(d).below(0.3) == detail::normal_cdf(0.3));
+  CHECK(detail::stored_distribution<float>(d).below(0.3) == doctest::Approx(detail::normal_cdf(0.3)).epsilon(1e-7));
+  CHECK(detail::stored_distribution<float>(d).moments().variance == 1.0);
+}
