@@ -14,7 +14,7 @@
 #include <kindling/schemes/identity.hpp>
 #include <kindling/schemes/orthogonal.hpp>
 #include <kindling/schemes/sparse.hpp>
-#include <kindling/schemes/variance_scaling.hpp>
+#include <kindling/schemes/fan_scaled.hpp>
 
 #include "tool.hpp"
 

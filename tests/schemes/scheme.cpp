@@ -10,7 +10,7 @@
 #include "../support/stats.hpp"
 #include "kindling/schemes/fixed.hpp"
 #include "kindling/schemes/sparse.hpp"
-#include "kindling/schemes/variance_scaling.hpp"
+#include "kindling/schemes/fan_scaled.hpp"
 
 using namespace kindling;
 

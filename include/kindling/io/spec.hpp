@@ -39,7 +39,7 @@
 #include "../propagate/stack.hpp"
 #include "../schemes/fixed.hpp"
 #include "../schemes/orthogonal.hpp"
-#include "../schemes/variance_scaling.hpp"
+#include "../schemes/fan_scaled.hpp"
 #include "read_file.hpp"
 
 namespace kindling {

@@ -1,4 +1,4 @@
-// Tests of schemes/variance_scaling.hpp: Glorot, He and LeCun through the public API on
+// Tests of schemes/fan_scaled.hpp: Glorot, He and LeCun through the public API on
 // real tensors, against the published variance formulas (REFERENCES.md).
 //
 // Statistical checks use fixed seeds, so each run is deterministic. Sizing: the KS
@@ -12,7 +12,7 @@
 #include <vector>
 
 #include "../support/stats.hpp"
-#include "kindling/schemes/variance_scaling.hpp"
+#include "kindling/schemes/fan_scaled.hpp"
 
 using namespace kindling;
 using kindling_test::ks_critical;
