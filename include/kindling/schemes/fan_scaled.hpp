@@ -10,9 +10,12 @@
 #define KINDLING_SCHEMES_FAN_SCALED_HPP
 
 #include <cmath>
+#include <stdexcept>
 #include <string>
+#include <type_traits>
 #include <variant>
 
+#include "../gain.hpp"
 #include "../random/sample.hpp"
 #include "scheme.hpp"
 
@@ -102,14 +105,70 @@ inline double he_scale(double slope) {
   detail::require_finite_argument(slope, "he", "slope");
   return 2.0 / (1.0 + slope * slope);
 }
+
+struct glorot_arguments;
+struct he_arguments {};  // tag of every he_arguments_of
+
+// The negative slope He et al. derive the variance for: 0 for ReLU, a for a leaky ReLU of
+// slope a. Their derivation covers only these rectifiers, so any other activation is refused.
+inline double he_slope(const activation& a, const char* scheme) {
+  if (a.kind() == activation_kind::relu) return 0;
+  if (a.kind() == activation_kind::leaky_relu) return a.parameter();
+  throw std::invalid_argument(std::string("kindling::") + scheme + ": argument 'activation' = " +
+                              std::string(a.name()) +
+                              ", expected relu or leaky_relu (the rectifiers He et al. derive the variance for); "
+                              "for another activation use glorot_uniform or glorot_normal with that activation");
+}
+
+// Lets a catch-all constructor of the named schemes take what is neither a number nor an
+// activation (nor a scheme), only to stop it with a sentence instead of "no matching
+// constructor" (see the argument bases below).
+template <class T>
+using if_neither_number_nor_activation =
+    std::enable_if_t<!std::is_arithmetic<T>::value && !std::is_convertible<const T&, activation>::value &&
+                         !std::is_base_of<glorot_arguments, T>::value && !std::is_base_of<he_arguments, T>::value,
+                     int>;
+template <class T>
+inline constexpr bool always_false = false;
+
+// The arguments of glorot_uniform and glorot_normal: a gain, or an activation whose gain
+// table_gain gives (gain.hpp; e.g. 5/3 for tanh, common practice, sqrt(2) for ReLU).
+struct glorot_arguments {
+  double gain = 1;
+  glorot_arguments() = default;
+  explicit glorot_arguments(double g) : gain(g) {}
+  explicit glorot_arguments(const activation& a) : gain(table_gain(a).value) {}
+  template <class T, if_neither_number_nor_activation<T> = 0>
+  explicit glorot_arguments(const T&) {
+    static_assert(always_false<T>,
+                  "kindling::glorot_uniform and glorot_normal take a gain (a number) or an activation, e.g. "
+                  "glorot_uniform{activation::tanh()} or glorot_uniform{table_gain(activation::tanh()).value}");
+  }
+};
+
+// The arguments of he_uniform and he_normal: the negative slope a of a leaky ReLU (0 for
+// ReLU) or the rectifier itself, and the fan (in or out) the variance is divided by.
+template <class Self>
+struct he_arguments_of : he_arguments {
+  double slope = 0;
+  fan_basis basis = fan_basis::in;
+  he_arguments_of() = default;
+  explicit he_arguments_of(double a, fan_basis b = fan_basis::in) : slope(a), basis(b) {}
+  explicit he_arguments_of(const activation& a, fan_basis b = fan_basis::in)
+      : slope(he_slope(a, Self::type_name)), basis(b) {}
+  template <class T, if_neither_number_nor_activation<T> = 0>
+  explicit he_arguments_of(const T&) {
+    static_assert(always_false<T>,
+                  "kindling::he_uniform and he_normal take a negative slope (a number) or a rectifier, e.g. "
+                  "he_normal{activation::leaky_relu(0.1)} or he_normal{0.1}");
+  }
+};
 }  // namespace detail
 
 /// Glorot & Bengio (AISTATS 2010, eq. 16): Var W = gain² · 2 / (fan_in + fan_out),
 /// uniform on ±gain·sqrt(6 / (fan_in + fan_out)).
-struct glorot_uniform : detail::named_scaling<glorot_uniform> {
-  double gain = 1;
-  glorot_uniform() = default;
-  explicit glorot_uniform(double g) : gain(g) {}
+struct glorot_uniform : detail::named_scaling<glorot_uniform>, detail::glorot_arguments {
+  using glorot_arguments::glorot_arguments;
   std::string name() const { return "glorot-uniform"; }
   fan_scaled as_fan_scaled() const {
     detail::require_positive_argument(gain, "glorot_uniform", "gain");
@@ -118,10 +177,8 @@ struct glorot_uniform : detail::named_scaling<glorot_uniform> {
 };
 
 /// Glorot & Bengio 2010 with normal values of the same variance.
-struct glorot_normal : detail::named_scaling<glorot_normal> {
-  double gain = 1;
-  glorot_normal() = default;
-  explicit glorot_normal(double g) : gain(g) {}
+struct glorot_normal : detail::named_scaling<glorot_normal>, detail::glorot_arguments {
+  using glorot_arguments::glorot_arguments;
   std::string name() const { return "glorot-normal"; }
   fan_scaled as_fan_scaled() const {
     detail::require_positive_argument(gain, "glorot_normal", "gain");
@@ -132,22 +189,18 @@ struct glorot_normal : detail::named_scaling<glorot_normal> {
 /// He et al. (ICCV 2015, sec. 2.2): Var W = 2 / ((1 + a²) n), a the negative slope of a
 /// leaky or parametric ReLU (0 for ReLU), n the fan-in (keeps the forward signal) or the
 /// fan-out (keeps the backward gradient).
-struct he_uniform : detail::named_scaling<he_uniform> {
-  double slope = 0;
-  fan_basis basis = fan_basis::in;
-  he_uniform() = default;
-  explicit he_uniform(double a, fan_basis b = fan_basis::in) : slope(a), basis(b) {}
+struct he_uniform : detail::named_scaling<he_uniform>, detail::he_arguments_of<he_uniform> {
+  using he_arguments_of::he_arguments_of;
+  static constexpr const char* type_name = "he_uniform";
   std::string name() const { return "he-uniform"; }
   fan_scaled as_fan_scaled() const {
     return {detail::he_scale(slope), basis, draw_shape::uniform, 2};
   }
 };
 
-struct he_normal : detail::named_scaling<he_normal> {
-  double slope = 0;
-  fan_basis basis = fan_basis::in;
-  he_normal() = default;
-  explicit he_normal(double a, fan_basis b = fan_basis::in) : slope(a), basis(b) {}
+struct he_normal : detail::named_scaling<he_normal>, detail::he_arguments_of<he_normal> {
+  using he_arguments_of::he_arguments_of;
+  static constexpr const char* type_name = "he_normal";
   std::string name() const { return "he-normal"; }
   fan_scaled as_fan_scaled() const {
     return {detail::he_scale(slope), basis, draw_shape::normal, 2};
