@@ -29,7 +29,7 @@ int main() {
   Eigen::VectorXf bias(4 * 48);
   initialize(view_of(w_ih), packed_dense::lstm(64, 48), glorot_uniform{}, model.named("lstm.w_ih"));
   initialize(view_of(w_hh), packed_dense::lstm(48, 48), orthogonal{}, model.named("lstm.w_hh"));
-  initialize_bias(strided_view<float>(bias.data(), shape(4 * 48)), forget_gate_bias{});
+  initialize_bias(bias, forget_gate_bias{});  // an Eigen vector is a bias vector
 
   // Each recurrent gate block is orthogonal: Q^T Q = I.
   double worst = 0;

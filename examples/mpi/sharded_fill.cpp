@@ -21,7 +21,7 @@
 #include <stdexcept>
 #include <vector>
 
-#include <kindling/schemes/variance_scaling.hpp>
+#include <kindling/schemes/fan_scaled.hpp>
 
 using namespace kindling;
 

@@ -6,7 +6,7 @@
 
 #include <kindling/propagate/criticality.hpp>
 #include <kindling/propagate/measure.hpp>
-#include <kindling/schemes/variance_scaling.hpp>
+#include <kindling/schemes/fan_scaled.hpp>
 
 int main() {
   using namespace kindling;

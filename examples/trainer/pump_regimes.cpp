@@ -24,7 +24,7 @@
 
 #include <kindling/propagate/diagnose.hpp>
 #include <kindling/schemes/constant.hpp>
-#include <kindling/schemes/variance_scaling.hpp>
+#include <kindling/schemes/fan_scaled.hpp>
 
 using namespace kindling;
 

@@ -1,5 +1,6 @@
 // kindling/eigen.hpp: views of Eigen objects, Eigen's half types as elements, and
-// fill() taking Eigen objects directly. Include it only if you use Eigen 3.4.
+// fill(), initialize() and initialize_bias() taking Eigen objects directly. Include it
+// only if you use Eigen 3.4.
 //
 // The logical shape of a dense Eigen object is rows x cols read in row-major order,
 // whatever its storage order: element (i, j) of a row-major and of a column-major
@@ -11,6 +12,12 @@
 //   kindling::fill(w, kindling::dist::normal{0.0, 0.05}, kindling::make_stream(7, "encoder.w"));
 //   // a process holding rows 128..255 of the same 256 x 784 parameter:
 //   kindling::fill(kindling::view_of(shard).as_part_of({256, 784}, {128, 0}), dist, s);
+//
+// A vector (VectorXf, RowVectorXd, a segment, a column) is n x 1 or 1 x n here, as in
+// Eigen; initialize_bias takes it as the bias vector of its n elements:
+//   Eigen::VectorXf b(256);
+//   kindling::initialize_bias(b, kindling::zeros{});
+//   kindling::initialize_bias(b.segment(4, 1), kindling::constant{0.5});  // one element
 #ifndef KINDLING_EIGEN_HPP
 #define KINDLING_EIGEN_HPP
 
@@ -54,9 +61,14 @@ constexpr bool eigen_readable_direct = (int(Derived::Flags) & Eigen::DirectAcces
 template <class T>
 constexpr bool is_eigen_plain = std::is_base_of<Eigen::PlainObjectBase<T>, T>::value;
 
-// Dense objects and the tensor types view_of takes.
+// Dense objects (anything derived from some DenseBase<D>: a VectorBlock such as
+// v.segment(i, n) derives from DenseBase<Block<...>>, not from DenseBase of itself) and the
+// tensor types view_of takes.
+template <class D>
+std::true_type derives_from_dense(const Eigen::DenseBase<D>*);
+std::false_type derives_from_dense(const void*);
 template <class T>
-struct is_eigen_object : std::is_base_of<Eigen::DenseBase<T>, T> {};
+struct is_eigen_object : decltype(derives_from_dense(std::declval<T*>())) {};
 template <class Scalar, int N, int Options, class Index>
 struct is_eigen_object<Eigen::Tensor<Scalar, N, Options, Index>> : std::true_type {};
 template <class Plain, int MapOptions, template <class> class MakePointer>

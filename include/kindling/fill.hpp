@@ -161,7 +161,27 @@ struct openmp_executor {
 };
 #endif
 
+/// True if Exec can serve as an executor: callable as exec(n_tasks, task) (see the top
+/// of this header).
+template <class Exec>
+inline constexpr bool is_executor_v =
+    std::is_invocable<Exec, std::size_t, const std::function<void(std::size_t)>&>::value;
+
 namespace detail {
+
+// What fill, fill_generated, initialize and initialize_bias check at compile time before
+// anything else in their bodies, so that a misuse stops at one sentence saying what to do
+// instead of an error deep in the engine. Used as static_assert(writes_into<E, Exec>()).
+template <class E, class Exec>
+constexpr bool writes_into() {
+  static_assert(!std::is_const<E>::value,
+                "kindling: the target has const elements (a const matrix or a strided_view<const T>) and cannot be "
+                "written; pass the object itself, not a const reference, or a strided_view<T> of writable memory");
+  static_assert(is_executor_v<Exec>,
+                "kindling: the executor must be callable as exec(n_tasks, task); for 4 threads pass "
+                "kindling::thread_executor(4)");
+  return true;
+}
 
 // Number of executor tasks for a view.
 inline std::size_t fill_task_count(std::uint64_t elements) noexcept {
@@ -440,7 +460,7 @@ inline constexpr std::uint64_t fill_streaming_bytes = std::uint64_t{16} << 20;
 template <class E, class Gen, class Exec = serial_executor>
 void fill_generated(const strided_view<E>& v, const element_bounds& bounds, const Gen& gen,
                     Exec&& exec = Exec{}) {
-  static_assert(!std::is_const<E>::value, "fill needs a view of writable elements");
+  static_assert(detail::writes_into<E, Exec>());
   const std::uint64_t total = v.size();
   const detail::element_rounder<E> rounder(bounds);
   const bool stream = total * sizeof(E) >= fill_streaming_bytes;
@@ -494,6 +514,7 @@ void fill_generated(const strided_view<E>& v, const element_bounds& bounds, cons
 template <class E, class D, class Exec = serial_executor>
 void fill(const strided_view<E>& v, const D& d, const stream& s, std::uint32_t dom = domain::values,
           Exec&& exec = Exec{}) {
+  static_assert(detail::writes_into<E, Exec>());
   validate(d);
   using compute = compute_type_t<E>;
   const auto kernel = detail::prepare<compute>(d);
@@ -508,12 +529,22 @@ void fill(const strided_view<E>& v, const D& d, const stream& s, std::uint32_t d
 template <class X, class = void>
 struct view_adapter {};
 
+/// The view the adapter makes of an object x of type X (as passed, X&& deduced); only
+/// exists for adapted types, so overloads taking X&& can be constrained by it.
+template <class X>
+using adapted_view_t = decltype(view_adapter<std::remove_reference_t<X>>::view(std::declval<X&>()));
+
+/// The adapter's view of x (see adapted_view_t).
+template <class X>
+adapted_view_t<X> adapted_view(X& x) {
+  return view_adapter<std::remove_reference_t<X>>::view(x);
+}
+
 /// fill() of an adapted object (an Eigen matrix, block or tensor, an xtensor
 /// container or view): the same as fill(view_of(x), ...).
-template <class X, class D, class Exec = serial_executor,
-          class = decltype(view_adapter<std::remove_reference_t<X>>::view(std::declval<X&>()))>
+template <class X, class D, class Exec = serial_executor, class = adapted_view_t<X>>
 void fill(X&& x, const D& d, const stream& s, std::uint32_t dom = domain::values, Exec&& exec = Exec{}) {
-  fill(view_adapter<std::remove_reference_t<X>>::view(x), d, s, dom, std::forward<Exec>(exec));
+  fill(adapted_view(x), d, s, dom, std::forward<Exec>(exec));
 }
 
 }  // namespace kindling

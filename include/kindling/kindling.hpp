@@ -20,7 +20,7 @@
 #include "kindling/schemes/identity.hpp"
 #include "kindling/schemes/scheme.hpp"
 #include "kindling/schemes/sparse.hpp"
-#include "kindling/schemes/variance_scaling.hpp"
+#include "kindling/schemes/fan_scaled.hpp"
 #include "kindling/view.hpp"
 
 #endif  // KINDLING_KINDLING_HPP

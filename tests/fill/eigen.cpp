@@ -111,6 +111,17 @@ TEST_CASE("Map, Ref and Block of Eigen objects are filled through their strides"
     CHECK(std::memcmp(column.data(), bias.data(), 54 * sizeof(float)) == 0);
     CHECK(std::memcmp(row.data(), bias.data(), 54 * sizeof(float)) == 0);
   }
+  SUBCASE("a segment of a vector is adapted too, and is a part of the vector's shape") {
+    // v.segment(i, n) is an Eigen::VectorBlock, which derives from DenseBase of a Block
+    // rather than of itself.
+    const auto bias = raw_fill<float>({54}, d, pump);
+    Eigen::VectorXf column = Eigen::VectorXf::Zero(54);
+    kindling::fill(kindling::view_of(column.segment(10, 20)).as_part_of({54, 1}, {10, 0}), d, pump);
+    CHECK(std::memcmp(column.data() + 10, bias.data() + 10, 20 * sizeof(float)) == 0);
+    CHECK(column.head(10).isZero());
+    kindling::fill(column.segment(0, 54), d, pump);  // the whole vector through the adapter
+    CHECK(std::memcmp(column.data(), bias.data(), 54 * sizeof(float)) == 0);
+  }
 }
 
 TEST_CASE("Eigen blocks declared as regions of a global shape assemble into the whole") {

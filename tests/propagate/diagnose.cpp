@@ -4,7 +4,7 @@
 // practice, REFERENCES.md); Glorot & Bengio 2010 and He et al. 2015 for the random
 // schemes that must pass.
 #include "kindling/propagate/diagnose.hpp"
-#include "kindling/schemes/variance_scaling.hpp"
+#include "kindling/schemes/fan_scaled.hpp"
 
 #include <doctest/doctest.h>
 

@@ -3,7 +3,7 @@
 // numbers from memory) through a forward pass the test writes itself, the way a user's
 // own network would: kindling sees only weight views and callables.
 #include "kindling/propagate/lsuv.hpp"
-#include "kindling/schemes/variance_scaling.hpp"
+#include "kindling/schemes/fan_scaled.hpp"
 
 #include <doctest/doctest.h>
 

@@ -1,7 +1,7 @@
 // Tests of propagate/stack.hpp, mean_field.hpp and linear.hpp against published values.
 #include "kindling/propagate/linear.hpp"
 #include "kindling/propagate/mean_field.hpp"
-#include "kindling/schemes/variance_scaling.hpp"
+#include "kindling/schemes/fan_scaled.hpp"
 
 #include <doctest/doctest.h>
 

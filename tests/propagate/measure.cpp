@@ -8,7 +8,7 @@
 // the measured spread, so a larger size tests nothing new.
 #include "kindling/propagate/measure.hpp"
 #include "kindling/propagate/criticality.hpp"
-#include "kindling/schemes/variance_scaling.hpp"
+#include "kindling/schemes/fan_scaled.hpp"
 
 #include <doctest/doctest.h>
 

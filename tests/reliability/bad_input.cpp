@@ -22,7 +22,7 @@
 #include "kindling/schemes/identity.hpp"
 #include "kindling/schemes/orthogonal.hpp"
 #include "kindling/schemes/sparse.hpp"
-#include "kindling/schemes/variance_scaling.hpp"
+#include "kindling/schemes/fan_scaled.hpp"
 
 using namespace kindling;
 using kindling_test::mentions;

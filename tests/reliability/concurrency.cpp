@@ -12,7 +12,7 @@
 #include "kindling/audit/conformance.hpp"
 #include "kindling/audit/identify.hpp"
 #include "kindling/audit/symmetry.hpp"
-#include "kindling/schemes/variance_scaling.hpp"
+#include "kindling/schemes/fan_scaled.hpp"
 
 using namespace kindling;
 

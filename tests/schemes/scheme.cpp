@@ -8,9 +8,10 @@
 
 #include "../support/errors.hpp"
 #include "../support/stats.hpp"
+#include "kindling/eigen.hpp"
 #include "kindling/schemes/fixed.hpp"
 #include "kindling/schemes/sparse.hpp"
-#include "kindling/schemes/variance_scaling.hpp"
+#include "kindling/schemes/fan_scaled.hpp"
 
 using namespace kindling;
 
@@ -115,4 +116,28 @@ TEST_CASE("initialize names the layer's expected shape when the view does not fi
   });
   CHECK_MESSAGE(kindling_test::mentions(msg, "shape"), msg);
   for (float x : w) CHECK(x == 1.0f);
+}
+
+TEST_CASE("initialize takes Eigen objects directly, as fill does, with the values of their views") {
+  using row_major = Eigen::Matrix<float, Eigen::Dynamic, Eigen::Dynamic, Eigen::RowMajor>;
+  const stream s = make_stream(5, "belt.encoder.w");
+  row_major reference(10, 6);
+  initialize(view_of(reference), dense(6, 10), he_normal{}, s);
+  SUBCASE("a column-major matrix, on two threads") {
+    Eigen::MatrixXf w(10, 6);
+    initialize(w, dense(6, 10), he_normal{}, s, thread_executor(2));
+    CHECK(w == reference);
+  }
+  SUBCASE("a block of a bigger matrix, with fans given as weight_info") {
+    Eigen::MatrixXf big = Eigen::MatrixXf::Zero(12, 9);
+    initialize(big.block(1, 2, 10, 6), weight_info{fans{6, 10, 1}, weight_layout::out_in}, he_normal{}, s);
+    CHECK(big.block(1, 2, 10, 6) == reference);
+    CHECK(big.col(0).isZero());
+  }
+  SUBCASE("a packed GRU weight through a Map") {
+    std::vector<float> memory(15 * 4), plain(15 * 4);
+    initialize(Eigen::Map<row_major>(memory.data(), 15, 4), packed_dense::gru(4, 5), glorot_uniform{}, s);
+    initialize(strided_view<float>(plain.data(), shape(15, 4)), packed_dense::gru(4, 5), glorot_uniform{}, s);
+    CHECK(memory == plain);
+  }
 }

@@ -389,6 +389,8 @@ audit_report check_distribution(const strided_view<E>& v, const D& d, const audi
 template <class E, class Scheme, class Exec = serial_executor>
 audit_report check_scheme(const strided_view<E>& v, const weight_info& w, const Scheme& scheme,
                           const audit_options& options = {}, const Exec& exec = Exec{}) {
+  static_assert(detail::has_distribution<Scheme>::value, "kindling::check_scheme needs a scheme with distribution(fans); "
+                "for orthogonal or delta_orthogonal use check_orthogonal or check_delta_orthogonal (audit/structure.hpp)");
   detail::check_alpha(options.alpha, "check_scheme");
   scheme.check(v.global_shape(), w);
   const std::string subject = detail::scheme_subject(scheme, w.fans);
@@ -408,6 +410,8 @@ template <class E, class Layer, class Scheme, class Exec = serial_executor,
           class = decltype(std::declval<const Layer&>().layer_fans())>
 audit_report check_scheme(const strided_view<E>& v, const Layer& layer, const Scheme& scheme,
                           const audit_options& options = {}, const Exec& exec = Exec{}) {
+  static_assert(detail::has_distribution<Scheme>::value, "kindling::check_scheme needs a scheme with distribution(fans); "
+                "for orthogonal or delta_orthogonal use check_orthogonal or check_delta_orthogonal (audit/structure.hpp)");
   layer.check_shape(detail::shape_vector(v.global_shape()));
   const weight_layout layout = detail::layout_of(layer);
   if constexpr (detail::is_packed<Layer>::value) {

@@ -7,6 +7,7 @@
 //   check_delta_orthogonal: a convolution kernel is zero at every tap but the centre,
 //     and each group's centre-tap block (out/groups x in) is orthogonal times the gain
 //     as above (delta-orthogonal initialization; Xiao et al., ICML 2018, from memory).
+//   check_orthogonal of a packed layer (packed_dense): the same for each gate block.
 //   check_sparsity: every unit has exactly k nonzero incoming weights (Martens 2010).
 #ifndef KINDLING_AUDIT_STRUCTURE_HPP
 #define KINDLING_AUDIT_STRUCTURE_HPP
@@ -15,6 +16,7 @@
 #include <cstdint>
 #include <stdexcept>
 #include <string>
+#include <type_traits>
 #include <utility>
 #include <vector>
 
@@ -100,6 +102,36 @@ audit_report check_orthogonal(const strided_view<E>& v, double gain = 1, double 
   const auto at = [&](std::uint64_t r, std::uint64_t c) { return g.values[r * g.cols + c]; };
   report.add(detail::orthogonal_finding("orthogonal", "", detail::worst_gram_error(g.rows, g.cols, at, gain), gain,
                                         tolerance));
+  return report;
+}
+
+/// check_orthogonal of a packed weight (packed_dense: LSTM or GRU gates, fused
+/// projections), block by block: initialize() makes each gate block orthogonal on its
+/// own, so the stacked matrix as a whole is not (its Gram matrix has gain² k on the
+/// diagonal for k blocks, or off-diagonal terms between blocks). The layout is the
+/// layer's; each finding says which block, and the report passes if every block does.
+template <class E, class Layer, std::enable_if_t<detail::is_packed<Layer>::value, int> = 0>
+audit_report check_orthogonal(const strided_view<E>& v, const Layer& layer, double gain = 1,
+                              double tolerance = 1e-5) {
+  detail::check_gain_and_tolerance("check_orthogonal", gain, tolerance);
+  layer.check_shape(detail::shape_vector(v.global_shape()));
+  if (!v.is_whole()) {
+    throw std::invalid_argument("kindling::check_orthogonal: argument 'view' holds only the region " +
+                                v.part().text() + " of the packed weight " + v.global_shape().text() +
+                                "; expected the whole weight");
+  }
+  const std::vector<packed_block> blocks = layer.all_blocks();
+  audit_report report("orthogonality of each of " + std::to_string(blocks.size()) + " packed blocks with gain " +
+                      detail::short_number(gain, 6));
+  for (const packed_block& b : blocks) {
+    strided_view<E> part = v;
+    detail::block_part(v, b, &part);
+    const audit_report one = check_orthogonal(part, gain, tolerance, detail::layout_of(layer));
+    for (audit_finding f : one.findings()) {
+      f.sentence = "block " + std::to_string(b.index) + ": " + f.sentence;
+      report.add(f);
+    }
+  }
   return report;
 }
 

@@ -25,8 +25,22 @@ namespace detail {
 inline void require_vector(const shape& global, const char* rule) {
   if (global.rank() != 1) {
     throw std::invalid_argument(std::string("kindling::") + rule + ": argument 'shape' = " + global.text() +
-                                ", expected a bias vector (rank 1)");
+                                ", expected a bias vector (rank 1, or for initialize_bias one row or one "
+                                "column, such as an Eigen vector)");
   }
+}
+
+// A rank-2 view with one column or one row (an Eigen vector, which view_of gives as
+// n x 1 or 1 x n, like Eigen itself) as the rank-1 vector of its length: the same memory
+// and region, and the same values, since an axis of extent 1 leaves every row-major flat
+// index as it is. Any other view is returned as it is (and refused by require_vector).
+template <class E>
+strided_view<E> as_bias_vector(const strided_view<E>& v) {
+  const shape& g = v.global_shape();
+  if (g.rank() != 2 || (g[0] != 1 && g[1] != 1)) return v;
+  const std::size_t axis = g[0] == 1 ? 1 : 0;
+  const region part(shape{v.part().offset()[axis]}, shape{v.part().extent()[axis]});
+  return strided_view<E>(v.data(), shape{g[axis]}, part, strides{v.stride(axis)});
 }
 inline void require_probability(double p, const char* rule, const char* argument) {
   if (!std::isfinite(p) || !(p > 0) || !(p < 1)) {
@@ -119,12 +133,25 @@ struct forget_gate_bias {
 
 /// Sets a bias vector by one of the rules above (or zeros, constant). No stream is
 /// needed: bias rules draw nothing.
+/// The view may also be n x 1 or 1 x n (an Eigen vector or a column or row of a matrix,
+/// given as such or through view_of): it is then the vector of its n elements, with the
+/// values a rank-1 view of length n gets.
 template <class E, class Rule, class Exec = serial_executor>
 void initialize_bias(const strided_view<E>& v, const Rule& rule, Exec&& exec = Exec{}) {
+  static_assert(detail::writes_into<E, Exec>());
   const weight_info none{fans{1, 1, 1}, weight_layout::out_in};
-  detail::require_vector(v.global_shape(), "initialize_bias");
-  rule.check(v.global_shape(), none);
-  rule.write(v, none, stream::root(0), std::forward<Exec>(exec));
+  const strided_view<E> b = detail::as_bias_vector(v);
+  detail::require_vector(b.global_shape(), "initialize_bias");
+  rule.check(b.global_shape(), none);
+  rule.write(b, none, stream::root(0), std::forward<Exec>(exec));
+}
+
+/// initialize_bias() of an object the adapter headers take, e.g. an Eigen::VectorXf, a
+/// RowVectorXd, a segment, a Map or Ref of a vector: the same as
+/// initialize_bias(view_of(x), ...).
+template <class X, class Rule, class Exec = serial_executor, class = adapted_view_t<X>>
+void initialize_bias(X&& x, const Rule& rule, Exec&& exec = Exec{}) {
+  initialize_bias(adapted_view(x), rule, std::forward<Exec>(exec));
 }
 
 }  // namespace kindling

@@ -80,6 +80,16 @@ struct is_packed : std::false_type {};
 template <class L>
 struct is_packed<L, std::void_t<decltype(std::declval<const L&>().all_blocks())>> : std::true_type {};
 
+// Schemes whose values follow one element-wise distribution for given fans (the
+// fan-scaled family, fixed, constant) have distribution(fans); structured schemes
+// (orthogonal, delta_orthogonal, identity, sparse) do not, and are audited by their
+// structure instead (audit/structure.hpp).
+template <class S, class = void>
+struct has_distribution : std::false_type {};
+template <class S>
+struct has_distribution<S, std::void_t<decltype(std::declval<const S&>().distribution(std::declval<const fans&>()))>>
+    : std::true_type {};
+
 template <class L>
 weight_layout layout_of(const L& layer) {
   if constexpr (has_layout<L>::value) {
@@ -119,6 +129,7 @@ bool block_part(const strided_view<E>& v, const packed_block& b, strided_view<E>
 template <class E, class Layer, class Scheme, class Exec = serial_executor>
 void initialize(const strided_view<E>& v, const Layer& layer, const Scheme& scheme, const stream& s,
                 Exec&& exec = Exec{}) {
+  static_assert(detail::writes_into<E, Exec>());
   layer.check_shape(detail::shape_vector(v.global_shape()));
   const weight_layout layout = detail::layout_of(layer);
   if constexpr (detail::is_packed<Layer>::value) {
@@ -144,8 +155,17 @@ void initialize(const strided_view<E>& v, const Layer& layer, const Scheme& sche
 template <class E, class Scheme, class Exec = serial_executor>
 void initialize(const strided_view<E>& v, const weight_info& w, const Scheme& scheme, const stream& s,
                 Exec&& exec = Exec{}) {
+  static_assert(detail::writes_into<E, Exec>());
   scheme.check(v.global_shape(), w);
   scheme.write(v, w, s, std::forward<Exec>(exec));
+}
+
+/// initialize() of an object the adapter headers take (an Eigen matrix, map or block, an
+/// Eigen or xtensor tensor): the same as initialize(view_of(x), ...), like fill(x, ...).
+/// `layer` is a layer description or a weight_info.
+template <class X, class Layer, class Scheme, class Exec = serial_executor, class = adapted_view_t<X>>
+void initialize(X&& x, const Layer& layer, const Scheme& scheme, const stream& s, Exec&& exec = Exec{}) {
+  initialize(adapted_view(x), layer, scheme, s, std::forward<Exec>(exec));
 }
 
 }  // namespace kindling

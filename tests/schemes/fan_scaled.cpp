@@ -1,4 +1,4 @@
-// Tests of schemes/variance_scaling.hpp: Glorot, He and LeCun through the public API on
+// Tests of schemes/fan_scaled.hpp: Glorot, He and LeCun through the public API on
 // real tensors, against the published variance formulas (REFERENCES.md).
 //
 // Statistical checks use fixed seeds, so each run is deterministic. Sizing: the KS
@@ -11,8 +11,9 @@
 #include <cmath>
 #include <vector>
 
+#include "../support/errors.hpp"
 #include "../support/stats.hpp"
-#include "kindling/schemes/variance_scaling.hpp"
+#include "kindling/schemes/fan_scaled.hpp"
 
 using namespace kindling;
 using kindling_test::ks_critical;
@@ -170,4 +171,25 @@ TEST_CASE("fan_scaled rejects bad arguments before writing") {
     CHECK_THROWS_AS(initialize(v, dense(3, 4), glorot_uniform{}, make_stream(1, "w")), std::invalid_argument);
   }
   for (float x : w) CHECK(x == 7.0f);
+}
+
+TEST_CASE("glorot takes an activation for its gain, he takes a rectifier for its slope") {
+  // Glorot with tanh: gain 5/3 (common practice, from gain.hpp's table_gain); with ReLU:
+  // sqrt(2) (He et al., ICCV 2015). The variance is gain² · 2 / (fan_in + fan_out)
+  // (Glorot & Bengio 2010, eq. 16, scaled by the gain).
+  const fans f{120, 80, 1};
+  CHECK(glorot_uniform{activation::tanh()}.gain == 5.0 / 3.0);
+  CHECK(glorot_normal{activation::relu()}.variance(f) == doctest::Approx(2.0 * 2.0 / 200).epsilon(1e-15));
+  CHECK(glorot_normal{activation::tanh()}.variance(f) == doctest::Approx(25.0 / 9.0 * 2.0 / 200).epsilon(1e-15));
+  // He with a leaky ReLU of slope a: Var W = 2 / ((1 + a²) fan_in) (He et al. 2015, sec. 2.2).
+  CHECK(he_normal{activation::leaky_relu(0.1)}.slope == 0.1);
+  CHECK(he_normal{activation::leaky_relu(0.1)}.variance(f) == doctest::Approx(2.0 / (1.01 * 120)).epsilon(1e-15));
+  CHECK(he_uniform{activation::relu(), fan_basis::out}.variance(f) == doctest::Approx(2.0 / 80).epsilon(1e-15));
+  // He et al. derive the variance for rectifiers only: another activation is refused by name.
+  for (const activation& a : {activation::tanh(), activation::selu()}) {
+    const std::string msg = kindling_test::message_of<std::invalid_argument>([&] { he_normal{a}; });
+    CHECK_MESSAGE(kindling_test::mentions(msg, "kindling::he_normal: argument 'activation' = " + std::string(a.name())),
+                  msg);
+    CHECK_MESSAGE(kindling_test::mentions(msg, "expected relu or leaky_relu"), msg);
+  }
 }
