@@ -6,7 +6,7 @@
 #include "kindling/audit/structure.hpp"
 #include "kindling/schemes/orthogonal.hpp"
 #include "kindling/schemes/sparse.hpp"
-#include "kindling/schemes/variance_scaling.hpp"
+#include "kindling/schemes/fan_scaled.hpp"
 
 using namespace kindling;
 

@@ -39,7 +39,7 @@
 
 #include "../detail/dmath.hpp"
 #include "../schemes/scheme.hpp"
-#include "../schemes/variance_scaling.hpp"
+#include "../schemes/fan_scaled.hpp"
 #include "../schemes/detail/unit_matrix.hpp"
 #include "detail/declared.hpp"
 #include "detail/gather.hpp"

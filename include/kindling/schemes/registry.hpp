@@ -33,7 +33,7 @@
 #include "identity.hpp"
 #include "orthogonal.hpp"
 #include "sparse.hpp"
-#include "variance_scaling.hpp"
+#include "fan_scaled.hpp"
 
 namespace kindling {
 
