@@ -162,7 +162,7 @@ TEST_CASE("non-finite values are reported as such and never counted") {
   const audit_report r = check_distribution(strided_view<const float>(w.data(), shape(64, 64)), dist::normal{0, 0.1});
   CHECK_FALSE(r);
   CHECK(r.findings().size() == 1);
-  CHECK_MESSAGE(mentions(r.explain(), "2 of 4096 values are not finite (1 NaN, 1 infinite; the first, NaN, at flat index 70)"),
+  CHECK_MESSAGE(mentions(r.explain(), "2 of 4096 values are not finite (1 NaN, 1 infinite; the first, NaN, at flat index 70 (unit 1, connection 6))"),
                 r.explain());
 }
 

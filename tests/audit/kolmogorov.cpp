@@ -43,8 +43,17 @@ TEST_CASE("the exact and the limiting p-values agree for large n") {
     const double limit = kolmogorov_limit_survival((std::sqrt(5000.0) + 0.12 + 0.11 / std::sqrt(5000.0)) * d);
     CHECK(limit == doctest::Approx(exact).epsilon(0.01));
   }
-  CHECK(ks_p_value(5000, 0.01).method == ks_method::exact);
+  CHECK(ks_p_value(1000, 0.05).method == ks_method::exact);
+  CHECK(ks_p_value(5000, 0.01).method == ks_method::limiting);  // n above ks_exact_limit
   CHECK(ks_p_value(200000, 0.01).method == ks_method::limiting);
+}
+
+TEST_CASE("ks_p_value is fast and finite for any n") {
+  // n = 2^40 with a tiny D: the exact path would loop over n; the limit answers at once.
+  const ks_result r = ks_p_value(std::uint64_t{1} << 40, 1e-7);
+  CHECK(r.method == ks_method::limiting);
+  CHECK(r.p_value > 0.9);
+  CHECK(r.p_value <= 1.0);
 }
 
 TEST_CASE("the statistic counts tied values as one step") {

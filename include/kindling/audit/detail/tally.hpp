@@ -60,8 +60,11 @@ struct value_grid {
     const double inf = std::numeric_limits<double>::infinity();
     if (guess > lo && guess < hi && bin(guess) >= j && bin(std::nextafter(guess, -inf)) < j) return guess;
     std::int64_t below = ordered(lo), at = ordered(hi);  // bin(below) < j <= bin(at)
-    while (at - below > 1) {
-      const std::int64_t mid = below + (at - below) / 2;
+    // The distance in unsigned arithmetic: from a negative lo to a positive hi it
+    // exceeds the range of a signed 64-bit integer.
+    const auto gap = [&] { return static_cast<std::uint64_t>(at) - static_cast<std::uint64_t>(below); };
+    while (gap() > 1) {
+      const std::int64_t mid = static_cast<std::int64_t>(static_cast<std::uint64_t>(below) + gap() / 2);
       (bin(from_ordered(mid)) >= j ? at : below) = mid;
     }
     return from_ordered(at);
