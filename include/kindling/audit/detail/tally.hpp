@@ -197,6 +197,7 @@ void tally_stretch(const E* p, std::ptrdiff_t step, std::uint64_t n, std::uint64
                    double shift, double inside_lo, double inside_hi, std::uint32_t* bins, chunk_tally& out,
                    Slow&& slow) {
   using element = std::remove_const_t<E>;
+  const value_grid g = grid;  // a local copy: the stores into the bins cannot alias its count
   // A value the fast test lets through is finite and inside; the others go to `slow`
   // and, when finite, are counted like the rest.
   const auto usable = [&](double x, std::uint64_t at) {
@@ -210,12 +211,12 @@ void tally_stretch(const E* p, std::ptrdiff_t step, std::uint64_t n, std::uint64
     const double x = element_traits<element>::to_double(p[static_cast<std::ptrdiff_t>(k) * step]);
     const double y = element_traits<element>::to_double(p[static_cast<std::ptrdiff_t>(k + 1) * step]);
     if (usable(x, first + k)) {
-      ++bins[grid.bin(x)];
+      ++bins[g.bin(x)];
       s1a += x - shift;
       s2a += (x - shift) * (x - shift);
     }
     if (usable(y, first + k + 1)) {
-      ++bins[grid.bin(y)];
+      ++bins[g.bin(y)];
       s1b += y - shift;
       s2b += (y - shift) * (y - shift);
     }
@@ -223,7 +224,7 @@ void tally_stretch(const E* p, std::ptrdiff_t step, std::uint64_t n, std::uint64
   if (k < n) {
     const double x = element_traits<element>::to_double(p[static_cast<std::ptrdiff_t>(k) * step]);
     if (usable(x, first + k)) {
-      ++bins[grid.bin(x)];
+      ++bins[g.bin(x)];
       s1a += x - shift;
       s2a += (x - shift) * (x - shift);
     }
