@@ -100,8 +100,9 @@ int main(int argc, char** argv) {
   plan_options plan;
   CLI::App* plan_cmd = app.add_subcommand("plan", "Variance through depth for a layer stack (a JSON spec)");
   plan_cmd->add_option("SPEC", plan.spec, "Network spec .json (default: a built-in pump vibration classifier)");
-  plan_cmd->add_flag("--measure", plan.measure, "Also measure on a batch through the stack as drawn");
-  plan_cmd->add_option("--batch", plan.batch, "Samples for --measure (default 1024)");
+  plan_cmd->add_flag("--measure", plan.measure, "Also measure over independent draws of the stack");
+  plan_cmd->add_option("--batch", plan.batch, "Samples a draw for --measure (default 256; streamed, memory does not grow with it)");
+  plan_cmd->add_option("--trials", plan.trials, "Independent draws of the weights for --measure (default 16)");
   plan_cmd->add_option("--seed", plan.seed, "Seed of the weights and inputs for --measure (default 0)");
   plan_cmd->add_option("--threads", plan.threads, "Threads for --measure (default 1)");
   plan_cmd->add_flag("--json", plan.json, "Print the table as JSON");

@@ -13,7 +13,8 @@ if(KINDLING_BUILD_EXAMPLES)
           "untouched;an existing output file is never replaced by a failed run"
           "region;--region writes exactly that block of the whole tensor, whatever the threads"
           "numpy;numpy.load reads every element type and the values match, and numpy's files read back"
-          "json;check --identify --json ranks candidates best first, plan --json and --svg")
+          "json;check --identify --json ranks candidates best first, plan --json and --svg"
+          "batch;plan --measure --batch 30000 streams the batch in bounded memory (no batch x batch matrix)")
     list(GET _kindling_tool_case 0 _case)
     list(GET _kindling_tool_case 1 _what)
     add_test(NAME "tool: ${_what}"
