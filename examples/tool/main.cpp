@@ -131,13 +131,15 @@ int main(int argc, char** argv) {
   check_cmd->add_flag("--json", check.json, "Print the results as JSON");
 
   plan_options plan;
-  integer_option plan_batch{"--batch", 2, std::uint64_t{1} << 32, {}, nullptr};
+  integer_option plan_batch{"--batch", 1, std::uint64_t{1} << 32, {}, nullptr};
+  integer_option plan_trials{"--trials", 1, 4096, {}, nullptr};
   integer_option plan_seed{"--seed", 0, ~std::uint64_t{0}, {}, nullptr};
   integer_option plan_threads{"--threads", 1, max_threads, {}, nullptr};
   CLI::App* plan_cmd = app.add_subcommand("plan", "Variance through depth for a layer stack (a JSON spec)");
   plan_cmd->add_option("SPEC", plan.spec, "Network spec .json (default: a built-in pump vibration classifier)");
-  plan_cmd->add_flag("--measure", plan.measure, "Also measure on a batch through the stack as drawn");
-  add(plan_cmd, plan_batch, "Samples for --measure (default 1024)");
+  plan_cmd->add_flag("--measure", plan.measure, "Also measure over independent draws of the stack");
+  add(plan_cmd, plan_batch, "Samples a draw for --measure (default 256; streamed, memory does not grow with it)");
+  add(plan_cmd, plan_trials, "Independent draws of the weights for --measure (default 16)");
   add(plan_cmd, plan_seed, "Seed of the weights and inputs for --measure, 0 to 2^64 - 1 (default 0)");
   add(plan_cmd, plan_threads, "Threads for --measure (default 1)");
   plan_cmd->add_flag("--json", plan.json, "Print the table as JSON");
@@ -200,6 +202,7 @@ int main(int argc, char** argv) {
       return run_check(check);
     }
     plan.batch = plan_batch.get().value_or(plan.batch);
+    plan.trials = static_cast<std::size_t>(plan_trials.get().value_or(plan.trials));
     plan.seed = plan_seed.get().value_or(plan.seed);
     plan.threads = static_cast<std::size_t>(plan_threads.get().value_or(plan.threads));
     return run_plan(plan);

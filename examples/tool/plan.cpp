@@ -1,8 +1,10 @@
 // examples/tool/plan.cpp: `kindling plan` prints how a layer stack's initialization
 // carries the signal through depth: per layer, the mean-field prediction of the
 // pre-activation variance (forward) and of the variance of the gradient with respect
-// to the pre-activation (backward), and with --measure the same measured on a batch
-// through the stack as drawn. --json for scripts, --svg for a picture.
+// to the pre-activation (backward), and with --measure the same measured over --trials
+// independent draws of the stack, --batch samples each, with the library's verdict
+// (kindling/propagate/measure.hpp): the columns and sentences are those of
+// propagation_report::table(). --json for scripts, --svg for a picture.
 #include <atomic>
 #include <cmath>
 #include <cstdio>
@@ -62,8 +64,7 @@ struct progress_executor {
       task(k);
       const std::size_t d = ++done;
       std::lock_guard<std::mutex> lock(print);
-      std::fprintf(stderr, "\rkindling plan: measuring, %zu/%zu batches of %lld samples", d, n,
-                   static_cast<long long>(pass_task_columns));
+      std::fprintf(stderr, "\rkindling plan: measuring, %zu/%zu draws", d, n);
       std::fflush(stderr);
     });
     std::fprintf(stderr, "\r\033[K");
@@ -100,8 +101,11 @@ int run_plan(const plan_options& o) {
   const network_spec spec =
       o.spec.empty() ? parse_network_spec(pump_classifier, "(built-in)") : read_network_spec(o.spec, "SPEC");
   if (o.threads == 0) throw std::invalid_argument("--threads 0: expected at least 1 thread");
-  if (o.measure && o.batch < 2) {
-    throw std::invalid_argument("--batch " + std::to_string(o.batch) + ": expected at least 2 samples");
+  if (o.measure && o.batch < 1) {
+    throw std::invalid_argument("--batch " + std::to_string(o.batch) + ": expected at least 1 sample a draw");
+  }
+  if (o.measure && o.trials < 2) {
+    throw std::invalid_argument("--trials " + std::to_string(o.trials) + ": expected at least 2 draws");
   }
   if (o.measure) check_measure_memory(spec, o.batch);
   if (!o.svg.empty()) check_output("--svg", o.svg, {{"SPEC", o.spec}});
@@ -110,8 +114,11 @@ int run_plan(const plan_options& o) {
   propagation_report measured;
   if (o.measure) {
     const bool tty = isatty(STDERR_FILENO) != 0;
-    if (tty) std::fprintf(stderr, "kindling plan: drawing the weights of %zu layers\r", stack.depth());
-    measured = compare_propagation(stack, o.batch, make_stream(o.seed, "kindling.plan"), measure_options{},
+    measure_options mo;
+    mo.trials = o.trials;
+    // Each draw streams the batch in slices of 32 samples: memory does not grow with
+    // --batch (no batch x batch matrix), only the time does.
+    measured = compare_propagation(stack, predicted, o.batch, make_stream(o.seed, "kindling.plan"), mo,
                                    progress_executor{thread_executor(o.threads), tty});
   }
   bool agrees = true;
@@ -142,17 +149,24 @@ int run_plan(const plan_options& o) {
     for (const std::string& w : p.warnings) warnings.push_back("layer " + std::to_string(l + 1) + " (" + L.label + "): " + w);
     if (o.measure) {
       const layer_comparison& c = measured.layers[l];
-      row["measured_forward_variance"] = c.preactivation.mean;
-      row["measured_backward_variance"] = c.gradient.mean;
+      const auto moment = [](const measured_moment& m) {
+        return json{{"median", m.median},
+                    {"spread_factor", std::exp(m.spread)},  // the table's x/: one draw varies by x/ this
+                    {"mean_over_predicted", std::exp(m.deviation)},
+                    {"band_factor", std::exp(m.tolerance)},  // agrees when mean/predicted is within x/ this
+                    {"agrees", m.agrees},
+                    {"draws", m.draws}};
+      };
+      row["measured_forward_variance"] = c.preactivation.median;
+      row["measured_backward_variance"] = c.gradient.median;
+      row["measured_forward"] = moment(c.preactivation);
+      row["measured_backward"] = moment(c.gradient);
       row["agrees"] = c.agrees;
-      series[2].points.push_back({x, c.preactivation.mean});
-      series[3].points.push_back({x, c.gradient.mean});
+      series[2].points.push_back({x, c.preactivation.median});
+      series[3].points.push_back({x, c.gradient.median});
       if (!c.agrees) {
         agrees = false;
-        warnings.push_back("layer " + std::to_string(l + 1) + " (" + L.label + "): measured variances " +
-                           number_text(c.preactivation.mean) + " / " + number_text(c.gradient.mean) +
-                           " disagree with the prediction " + number_text(p.preactivation_variance) + " / " +
-                           number_text(p.gradient_variance) + " beyond the sampling band");
+        warnings.push_back("layer " + std::to_string(l + 1) + " (" + L.label + "): disagrees: " + measured.disagreement(l));
       }
     }
     layers.push_back(row);
@@ -161,22 +175,28 @@ int run_plan(const plan_options& o) {
     if (!o.measure) series.resize(2);
     const std::string title = spec.name.empty() ? o.spec : spec.name;
     const std::string subtitle = "mean-field prediction" +
-                                 (o.measure ? std::string(" and a pass of ") + std::to_string(o.batch) +
-                                                  " samples through the drawn weights (seed " + std::to_string(o.seed) + ")"
+                                 (o.measure ? std::string(" and the median of ") + std::to_string(o.trials) +
+                                                  " draws of the weights, " + std::to_string(o.batch) +
+                                                  " samples each (seed " + std::to_string(o.seed) + ")"
                                             : std::string(" (add --measure for measured points)"));
     write_output("--svg", o.svg, variance_plot_svg(title, subtitle, series, stack.depth()));
   }
   if (o.json) {
     json out = {{"layers", layers}, {"warnings", warnings}};
     if (!spec.name.empty()) out["name"] = spec.name;
-    if (o.measure) out["batch"] = o.batch;
+    if (o.measure) {
+      out["batch"] = o.batch;
+      out["trials"] = o.trials;
+      out["false_alarm"] = measured.false_alarm;
+      out["method"] = measured.method();
+    }
     std::printf("%s\n", out.dump(2).c_str());
   } else {
     std::printf("%s: input %llu features, E[x^2] = %s\n", spec.name.empty() ? o.spec.c_str() : spec.name.c_str(),
                 static_cast<unsigned long long>(spec.input_width), number_text(spec.input_variance).c_str());
     std::printf("%-3s %-9s %6s %7s %-10s %-14s %9s %11s %11s", "#", "layer", "fan_in", "fan_out", "activation",
                 "scheme", "weight_sd", "fwd_var", "bwd_var");
-    if (o.measure) std::printf(" %11s %11s  %s", "fwd_meas", "bwd_meas", "agrees");
+    if (o.measure) std::printf(" %11s %7s %11s %7s  %s", "fwd_med", "x/", "bwd_med", "x/", "agrees");
     std::printf("\n");
     for (std::size_t l = 0; l < stack.depth(); ++l) {
       const stack_layer& L = stack[l];
@@ -187,11 +207,13 @@ int run_plan(const plan_options& o) {
                   number_text(p.preactivation_variance).c_str(), number_text(p.gradient_variance).c_str());
       if (o.measure) {
         const layer_comparison& c = measured.layers[l];
-        std::printf(" %11s %11s  %s", number_text(c.preactivation.mean).c_str(), number_text(c.gradient.mean).c_str(),
-                    c.agrees ? "yes" : "NO");
+        std::printf(" %11s %7s %11s %7s  %s", number_text(c.preactivation.median).c_str(),
+                    number_text(std::exp(c.preactivation.spread), 3).c_str(), number_text(c.gradient.median).c_str(),
+                    number_text(std::exp(c.gradient.spread), 3).c_str(), c.agrees ? "yes" : "NO");
       }
       std::printf("\n");
     }
+    if (o.measure) std::printf("%s\n", measured.method().c_str());
     for (const auto& w : warnings) std::printf("warning: %s\n", w.get<std::string>().c_str());
     if (!o.svg.empty()) std::printf("wrote %s\n", o.svg.c_str());
   }

@@ -56,7 +56,8 @@ struct check_options {
 struct plan_options {
   std::string spec;                    // "" = the built-in pump vibration classifier
   bool measure = false;
-  std::uint64_t batch = 1024;
+  std::uint64_t batch = 256;           // samples a draw
+  std::size_t trials = 16;             // independent draws of the weights
   std::uint64_t seed = 0;
   bool json = false;
   std::string svg;

@@ -27,7 +27,7 @@ TEST_CASE("ReLU with sigma_w^2 = 2, sigma_b^2 = 0 keeps the variance and has chi
     CHECK_MESSAGE(rows[l].chi == doctest::Approx(1.0).epsilon(1e-13), "chi = 1 expected");
     CHECK(rows[l].gradient_variance == doctest::Approx(0.5).epsilon(1e-12));
   }
-  CHECK(rows.back().warnings.empty());
+  for (const auto& r : rows) CHECK(r.warnings.empty());
   const fixed_point_result f = length_fixed_point(activation::relu(), 2.0, 0.0, 3.0);
   CHECK(f.converged);
   CHECK(f.q == doctest::Approx(3.0).epsilon(1e-13));  // every q is a fixed point
@@ -103,17 +103,142 @@ TEST_CASE("an identity stack reproduces Glorot's linear products exactly (Glorot
   }
 }
 
-TEST_CASE("growth and shrinkage beyond the warning factor are reported per layer") {
+namespace {
+std::size_t warning_count(const std::vector<layer_prediction>& rows) {
+  std::size_t n = 0;
+  for (const auto& r : rows) n += r.warnings.size();
+  return n;
+}
+std::string all_warnings(const std::vector<layer_prediction>& rows) {
+  std::string s;
+  for (std::size_t l = 0; l < rows.size(); ++l) {
+    for (const auto& w : rows[l].warnings) s += "[" + std::to_string(l + 1) + "] " + w + "\n";
+  }
+  return s;
+}
+}  // namespace
+
+// Replaces "growth and shrinkage beyond the warning factor are reported per layer",
+// whose ratios were taken against layer 1: the drift is now measured from the input
+// (forward) and from the loss gradient (backward), over any run of layers.
+TEST_CASE("predicted drift beyond the limit is warned about where it starts, input and loss steps included") {
   layer_stack s(100);
   for (int i = 0; i < 12; ++i) s.add_dense_with_variance(100, activation::relu(), 2.5 / 100);
   const auto rows = predict(s, {5.0, 1.0});
-  // forward ratio 1.25^l: above 5 from l = 8 (1.25^8 = 5.96) on.
-  CHECK(rows[6].warnings.empty());
-  REQUIRE_FALSE(rows[8].warnings.empty());
-  CHECK(mentions(rows[8].warnings[0], "pre-activation variance grew"));
+  CAPTURE(all_warnings(rows));
+  // sigma_w^2 = 2.5 on ReLU: E[a^2] x1.25 a layer from the input on (He et al. 2015,
+  // eq. 10), 1.25^12 = 14.6 > 5; the gradient x1.25 a layer below the top one.
+  REQUIRE(rows[0].warnings.size() == 1);
+  CHECK(mentions(rows[0].warnings[0], "forward: E[a^2], the second moment of the signal, grows by a factor of 14.6"));
+  CHECK(mentions(rows[0].warnings[0], "per unit and per layer alike from the input to the output of layer 12"));
+  CHECK(mentions(rows[0].warnings[0], "(x1.25 a layer)"));
+  CHECK(mentions(rows[0].warnings[0], "explodes"));
+  REQUIRE(rows[11].warnings.size() == 1);
+  CHECK(mentions(rows[11].warnings[0], "backward: E[(dL/dh)^2], the second moment of the gradient, grows by a factor of 11.6"));
+  CHECK(mentions(rows[11].warnings[0], "from the pre-activations of layer 12 down to the pre-activations of layer 1"));
+  CHECK(warning_count(rows) == 2);
+  for (std::size_t l = 0; l < rows.size(); ++l) CHECK(rows[l].forward_factor == doctest::Approx(1.25).epsilon(1e-13));
+  CHECK(rows[0].activation_moment == doctest::Approx(1.25).epsilon(1e-13));
+
   layer_stack t(100);
   for (int i = 0; i < 12; ++i) t.add_dense_with_variance(100, activation::tanh(), 0.5 / 100);
-  CHECK(mentions(predict(t).back().warnings.at(0), "shrank"));
+  const auto tr = predict(t);
+  CHECK(mentions(tr.front().warnings.at(0), "forward: E[a^2], the second moment of the signal, falls"));
+  CHECK(mentions(tr.front().warnings.at(0), "vanishes"));
+  CHECK(mentions(tr.back().warnings.at(0), "backward: E[(dL/dh)^2], the second moment of the gradient, falls"));
+  CHECK(mentions(tr.back().warnings.at(0), "from the loss gradient at the output down to the pre-activations of layer 1"));
+}
+
+TEST_CASE("Glorot on a ReLU stack is flagged from layer 1: x1/2 a layer from the input on (He et al. ICCV 2015)") {
+  // He et al. 2015, eq. 10: Var y_L = Var y_1 prod_l (n_l Var w_l / 2); Glorot's n Var W = 1
+  // halves the signal at every ReLU layer, the first included (Glorot & Bengio 2010,
+  // eq. 16 with equal fans).  Every ratio used to be taken against layer 1, so its own
+  // drop from the input could not be seen.
+  layer_stack s(256);
+  for (int i = 0; i < 10; ++i) s.add_dense(256, activation::relu(), glorot_normal{});
+  const auto rows = predict(s);
+  CAPTURE(all_warnings(rows));
+  CHECK(rows[0].preactivation_variance == doctest::Approx(1.0).epsilon(1e-13));  // q_1 = E[x^2]: no change yet...
+  CHECK(rows[0].forward_factor == doctest::Approx(0.5).epsilon(1e-13));          // ...but E[a_1^2] = E[x^2] / 2
+  REQUIRE(rows[0].warnings.size() == 1);
+  CHECK(mentions(rows[0].warnings[0], "forward: E[a^2], the second moment of the signal, falls by a factor of 1.02e+03"));
+  CHECK(mentions(rows[0].warnings[0], "from the input to the output of layer 10"));
+  CHECK(mentions(rows[0].warnings[0], "(x0.5 a layer)"));
+  REQUIRE(rows[9].warnings.size() == 1);  // backward: chi = 1/2 a layer, from the loss gradient down
+  CHECK(mentions(rows[9].warnings[0], "from the loss gradient at the output down to the pre-activations of layer 1"));
+  CHECK(mentions(rows[9].warnings[0], "(x0.5 a layer)"));
+  CHECK(warning_count(rows) == 2);
+
+  SUBCASE("four layers are enough: 1/16 is beyond the limit 10, three are not (1/8)") {
+    layer_stack four(256), three(256);
+    for (int i = 0; i < 4; ++i) four.add_dense(256, activation::relu(), glorot_normal{});
+    for (int i = 0; i < 3; ++i) three.add_dense(256, activation::relu(), glorot_normal{});
+    CHECK(mentions(predict(four)[0].warnings.at(0), "from the input to the output of layer 4"));
+    CHECK(warning_count(predict(three)) == 0);
+  }
+  SUBCASE("He normal on the same stack keeps both passes: no warning (He et al. 2015)") {
+    layer_stack he(256);
+    for (int i = 0; i < 10; ++i) he.add_dense(256, activation::relu(), he_normal{});
+    const auto h = predict(he);
+    CHECK(warning_count(h) == 0);
+    for (const auto& r : h) CHECK(r.forward_factor == doctest::Approx(1.0).epsilon(1e-13));
+  }
+}
+
+// He et al. 2015, sec. 2.2 (after eq. 14): with fan-in scaling the backward factors
+// multiply to a ratio of widths, "not a diminishing number": a change of width is
+// predicted, not drift.  The old table called the 5-unit head's per-unit gradient "grew
+// by a factor of 14.7 since the first layer".
+TEST_CASE("a change of width is never called growth: a 5-unit head and funnels get no warning (He et al. 2015)") {
+  SUBCASE("32-unit ReLU layers and a 5-unit head, with each head scheme") {
+    for (int head = 0; head < 4; ++head) {
+      layer_stack s(32);
+      for (int i = 0; i < 6; ++i) s.add_dense(32, activation::relu(), he_normal{});
+      if (head == 0) s.add_dense(5, activation::identity(), he_normal{});
+      if (head == 1) s.add_dense(5, activation::identity(), glorot_uniform{});
+      if (head == 2) s.add_dense(5, activation::identity(), lecun_normal{});
+      if (head == 3) s.add_dense(5, activation::identity(), he_normal{0.0, fan_basis::out});
+      CAPTURE(head);
+      const auto rows = predict(s);
+      CAPTURE(all_warnings(rows));
+      CHECK(warning_count(rows) == 0);
+    }
+  }
+  SUBCASE("tanh layers of 32 with a Glorot 5-unit head, and the same in front of a wide input") {
+    layer_stack s(512);
+    for (int i = 0; i < 6; ++i) s.add_dense(32, activation::tanh(), glorot_uniform{5.0 / 3.0});
+    s.add_dense(5, activation::identity(), glorot_uniform{});
+    CHECK(warning_count(predict(s)) == 0);
+  }
+  SUBCASE("a funnel 1024 -> 8 and a widening stack 8 -> 1024, fan-in, fan-out and fan-average") {
+    for (int scheme = 0; scheme < 3; ++scheme) {
+      layer_stack down(1024), up(8);
+      for (std::uint64_t w = 512; w >= 8; w /= 2) {
+        if (scheme == 0) down.add_dense(w, activation::relu(), he_normal{});
+        if (scheme == 1) down.add_dense(w, activation::relu(), he_normal{0.0, fan_basis::out});
+        if (scheme == 2) down.add_dense(w, activation::tanh(), glorot_normal{});
+      }
+      for (std::uint64_t w = 16; w <= 1024; w *= 2) {
+        if (scheme == 0) up.add_dense(w, activation::relu(), he_normal{});
+        if (scheme == 1) up.add_dense(w, activation::relu(), he_normal{0.0, fan_basis::out});
+        if (scheme == 2) up.add_dense(w, activation::tanh(), glorot_normal{});
+      }
+      CAPTURE(scheme);
+      CAPTURE(all_warnings(predict(down)));
+      CAPTURE(all_warnings(predict(up)));
+      CHECK(warning_count(predict(down)) == 0);
+      CHECK(warning_count(predict(up)) == 0);
+    }
+  }
+  SUBCASE("but real drift in a funnel is still seen: Glorot on ReLU, 1024 -> 8") {
+    layer_stack down(1024);
+    for (std::uint64_t w = 512; w >= 8; w /= 2) down.add_dense(w, activation::relu(), glorot_normal{});
+    const auto rows = predict(down);
+    CAPTURE(all_warnings(rows));
+    REQUIRE_FALSE(rows[0].warnings.empty());
+    CHECK(mentions(rows[0].warnings[0], "forward"));
+    CHECK(mentions(rows[0].warnings[0], "from the input"));
+  }
 }
 
 TEST_CASE("convolution layers enter through their fans") {

@@ -92,6 +92,9 @@ if CASE == "exit-codes":
         f.write('{"input": {"width": 8}, "layers": [{"width": -1, "activation": "relu", "scheme": "he-normal"}]}')
     _, err = expect_code(2, "plan", "bad.json")
     expect("layers[0].width" in err, f"expected the key path in the plan error, got {err!r}")
+    for option, value in (("--trials", "1"), ("--batch", "0")):
+        _, err = expect_code(2, "plan", "--measure", option, value)
+        expect(option in err, f"expected {option} named in the plan error, got {err!r}")
     with open("junk.npy", "wb") as f:
         f.write(b"not a numpy file")
     _, err = expect_code(2, "check", "junk.npy")
@@ -214,6 +217,20 @@ elif CASE == "json":
     first = doc["layers"][0]
     # He normal into ReLU from unit-variance inputs: q_1 = fan_in * (2 / fan_in) * 1 = 2 (He et al. 2015)
     expect(abs(first["forward_variance"] - 2.0) < 1e-12, f"q_1 = {first['forward_variance']}, expected 2")
+    # drift warnings (mean_field.hpp): Glorot on ReLU halves E[a^2] from the input on (He
+    # et al. 2015, eq. 10), flagged at layer 1; a 5-unit head is a change of width, not drift
+    with open("glorot_relu.json", "w") as f:
+        json.dump({"input": {"width": 64},
+                   "layers": [{"width": 64, "activation": "relu", "scheme": "glorot-normal"}] * 8}, f)
+    doc = json.loads(expect_code(0, "plan", "glorot_relu.json", "--json")[0])
+    expect(any(w.startswith("layer 1 (layer1): forward:") and "vanishes" in w for w in doc["warnings"]),
+           f"Glorot on ReLU should be flagged from layer 1, got {doc['warnings']}")
+    with open("head.json", "w") as f:
+        json.dump({"input": {"width": 32},
+                   "layers": [{"width": 32, "activation": "relu", "scheme": "he-normal"}] * 6
+                   + [{"width": 5, "activation": "identity", "scheme": "glorot-uniform"}]}, f)
+    doc = json.loads(expect_code(0, "plan", "head.json", "--json")[0])
+    expect(doc["warnings"] == [], f"a 5-unit head should get no warning, got {doc['warnings']}")
     with open("net.json", "w") as f:
         json.dump({"input": {"width": 100},
                    "layers": [{"width": 200, "activation": "tanh", "scheme": "glorot-normal", "gain": 5 / 3}] * 6
@@ -222,6 +239,15 @@ elif CASE == "json":
                          "--svg", "net.svg")
     doc = json.loads(out)
     expect(all(isinstance(l["measured_forward_variance"], float) for l in doc["layers"]), "measured values missing")
+    # the library's verdict per layer (kindling/propagate/measure.hpp): median and spread
+    # over --trials independent draws (16 by default), and the band it was judged by
+    expect(doc.get("trials") == 16 and doc.get("false_alarm") == 0.001, f"trials/false_alarm {doc.get('trials')}")
+    for l in doc["layers"]:
+        for side in ("measured_forward", "measured_backward"):
+            m = l.get(side, {})
+            expect(set(m) >= {"median", "spread_factor", "mean_over_predicted", "band_factor", "agrees", "draws"}
+                   and len(m["draws"]) == 16, f"layer {l['index']} {side}: {m}")
+    expect(all(l["agrees"] for l in doc["layers"]), "a Glorot tanh stack should agree at every layer")
     svg = ET.parse("net.svg").getroot()
     texts = " ".join(t.text or "" for t in svg.iter("{http://www.w3.org/2000/svg}text"))
     for word in ("layer (depth)", "variance (log scale)", "predicted", "measured"):
@@ -424,6 +450,18 @@ elif CASE == "rate-4096":
     expect(ks["interval"][0] == 0 and ks["statistic"] <= ks["interval"][1] and 0.0 <= ks["p_value"] <= 1.0,
            f"--json ks finding {ks}")
     expect_code(2, "check", "big.npy", "--expect", "glorot-uniform", "--alpha", "1.5")
+elif CASE == "batch":
+    # The issue: plan --measure --batch 30000 built a batch x batch matrix (7.7 GB, 8
+    # minutes). Each draw now streams its batch in slices of 32 samples, so the peak
+    # memory does not depend on --batch. Two draws keep the run short; the pump's
+    # weights and one slice take a few MB, 30000^2 doubles would be 7.2 GB.
+    import resource
+    out, _ = expect_code(0, "plan", "--measure", "--batch", "30000", "--trials", "2", "--json")
+    expect(json.loads(out).get("batch") == 30000, "the JSON should say batch 30000")
+    # the largest resident set of any child of this script (only that run), kB on Linux
+    peak = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss
+    print(f"plan --measure --batch 30000 --trials 2: peak resident memory {peak} kB")
+    expect(peak < 200 * 1024, f"plan --measure --batch 30000 peaked at {peak} kB, expected < 200 MB")
 else:
     failures.append(f"unknown case {CASE}")
 

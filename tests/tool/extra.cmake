@@ -18,7 +18,8 @@ if(KINDLING_BUILD_EXAMPLES)
           "numbers;integer options refuse negatives, overflow, empty text and junk, and values that do not fit"
           "limits;inputs are read within a size limit and memory is estimated before it is allocated"
           "messages;errors name the user's option or key, and SVG text is escaped"
-          "rate-4096;rate: correct 4096x4096 draws pass kindling check in every dtype, a fan off by 1.1 fails")
+          "rate-4096;rate: correct 4096x4096 draws pass kindling check in every dtype, a fan off by 1.1 fails"
+          "batch;plan --measure --batch 30000 streams the batch in bounded memory (no batch x batch matrix)")
     list(GET _kindling_tool_case 0 _case)
     list(GET _kindling_tool_case 1 _what)
     add_test(NAME "tool: ${_what}"

@@ -301,7 +301,8 @@ audit_report diagnose_pass(const layer_stack& stack, const realized_stack& net, 
 
 /// At initialization, with no data: a batch of `batch` inputs N(0, input second
 /// moment) from s.named("input") and output gradients N(0, 1) from
-/// s.named("output_gradient"), as compare_propagation draws them.
+/// s.named("output_gradient"), as compare_propagation draws them in each of its draws
+/// (draw k: net = realize(stack, s.indexed(k)) and this with s.indexed(k)).
 template <class Exec = serial_executor>
 audit_report diagnose_initialization(const layer_stack& stack, const realized_stack& net, std::uint64_t batch,
                                      const stream& s, const diagnosis_options& options = {}, Exec&& exec = Exec{}) {

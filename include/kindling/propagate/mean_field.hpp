@@ -16,7 +16,9 @@
 #ifndef KINDLING_PROPAGATE_MEAN_FIELD_HPP
 #define KINDLING_PROPAGATE_MEAN_FIELD_HPP
 
+#include <algorithm>
 #include <cmath>
+#include <cstdint>
 #include <cstdio>
 #include <cstddef>
 #include <limits>
@@ -129,15 +131,16 @@ struct layer_prediction {
   double backward_scale = 0;         // fan_out Var W
   double preactivation_variance = 0; // q_l = E[h_l^2]
   double gradient_variance = 0;      // E[(dL/dh_l)^2]
-  double forward_ratio = 1;          // q_l / q_1
-  double backward_ratio = 1;         // gradient_variance_l / gradient_variance_1
-  double chi = 0;                    // gradient factor from layer l+1 down to l (output layer: E[phi'^2])
+  double activation_moment = 0;      // E[a_l^2] = E[phi_l(h_l)^2], per unit: what layer l passes on
+  double forward_factor = 1;         // E[a_l^2] / E[a_{l-1}^2] per unit (a_0 = the input)
+  double chi = 0;                    // E[(dL/dh_l)^2] / E[(dL/dh_{l+1})^2] per unit (output layer: / E[g^2])
   std::vector<std::string> warnings;
 };
 
 /// Options of the analyses.
 struct propagation_options {
-  /// Warn when a ratio to the first layer exceeds this factor or falls below its inverse.
+  /// Warn when the predicted signal or gradient changes by more than this factor over a
+  /// run of consecutive layers, both per unit and per layer (summed over its units).
   double warn_factor = 10.0;
   /// E[g^2] of the loss gradient with respect to the stack's output a_L.
   double output_gradient_variance = 1.0;
@@ -162,20 +165,71 @@ inline std::string ratio_text(double x) {
   return buffer;
 }
 
-inline void add_ratio_warnings(std::vector<layer_prediction>& rows, double factor) {
-  for (layer_prediction& r : rows) {
-    const auto warn = [&](double ratio, const char* what) {
-      if (ratio > factor) {
-        r.warnings.push_back(std::string(what) + " grew by a factor of " + ratio_text(ratio) +
-                             " since the first layer (limit " + argument_text(factor) + ")");
-      } else if (ratio < 1.0 / factor) {
-        r.warnings.push_back(std::string(what) + " shrank by a factor of " + ratio_text(1.0 / ratio) +
-                             " since the first layer (limit " + argument_text(factor) + ")");
+// A run of a pass, between two of its points i < j (in the order the pass runs), over
+// which the second moment changes by more than the limit both per unit and per layer.
+struct drift_window {
+  std::size_t from = 0, to = 0;
+  bool grows = false;
+  double per_unit = 1, per_layer = 1;  // later / earlier
+};
+
+// The change from point i to point j that counts: the smaller of the per-unit and the
+// per-layer change, signed (> 0 grows, < 0 falls), 0 when they disagree in sign.  A
+// point whose moment is 0 cannot start a run (nothing to compare with); one reaching 0
+// from a positive value falls by an infinite factor.
+inline double drift_amount(const std::vector<double>& unit, const std::vector<double>& layer, std::size_t i,
+                           std::size_t j) {
+  if (!(unit[i] > 0.0 && layer[i] > 0.0)) return 0.0;
+  const double u = std::log(unit[j] / unit[i]), v = std::log(layer[j] / layer[i]);
+  if (u > 0.0 && v > 0.0) return std::fmin(u, v);
+  if (u < 0.0 && v < 0.0) return std::fmax(u, v);
+  return 0.0;
+}
+
+// Disjoint windows beyond log(limit), largest first, then on each side (greedy).
+inline void find_drifts(const std::vector<double>& unit, const std::vector<double>& layer, std::size_t lo,
+                        std::size_t hi, double log_limit, std::vector<drift_window>& out) {
+  if (hi <= lo) return;
+  double best = 0.0;
+  std::size_t bi = 0, bj = 0;
+  for (std::size_t i = lo; i < hi; ++i) {
+    for (std::size_t j = i + 1; j <= hi; ++j) {
+      const double d = drift_amount(unit, layer, i, j);
+      if (std::fabs(d) > std::fabs(best) * (1.0 + 1e-9)) {  // ties: the earliest start, then the shortest run
+        best = d;
+        bi = i;
+        bj = j;
       }
-    };
-    warn(r.forward_ratio, "pre-activation variance");
-    warn(r.backward_ratio, "gradient variance");
+    }
   }
+  if (!(std::fabs(best) > log_limit)) return;
+  drift_window w;
+  w.from = bi;
+  w.to = bj;
+  w.grows = best > 0.0;
+  w.per_unit = unit[bj] / unit[bi];
+  w.per_layer = layer[bj] / layer[bi];
+  out.push_back(w);
+  find_drifts(unit, layer, lo, bi, log_limit, out);
+  find_drifts(unit, layer, bj, hi, log_limit, out);
+}
+
+inline std::string drift_sentence(const char* pass, const char* what, const drift_window& w,
+                                  const std::string& from, const std::string& to, double limit) {
+  const double u = w.grows ? w.per_unit : 1.0 / w.per_unit;
+  const double v = w.grows ? w.per_layer : 1.0 / w.per_layer;
+  const std::size_t steps = w.to - w.from;
+  std::string s = std::string(pass) + ": " + what + (w.grows ? " grows" : " falls") + " by a factor of " +
+                  ratio_text(u);
+  s += ratio_text(u) == ratio_text(v) ? " per unit and per layer alike"
+                                      : " per unit and " + ratio_text(v) + " per layer (summed over its units)";
+  s += " from " + from + " " + to;
+  if (steps > 1 && std::isfinite(u)) {
+    s += " (x" + ratio_text(std::pow(w.per_unit, 1.0 / static_cast<double>(steps))) + " a layer)";
+  }
+  if (steps > 1) s += std::string(": it ") + (w.grows ? "explodes" : "vanishes") + " with depth";
+  s += " (limit " + argument_text(limit) + ")";
+  return s;
 }
 }  // namespace detail
 
@@ -183,16 +237,39 @@ inline void add_ratio_warnings(std::vector<layer_prediction>& rows, double facto
 /// sigma_w^2 = fan_in Var W, then gradients from the top,
 ///   E[delta_L^2] = E[phi_L'(h_L)^2] E[g^2],
 ///   E[delta_l^2] = E[phi_l'(h_l)^2] fan_out_{l+1} Var W_{l+1} E[delta_{l+1}^2].
+///
+/// Warnings are about predicted drift only, along the path each pass takes:
+///   forward:  E[a^2] of the input x, then of each layer's output a_l (what the next
+///             layer's weights see), from the input up;
+///   backward: E[g^2] of the loss gradient at the output, then E[delta_l^2] of each
+///             layer's pre-activation gradient (what its weight gradient is made of,
+///             dL/dW_l = delta_l a_{l-1}^T), from the output down.
+/// A run of consecutive steps -- the input -> layer-1 step and the loss -> layer-L step
+/// included -- is warned about when its second moment changes by more than warn_factor
+/// both per unit and per layer (the per-unit value times the layer's width).  The two
+/// differ by the ratio of the widths at the ends of the run, so a change of width alone
+/// never triggers a warning: with fan-in scaling the theory keeps the forward signal per
+/// unit and the backward gradient per layer (He et al. 2015, sec. 2.2: the backward
+/// factors multiply to a ratio of widths, not an exponential), with fan-out scaling the
+/// other way round.  What is left is the exponential drift of the ordered or chaotic
+/// phase (chi != 1; Schoenholz et al. 2017), e.g. Glorot on ReLU, x1/2 a layer from the
+/// input on (He et al. 2015, eq. 10 with n Var W = 1).  The warning goes to the layer
+/// where the run starts in the pass's direction (forward: its lowest layer; backward:
+/// its highest) and names both ends.
 inline std::vector<layer_prediction> predict(const layer_stack& stack,
                                              const propagation_options& options = {}) {
   constexpr const char* where = "kindling::predict";
   stack.require_layers(where);
   detail::check_options(options, where);
   const auto& layers = stack.layers();
-  std::vector<layer_prediction> rows(layers.size());
+  const std::size_t n = layers.size();
+  std::vector<layer_prediction> rows(n);
   double a2 = stack.input_second_moment();  // E[a_{l-1}^2]
-  std::vector<double> slope2(layers.size());
-  for (std::size_t l = 0; l < layers.size(); ++l) {
+  std::vector<double> slope2(n);
+  std::vector<double> fwd_unit(n + 1), fwd_layer(n + 1);
+  fwd_unit[0] = a2;
+  fwd_layer[0] = a2 * static_cast<double>(stack.input_width());
+  for (std::size_t l = 0; l < n; ++l) {
     const stack_layer& L = layers[l];
     layer_prediction& r = rows[l];
     r.label = L.label;
@@ -200,20 +277,54 @@ inline std::vector<layer_prediction> predict(const layer_stack& stack,
     r.forward_scale = L.forward_scale();
     r.backward_scale = L.backward_scale();
     r.preactivation_variance = L.forward_scale() * a2 + L.bias_variance;
-    a2 = L.act.second_moment(r.preactivation_variance);
+    r.activation_moment = L.act.second_moment(r.preactivation_variance);
+    r.forward_factor = a2 > 0.0 ? r.activation_moment / a2
+                                : (r.activation_moment > 0.0 ? std::numeric_limits<double>::infinity() : 1.0);
+    a2 = r.activation_moment;
     slope2[l] = L.act.slope_second_moment(r.preactivation_variance);
+    fwd_unit[l + 1] = a2;
+    fwd_layer[l + 1] = a2 * static_cast<double>(L.width);
   }
   double g2 = options.output_gradient_variance;  // E[(dL/da_l)^2]
-  for (std::size_t k = layers.size(); k-- > 0;) {
-    rows[k].chi = (k + 1 < layers.size() ? layers[k + 1].backward_scale() : 1.0) * slope2[k];
+  // Points of the backward pass: p = 0 the loss gradient g at the output, p >= 1 delta of
+  // layer index n - p (0-based), i.e. from the top layer down.
+  std::vector<double> bwd_unit(n + 1), bwd_layer(n + 1);
+  bwd_unit[0] = g2;
+  bwd_layer[0] = g2 * static_cast<double>(layers.back().width);
+  for (std::size_t k = n; k-- > 0;) {
+    rows[k].chi = (k + 1 < n ? layers[k + 1].backward_scale() : 1.0) * slope2[k];
     rows[k].gradient_variance = slope2[k] * g2;
     g2 = layers[k].backward_scale() * rows[k].gradient_variance;
+    bwd_unit[n - k] = rows[k].gradient_variance;
+    bwd_layer[n - k] = rows[k].gradient_variance * static_cast<double>(layers[k].width);
   }
-  for (layer_prediction& r : rows) {
-    r.forward_ratio = r.preactivation_variance / rows.front().preactivation_variance;
-    r.backward_ratio = r.gradient_variance / rows.front().gradient_variance;
+
+  const double log_limit = std::log(options.warn_factor);
+  std::vector<detail::drift_window> found;
+  detail::find_drifts(fwd_unit, fwd_layer, 0, n, log_limit, found);
+  std::sort(found.begin(), found.end(), [](const auto& a, const auto& b) { return a.from < b.from; });
+  const auto layer_name = [&](std::size_t i) {
+    const std::string number = "layer " + std::to_string(i + 1);
+    return layers[i].label == "layer" + std::to_string(i + 1) ? number : number + " (" + layers[i].label + ")";
+  };
+  for (const auto& w : found) {
+    const std::string from = w.from == 0 ? "the input" : "the output of " + layer_name(w.from - 1);
+    rows[w.from].warnings.push_back(detail::drift_sentence("forward", "E[a^2], the second moment of the signal,", w, from,
+                                                           "to the output of " + layer_name(w.to - 1),
+                                                           options.warn_factor));
   }
-  detail::add_ratio_warnings(rows, options.warn_factor);
+  found.clear();
+  detail::find_drifts(bwd_unit, bwd_layer, 0, n, log_limit, found);
+  std::sort(found.begin(), found.end(), [](const auto& a, const auto& b) { return a.from < b.from; });
+  for (const auto& w : found) {
+    // The run starts where the pass enters it: the top layer for the loss gradient
+    // (point 0), else the layer of its first delta (index n - from).
+    const std::string from = w.from == 0 ? "the loss gradient at the output"
+                                         : "the pre-activations of " + layer_name(n - w.from);
+    rows[w.from == 0 ? n - 1 : n - w.from].warnings.push_back(
+        detail::drift_sentence("backward", "E[(dL/dh)^2], the second moment of the gradient,", w, from,
+                               "down to the pre-activations of " + layer_name(n - w.to), options.warn_factor));
+  }
   return rows;
 }
 
