@@ -132,7 +132,7 @@ int main(int argc, char** argv) {
 
   plan_options plan;
   integer_option plan_batch{"--batch", 1, std::uint64_t{1} << 32, {}, nullptr};
-  integer_option plan_trials{"--trials", 1, 4096, {}, nullptr};
+  integer_option plan_trials{"--trials", 2, 4096, {}, nullptr};
   integer_option plan_seed{"--seed", 0, ~std::uint64_t{0}, {}, nullptr};
   integer_option plan_threads{"--threads", 1, max_threads, {}, nullptr};
   CLI::App* plan_cmd = app.add_subcommand("plan", "Variance through depth for a layer stack (a JSON spec)");
