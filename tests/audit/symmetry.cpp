@@ -259,11 +259,11 @@ TEST_CASE("power: a copied unit plus tiny noise is caught among many units of fe
   auto w = drawn<float>(65536, 3, 7, false);
   const strided_view<const float> v(w.data(), shape(65536, 3));
   CHECK_MESSAGE(check_symmetry(v), check_symmetry(v).explain());
-  for (int j = 0; j < 3; ++j) w[40000 * 3 + j] = w[123 * 3 + j] * (1 + 1e-7f * static_cast<float>(j + 1));
+  for (std::size_t j = 0; j < 3; ++j) w[40000 * 3 + j] = w[123 * 3 + j] * (1 + 1e-7f * static_cast<float>(j + 1));
   const audit_report near = check_symmetry(v);
   CHECK_FALSE(near.find("near-duplicate-units")->passed);
   CHECK_MESSAGE(mentions(near.explain(), "units 123 and 40000"), near.explain());
-  for (int j = 0; j < 3; ++j) w[40000 * 3 + j] = w[123 * 3 + j];
+  for (std::size_t j = 0; j < 3; ++j) w[40000 * 3 + j] = w[123 * 3 + j];
   const audit_report same = check_symmetry(v);
   CHECK_FALSE(same.find("duplicate-units")->passed);
   CHECK(same.find("near-duplicate-units")->passed);
