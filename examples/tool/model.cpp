@@ -51,12 +51,11 @@ int run_verify(const verify_options& o) {
     const std::string want = records[i].value("digest", std::string());
     const safetensors_entry* e = file.index().find(p.name);
     std::string verdict;
-    const char* dtypes[] = {"F32", "F64", "F16", "BF16"};
     if (e == nullptr) {
       verdict = "missing from the file";
-    } else if (e->shape != p.full_shape() || std::string(safetensors_dtype_name(e->dtype)) != dtypes[static_cast<int>(p.element)]) {
+    } else if (e->shape != p.full_shape() || e->dtype != p.element) {
       verdict = std::string("shape ") + shape_text(e->shape) + " " + safetensors_dtype_name(e->dtype) + ", expected " +
-                shape_text(p.full_shape()) + " " + dtypes[static_cast<int>(p.element)];
+                shape_text(p.full_shape()) + " " + safetensors_dtype_name(p.element);
     } else {
       parameter_digest d;
       for (std::uint64_t off = 0; off < e->end - e->begin;) {

@@ -15,6 +15,7 @@
 
 #include <cstdint>
 #include <limits>
+#include <type_traits>
 
 #include "kindling/detail/dmath.hpp"
 
@@ -212,6 +213,40 @@ struct element_traits<bfloat16> : detail::element_traits_base<bfloat16, float, 1
 
 template <class E>
 using compute_type_t = typename element_traits<E>::compute_type;
+
+// ---- element kinds ------------------------------------------------------------------
+// An element type as a run-time value: what a file or a model plan says a tensor holds.
+// The .npy and safetensors readers and writers and the model plan all use this one.
+
+enum class element_kind { f16, bf16, f32, f64 };
+
+/// "f16", "bf16", "f32" or "f64" (the tool's --dtype spellings).
+inline const char* element_kind_name(element_kind k) noexcept {
+  switch (k) {
+    case element_kind::f16: return "f16";
+    case element_kind::bf16: return "bf16";
+    case element_kind::f32: return "f32";
+    case element_kind::f64: return "f64";
+  }
+  return "unknown";
+}
+
+/// Bytes per element.
+inline std::uint64_t element_kind_bytes(element_kind k) noexcept {
+  return k == element_kind::f64 ? 8 : k == element_kind::f32 ? 4 : 2;
+}
+
+/// The kind of element type E (float, double, float16, bfloat16).
+template <class E>
+struct element_kind_of;
+template <>
+struct element_kind_of<float> : std::integral_constant<element_kind, element_kind::f32> {};
+template <>
+struct element_kind_of<double> : std::integral_constant<element_kind, element_kind::f64> {};
+template <>
+struct element_kind_of<float16> : std::integral_constant<element_kind, element_kind::f16> {};
+template <>
+struct element_kind_of<bfloat16> : std::integral_constant<element_kind, element_kind::bf16> {};
 
 }  // namespace kindling
 

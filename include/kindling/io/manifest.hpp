@@ -354,8 +354,7 @@ inline nlohmann::json write_model_safetensors(const model_plan& plan, std::uint6
     const model_parameter& p = plan.parameters[i];
     records.push_back(manifest_record(p));
     auto bytes = std::make_shared<parameter_bytes>(p, seed);
-    const tensor_dtype t[] = {tensor_dtype::f32, tensor_dtype::f64, tensor_dtype::f16, tensor_dtype::bf16};
-    sources.push_back({p.name, t[static_cast<int>(p.element)], p.full_shape(),
+    sources.push_back({p.name, p.element, p.full_shape(),
                        [bytes, &digests, i](std::uint64_t offset, char* out, std::size_t size) {
                          bytes->read(offset, out, size);
                          digests[i].update(out, size);

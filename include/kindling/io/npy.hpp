@@ -39,24 +39,14 @@
 
 namespace kindling {
 
-/// The element types of a .npy file kindling reads and writes.
-enum class npy_type { f16, bf16, f32, f64 };
+/// The element types of a .npy file kindling reads and writes (element.hpp's kinds).
+using npy_type = element_kind;
 
 /// "f16", "bf16", "f32" or "f64" (the tool's --dtype spellings).
-inline const char* npy_type_name(npy_type t) noexcept {
-  switch (t) {
-    case npy_type::f16: return "f16";
-    case npy_type::bf16: return "bf16";
-    case npy_type::f32: return "f32";
-    case npy_type::f64: return "f64";
-  }
-  return "unknown";
-}
+inline const char* npy_type_name(npy_type t) noexcept { return element_kind_name(t); }
 
 /// Bytes per element.
-inline std::size_t npy_type_size(npy_type t) noexcept {
-  return t == npy_type::f32 ? 4 : t == npy_type::f64 ? 8 : 2;
-}
+inline std::size_t npy_type_size(npy_type t) noexcept { return static_cast<std::size_t>(element_kind_bytes(t)); }
 
 /// A tensor as stored in a .npy file: its shape (row-major), its element type and its
 /// element data, little-endian, row-major.

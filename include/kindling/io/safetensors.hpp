@@ -39,12 +39,13 @@
 
 #include <nlohmann/json.hpp>
 
+#include "../element.hpp"
 #include "replace_file.hpp"
 
 namespace kindling {
 
-/// The element types we read and write, named as safetensors names them.
-enum class tensor_dtype { f16, bf16, f32, f64 };
+/// The element types we read and write (element.hpp's kinds).
+using tensor_dtype = element_kind;
 
 inline const char* safetensors_dtype_name(tensor_dtype t) noexcept {
   switch (t) {
@@ -56,9 +57,6 @@ inline const char* safetensors_dtype_name(tensor_dtype t) noexcept {
   return "?";
 }
 
-inline std::uint64_t dtype_bytes(tensor_dtype t) noexcept {
-  return t == tensor_dtype::f64 ? 8 : t == tensor_dtype::f32 ? 4 : 2;
-}
 
 /// The largest header we read: far above any real model's (about 100 bytes a tensor).
 inline constexpr std::uint64_t safetensors_max_header = 100000000;
@@ -197,10 +195,10 @@ inline safetensors_index parse_safetensors_header(const std::string& text, std::
                           " bytes, expected end <= " + std::to_string(data_size));
     }
     std::uint64_t n = 0;
-    if (!detail::st_count(e.shape, &n) || n > (e.end - e.begin) || n * dtype_bytes(e.dtype) != e.end - e.begin) {
+    if (!detail::st_count(e.shape, &n) || n > (e.end - e.begin) || n * element_kind_bytes(e.dtype) != e.end - e.begin) {
       st_fail(source, at + ": shape " + st_value(shape) + " of " + dt + " does not fill its " + range + " (" +
                           std::to_string(e.end - e.begin) + " bytes), expected " +
-                          std::to_string(dtype_bytes(e.dtype)) + " bytes an element");
+                          std::to_string(element_kind_bytes(e.dtype)) + " bytes an element");
     }
     index.tensors.push_back(std::move(e));
   }
@@ -330,10 +328,10 @@ inline void write_safetensors(const std::string& path, const std::vector<safeten
       throw std::invalid_argument("kindling::write_safetensors: tensor '" + t.name + "' is given twice, expected each name once");
     }
     std::uint64_t n = 0;
-    if (!detail::st_count(t.shape, &n) || n > (~std::uint64_t{0} - at) / dtype_bytes(t.dtype)) {
+    if (!detail::st_count(t.shape, &n) || n > (~std::uint64_t{0} - at) / element_kind_bytes(t.dtype)) {
       throw std::length_error("kindling::write_safetensors: tensor '" + t.name + "' is too large for a 64-bit file");
     }
-    const std::uint64_t bytes = n * dtype_bytes(t.dtype);
+    const std::uint64_t bytes = n * element_kind_bytes(t.dtype);
     header[t.name] = {{"dtype", safetensors_dtype_name(t.dtype)}, {"shape", t.shape}, {"data_offsets", {at, at + bytes}}};
     at += bytes;
   }
@@ -350,7 +348,7 @@ inline void write_safetensors(const std::string& path, const std::vector<safeten
         for (const safetensors_source& t : tensors) {
           std::uint64_t n = 0;
           detail::st_count(t.shape, &n);
-          const std::uint64_t total = n * dtype_bytes(t.dtype);
+          const std::uint64_t total = n * element_kind_bytes(t.dtype);
           for (std::uint64_t off = 0; off < total;) {
             const auto size = static_cast<std::size_t>(std::min<std::uint64_t>(buffer.size(), total - off));
             t.fill(off, buffer.data(), size);

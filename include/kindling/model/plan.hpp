@@ -46,21 +46,6 @@ struct bias_vector {
 using layer_description =
     std::variant<dense, convolution, transposed_convolution, embedding, packed_dense, bias_vector>;
 
-/// The element types a parameter may have (named as safetensors names them in files).
-enum class element_kind { f32, f64, f16, bf16 };
-
-inline const char* element_kind_name(element_kind k) noexcept {
-  switch (k) {
-    case element_kind::f32: return "f32";
-    case element_kind::f64: return "f64";
-    case element_kind::f16: return "f16";
-    case element_kind::bf16: return "bf16";
-  }
-  return "?";
-}
-inline std::uint64_t element_kind_bytes(element_kind k) noexcept {
-  return k == element_kind::f64 ? 8 : k == element_kind::f32 ? 4 : 2;
-}
 
 struct model_parameter {
   std::string name;
@@ -93,17 +78,6 @@ using any_tensor_view =
     std::variant<strided_view<float>, strided_view<double>, strided_view<float16>, strided_view<bfloat16>>;
 
 namespace detail {
-
-template <class E>
-struct element_kind_of;
-template <>
-struct element_kind_of<float> { static constexpr element_kind value = element_kind::f32; };
-template <>
-struct element_kind_of<double> { static constexpr element_kind value = element_kind::f64; };
-template <>
-struct element_kind_of<float16> { static constexpr element_kind value = element_kind::f16; };
-template <>
-struct element_kind_of<bfloat16> { static constexpr element_kind value = element_kind::bf16; };
 
 [[noreturn]] inline void rethrow_for(const std::string& name, const std::exception& e) {
   throw std::invalid_argument("parameter '" + name + "': " + e.what());
@@ -157,9 +131,9 @@ inline void check_plan(const model_plan& plan) {
 template <class E, class Exec = serial_executor>
 void initialize_parameter(const model_parameter& p, std::uint64_t seed, const strided_view<E>& v,
                           Exec&& exec = Exec{}) {
-  if (detail::element_kind_of<std::remove_const_t<E>>::value != p.element) {
+  if (element_kind_of<std::remove_const_t<E>>::value != p.element) {
     throw std::invalid_argument("parameter '" + p.name + "': the storage holds " +
-                                element_kind_name(detail::element_kind_of<std::remove_const_t<E>>::value) +
+                                element_kind_name(element_kind_of<std::remove_const_t<E>>::value) +
                                 " elements, expected " + element_kind_name(p.element));
   }
   const std::vector<std::uint64_t> want = p.full_shape();
