@@ -18,6 +18,20 @@
 // equal the layer's. An unknown or repeated key, a wrong value or a repeated parameter
 // name is std::invalid_argument naming its path (parameters[2].layer.kernel).
 //
+// Rules (model/rules.hpp: the pattern syntax and the precedence rule, the most specific
+// pattern wins) let parameters give only their name and shape:
+//   {"format": "kindling-model-plan", "seed": 7,
+//    "rules": [{"match": "**.weight", "layer": "dense", "scheme": "glorot-uniform"},
+//              {"match": "front.*.weight", "layer": {"kind": "convolution", "groups": 2},
+//               "scheme": "he-normal"},
+//              {"match": "gru.w_*", "layer": {"kind": "packed", "blocks": 3,
+//                                             "order": ["reset", "update", "new"]}},
+//              {"match": "**.bias", "layer": "bias", "scheme": "zeros", "dtype": "f16"}],
+//    "parameters": [{"name": "front.conv1.weight", "shape": [16, 3, 7]}, ...]}
+// A rule has "match" and at least one of "layer" (a kind, or {"kind", "layout",
+// "groups", "blocks", "order"}: what the shape cannot tell), "scheme" and "dtype". A
+// parameter's own "layer", "scheme" or "dtype" wins over any rule.
+//
 // The manifest (format "kindling-manifest", manifest_format_version) holds the seed
 // and, per parameter, the plan entry plus shape, fans, gain, the resolved scheme text,
 // its distribution's parameters for those fans (bound or sigma), the byte count and a
@@ -42,6 +56,7 @@
 #include <nlohmann/json.hpp>
 
 #include "../model/plan.hpp"
+#include "../model/rules.hpp"
 #include "../random/siphash.hpp"
 #include "read_file.hpp"
 #include "replace_file.hpp"
@@ -210,10 +225,81 @@ inline nlohmann::json scheme_to_json(const scheme_value& s) {
   return j;
 }
 
+namespace detail {
+
+inline layer_kind plan_layer_kind(const nlohmann::json& v, const std::string& source, const std::string& path) {
+  const std::string s = plan_text(v, source, path);
+  for (layer_kind k : {layer_kind::dense, layer_kind::convolution, layer_kind::transposed_convolution,
+                       layer_kind::embedding, layer_kind::packed, layer_kind::bias}) {
+    if (s == layer_kind_name(k)) return k;
+  }
+  plan_fail(source, path, v, "dense, convolution, transposed_convolution, embedding, packed or bias");
+}
+
+// A rule's layer: a kind ("dense") or {"kind": ..., "layout", "groups", "blocks", "order"}.
+inline layer_template plan_layer_template(const nlohmann::json& l, const std::string& source, const std::string& path) {
+  layer_template t;
+  if (l.is_string()) {
+    t.kind = plan_layer_kind(l, source, path);
+  } else {
+    if (!l.is_object()) plan_fail(source, path, l, "a layer kind or an object with \"kind\"");
+    t.kind = plan_layer_kind(plan_required(l, source, path, "kind"), source, path + ".kind");
+    std::vector<std::string> keys{"kind"};
+    if (t.kind == layer_kind::dense) keys = {"kind", "layout"};
+    if (t.kind == layer_kind::convolution || t.kind == layer_kind::transposed_convolution) keys = {"kind", "layout", "groups"};
+    if (t.kind == layer_kind::packed) keys = {"kind", "layout", "blocks", "order"};
+    plan_keys(l, source, path, keys);
+    if (l.contains("layout")) t.layout = plan_layout(l["layout"], source, path + ".layout");
+    if (l.contains("groups")) t.groups = plan_size(l["groups"], source, path + ".groups");
+    if (l.contains("blocks")) t.blocks = plan_size(l["blocks"], source, path + ".blocks");
+    if (l.contains("order")) {
+      const nlohmann::json& o = l["order"];
+      if (!o.is_array()) plan_fail(source, path + ".order", o, "an array of block labels");
+      for (std::size_t i = 0; i < o.size(); ++i) t.order.push_back(plan_text(o[i], source, path + ".order[" + std::to_string(i) + "]"));
+    }
+  }
+  if (t.kind == layer_kind::packed && t.blocks == 0) {
+    plan_fail(source, path, l, "a packed layer with its \"blocks\" (3 for a GRU, 4 for an LSTM)");
+  }
+  if (t.kind == layer_kind::packed && !t.order.empty() && t.order.size() != t.blocks) {
+    plan_fail(source, path + ".order", l["order"], "one label for each of the " + std::to_string(t.blocks) + " blocks");
+  }
+  return t;
+}
+
+inline std::vector<plan_rule> plan_rules(const nlohmann::json& v, const std::string& source) {
+  if (!v.is_array()) plan_fail(source, "rules", v, "an array of rules {\"match\": pattern, \"layer\", \"scheme\", \"dtype\"}");
+  std::vector<plan_rule> rules;
+  for (std::size_t i = 0; i < v.size(); ++i) {
+    const std::string path = "rules[" + std::to_string(i) + "]";
+    const nlohmann::json& r = v[i];
+    plan_keys(r, source, path, {"match", "layer", "scheme", "dtype"});
+    plan_rule rule;
+    rule.pattern = plan_text(plan_required(r, source, path, "match"), source, path + ".match");
+    try {
+      (void)name_pattern(rule.pattern);
+    } catch (const std::invalid_argument& e) {
+      throw std::invalid_argument(source + ": '" + path + ".match': " + e.what());
+    }
+    if (r.contains("layer")) rule.layer = plan_layer_template(r["layer"], source, path + ".layer");
+    if (r.contains("scheme")) rule.scheme = scheme_from_json(r["scheme"], source + ": '" + path + ".scheme'");
+    if (r.contains("dtype")) rule.element = plan_element(r["dtype"], source, path + ".dtype");
+    if (!rule.layer && !rule.scheme && !rule.element) {
+      throw std::invalid_argument(source + ": '" + path + "' sets nothing, expected \"layer\", \"scheme\" or \"dtype\"");
+    }
+    rules.push_back(std::move(rule));
+  }
+  return rules;
+}
+
+}  // namespace detail
+
 /// A plan (and its seed) from a parsed JSON document; `source` names it in messages.
-/// `extra` are further keys a parameter may carry (a manifest's records).
+/// `extra` are further keys a parameter may carry (a manifest's records). With "rules"
+/// (model/rules.hpp) a parameter may leave out its layer (then it gives its "shape"),
+/// its scheme and its dtype, and the most specific matching rule gives each.
 inline model_plan plan_from_json(const nlohmann::json& doc, const std::string& source, std::uint64_t* seed,
-                                 const std::vector<std::string>& top_keys = {"format", "seed", "parameters"},
+                                 const std::vector<std::string>& top_keys = {"format", "seed", "rules", "parameters"},
                                  const std::vector<std::string>& extra = {}) {
   using namespace detail;
   plan_keys(doc, source, "(top)", top_keys);
@@ -221,35 +307,66 @@ inline model_plan plan_from_json(const nlohmann::json& doc, const std::string& s
     if (!doc["seed"].is_number_unsigned()) plan_fail(source, "seed", doc["seed"], "a whole number from 0 to 2^64 - 1");
     *seed = doc["seed"].get<std::uint64_t>();
   }
+  const bool with_rules = doc.contains("rules");
+  const std::vector<plan_rule> rules = with_rules ? plan_rules(doc["rules"], source) : std::vector<plan_rule>{};
   const nlohmann::json& params = plan_required(doc, source, "(top)", "parameters");
   if (!params.is_array() || params.empty()) plan_fail(source, "parameters", params, "a non-empty array of parameters");
   std::vector<std::string> keys{"name", "dtype", "shape", "layer", "scheme"};
   keys.insert(keys.end(), extra.begin(), extra.end());
-  model_plan plan;
+  std::vector<parameter_request> requests;
   std::set<std::string> names;
   for (std::size_t i = 0; i < params.size(); ++i) {
     const std::string path = "parameters[" + std::to_string(i) + "]";
     const nlohmann::json& p = params[i];
     plan_keys(p, source, path, keys);
-    model_parameter mp;
-    mp.name = plan_text(plan_required(p, source, path, "name"), source, path + ".name");
-    if (mp.name.empty()) plan_fail(source, path + ".name", p["name"], "a non-empty name");
-    if (!names.insert(mp.name).second) plan_fail(source, path + ".name", p["name"], "a name not used before in the plan");
-    if (p.contains("dtype")) mp.element = plan_element(p["dtype"], source, path + ".dtype");
-    mp.layer = plan_layer(plan_required(p, source, path, "layer"), source, path + ".layer", &mp.gate_order);
-    mp.scheme = scheme_from_json(plan_required(p, source, path, "scheme"), source + ": '" + path + ".scheme'");
+    parameter_request r;
+    r.name = plan_text(plan_required(p, source, path, "name"), source, path + ".name");
+    if (r.name.empty()) plan_fail(source, path + ".name", p["name"], "a non-empty name");
+    if (!names.insert(r.name).second) plan_fail(source, path + ".name", p["name"], "a name not used before in the plan");
+    if (p.contains("dtype")) r.element = plan_element(p["dtype"], source, path + ".dtype");
+    if (!with_rules || p.contains("layer")) {
+      r.layer = plan_layer(plan_required(p, source, path, "layer"), source, path + ".layer", &r.gate_order);
+    }
+    if (!with_rules || p.contains("scheme")) {
+      r.scheme = scheme_from_json(plan_required(p, source, path, "scheme"), source + ": '" + path + ".scheme'");
+    }
     if (p.contains("shape")) {
-      const nlohmann::json want = mp.full_shape();
-      if (p["shape"] != want) plan_fail(source, path + ".shape", p["shape"], "the layer's shape " + want.dump());
+      const nlohmann::json& s = p["shape"];
+      if (r.layer) {
+        model_parameter mp;
+        mp.layer = *r.layer;
+        const nlohmann::json want = mp.full_shape();
+        if (s != want) plan_fail(source, path + ".shape", s, "the layer's shape " + want.dump());
+      } else {
+        if (!s.is_array() || s.empty()) plan_fail(source, path + ".shape", s, "an array of 1 to 5 positive sizes");
+        for (std::size_t d = 0; d < s.size(); ++d) r.shape.push_back(plan_size(s[d], source, path + ".shape[" + std::to_string(d) + "]"));
+      }
+    } else if (!r.layer) {
+      throw std::invalid_argument(source + ": '" + path + "' has neither \"layer\" nor \"shape\", expected its shape "
+                                  "(a rule gives the layer kind) or its full layer");
     }
-    try {
-      detail::check_parameter(mp);
-    } catch (const std::invalid_argument& e) {
-      throw std::invalid_argument(source + ": '" + path + "': " + e.what());
+    if (!with_rules) {
+      model_parameter mp;
+      mp.name = r.name;
+      mp.layer = *r.layer;
+      mp.gate_order = r.gate_order;
+      mp.scheme = *r.scheme;
+      if (r.element) mp.element = *r.element;
+      try {
+        detail::check_parameter(mp);
+      } catch (const std::invalid_argument& e) {
+        throw std::invalid_argument(source + ": '" + path + "': " + e.what());
+      }
     }
-    plan.parameters.push_back(std::move(mp));
+    requests.push_back(std::move(r));
   }
-  return plan;
+  try {
+    return apply_rules(requests, rules);
+  } catch (const std::invalid_argument& e) {
+    const std::string m = e.what();
+    if (m.rfind(source, 0) == 0) throw;
+    throw std::invalid_argument(source + ": " + m);
+  }
 }
 
 /// Parses JSON text, refusing repeated keys (nlohmann would keep the last one silently).
