@@ -14,6 +14,6 @@ set(CPACK_DEBIAN_PACKAGE_SECTION libdevel)
 set(CPACK_DEBIAN_FILE_NAME DEB-DEFAULT)
 set(CPACK_DEBIAN_PACKAGE_SHLIBDEPS ON)
 # The adapters' components need these only when a user asks for them.
-set(CPACK_DEBIAN_PACKAGE_SUGGESTS "libeigen3-dev, libxtensor-dev")
+set(CPACK_DEBIAN_PACKAGE_SUGGESTS "libeigen3-dev, libxtensor-dev, zlib1g-dev")
 set(CPACK_RESOURCE_FILE_LICENSE ${PROJECT_SOURCE_DIR}/LICENSE)
 include(CPack)

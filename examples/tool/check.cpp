@@ -25,19 +25,6 @@ namespace {
 
 using json = nlohmann::json;
 
-// The tolerance on Q Q^T = gain^2 I: the orthogonal schemes' cross-build agreement
-// (1e-8 of the gain, README) for f64, and a few units of the element type's rounding
-// for the narrower types (each entry carries a relative rounding error of half an ulp).
-double orthogonal_tolerance(npy_type t) {
-  switch (t) {
-    case npy_type::f64: return 1e-8;
-    case npy_type::f32: return 1e-5;
-    case npy_type::f16: return 4e-3;
-    case npy_type::bf16: return 3e-2;
-  }
-  return 1e-5;
-}
-
 // The deterministic schemes are checked value by value against a fresh fill.
 template <class E>
 std::vector<double> regenerate(const any_scheme& scheme, const std::vector<std::uint64_t>& global, const weight_info& w) {

@@ -83,8 +83,9 @@ int main(int argc, char** argv) {
                "  draw   write a scheme's values for a parameter to a .npy file\n"
                "  check  audit a .npy weight file (symmetry, --expect, --identify)\n"
                "  plan   predict (and --measure) variance through a layer stack\n"
-               "  assemble  write a whole model plan into one .safetensors file and its manifest\n"
-               "  verify    check a .safetensors checkpoint against a manifest, tensor by tensor",
+               "  assemble  write a whole model plan into one .safetensors or .npz file and its manifest\n"
+               "  verify    check a checkpoint against a manifest exactly, tensor by tensor\n"
+               "  audit     audit every tensor of a checkpoint against a plan or manifest, statistically",
                "kindling"};
   app.require_subcommand(1);
 
@@ -152,11 +153,29 @@ int main(int argc, char** argv) {
   add(assemble_cmd, assemble_seed, "Seed, 0 to 2^64 - 1 (default: the plan's \"seed\", else 0)");
   assemble_cmd->add_option("-o,--output", assemble.output, "Output .safetensors file")->required();
   assemble_cmd->add_option("--manifest", assemble.manifest, "Output manifest .json (default: OUTPUT.manifest.json)");
+  assemble_cmd->add_flag("--compress", assemble.compress, "Deflate the .npz members (as np.savez_compressed); .npz only");
+  integer_option assemble_threads{"--threads", 1, max_threads, {}, nullptr};
+  add(assemble_cmd, assemble_threads, "Threads computing the values (default 1; the values do not depend on it)");
 
   verify_options verify;
-  CLI::App* verify_cmd = app.add_subcommand("verify", "Check a .safetensors checkpoint against a manifest exactly");
-  verify_cmd->add_option("FILE", verify.file, "The .safetensors file")->required();
+  CLI::App* verify_cmd = app.add_subcommand("verify", "Check a .safetensors or .npz checkpoint against a manifest exactly");
+  verify_cmd->add_option("FILE", verify.file, "The .safetensors or .npz file")->required();
   verify_cmd->add_option("--manifest", verify.manifest, "The manifest .json that assemble wrote")->required();
+
+  audit_command_options audit;
+  integer_option audit_threads{"--threads", 1, max_threads, {}, nullptr};
+  CLI::App* audit_cmd = app.add_subcommand(
+      "audit", "Audit every tensor of a .safetensors or .npz checkpoint against the scheme its plan or manifest names");
+  audit_cmd->add_option("FILE", audit.file, "The .safetensors or .npz file")->required();
+  audit_cmd->add_option("--plan", audit.plan, "The model plan .json the file was drawn from");
+  audit_cmd->add_option("--manifest", audit.manifest, "Or the manifest .json that assemble wrote");
+  audit_cmd->add_option("--alpha", audit.alpha,
+                        "False-alarm rate of the whole audit on a correct file, in (0, 1); default 0.001, "
+                        "split evenly over the statistical reports (Bonferroni)");
+  audit_cmd->add_flag("--uncorrected", audit.uncorrected,
+                      "Run each statistical report at --alpha itself (no Bonferroni correction)");
+  audit_cmd->add_flag("--json", audit.json, "Print the results as JSON");
+  add(audit_cmd, audit_threads, "Tensors audited at once (default 1)");
 
   try {
     app.parse(argc, argv);
@@ -169,13 +188,19 @@ int main(int argc, char** argv) {
                         : check_cmd->parsed()    ? "check"
                         : assemble_cmd->parsed() ? "assemble"
                         : verify_cmd->parsed()   ? "verify"
+                        : audit_cmd->parsed()    ? "audit"
                                                  : "plan";
   try {
     if (assemble_cmd->parsed()) {
       assemble.seed = assemble_seed.get();
+      assemble.threads = static_cast<std::size_t>(assemble_threads.get().value_or(assemble.threads));
       return run_assemble(assemble);
     }
     if (verify_cmd->parsed()) return run_verify(verify);
+    if (audit_cmd->parsed()) {
+      audit.threads = static_cast<std::size_t>(audit_threads.get().value_or(audit.threads));
+      return run_audit(audit);
+    }
     if (draw_cmd->parsed()) {
       draw_flags.into(draw.scheme);
       draw.fan_in = draw_fan_in.get();
@@ -215,6 +240,7 @@ int main(int argc, char** argv) {
         : check_cmd->parsed() ? "reading FILE '" + check.file + "'; expected a smaller file, or more free memory"
         : assemble_cmd->parsed() ? "for PLAN '" + assemble.plan + "'; expected smaller parameters, or more free memory"
         : verify_cmd->parsed()   ? "reading --manifest '" + verify.manifest + "'; expected a smaller manifest"
+        : audit_cmd->parsed()    ? "auditing FILE '" + audit.file + "'; expected smaller tensors, fewer --threads, or more free memory"
                               : "for SPEC '" + (plan.spec.empty() ? std::string("(built-in)") : plan.spec) +
                                    "'" + (plan.measure ? " with --batch " + std::to_string(plan.batch) : std::string()) +
                                    "; expected a smaller network" + (plan.measure ? " or --batch" : "");

@@ -100,6 +100,19 @@ inline void check_fits_element(const scheme_arguments& a, const std::string& dty
   if (a.stddev && !(std::fabs(*a.stddev) * spread <= top)) refuse("--std", *a.stddev, "most values would be infinite");
 }
 
+/// The tolerance on Q Q^T = gain^2 I: the orthogonal schemes' cross-build agreement
+/// (1e-8 of the gain, README) for f64, and a few units of the element type's rounding
+/// for the narrower types (each entry carries a relative rounding error of half an ulp).
+inline double orthogonal_tolerance(element_kind t) {
+  switch (t) {
+    case element_kind::f64: return 1e-8;
+    case element_kind::f32: return 1e-5;
+    case element_kind::f16: return 4e-3;
+    case element_kind::bf16: return 3e-2;
+  }
+  return 1e-5;
+}
+
 /// Whether the scheme divides by a fan (and so needs fans).
 inline bool uses_fans(const any_scheme& s) {
   return std::visit([](const auto& sc) { return sc.name() == "fan-scaled" || find_scheme_entry(sc.name())->uses_fans; }, s);

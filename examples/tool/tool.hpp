@@ -67,13 +67,25 @@ struct plan_options {
 struct assemble_options {
   std::string plan;                    // a model plan .json (kindling/io/manifest.hpp)
   std::optional<std::uint64_t> seed;   // overrides the plan's "seed"
-  std::string output;                  // the .safetensors file
+  std::string output;                  // the .safetensors file, or .npz
   std::string manifest;                // "" = output + ".manifest.json"
+  bool compress = false;               // .npz only: deflate the members
+  std::size_t threads = 1;
 };
 
 struct verify_options {
-  std::string file;                    // the .safetensors checkpoint
+  std::string file;                    // the .safetensors or .npz checkpoint
   std::string manifest;
+};
+
+struct audit_command_options {
+  std::string file;                    // the .safetensors or .npz checkpoint
+  std::string plan;                    // a model plan .json, or
+  std::string manifest;                // a manifest (exactly one of the two)
+  double alpha = 1e-3;                 // family-wise false-alarm rate of the whole audit
+  bool uncorrected = false;            // each statistical report at alpha (no Bonferroni)
+  bool json = false;
+  std::size_t threads = 1;
 };
 
 /// The memory a run may plan to use: draw and plan estimate their peak before
@@ -92,6 +104,7 @@ int run_check(const check_options& o);
 int run_plan(const plan_options& o);
 int run_assemble(const assemble_options& o);
 int run_verify(const verify_options& o);
+int run_audit(const audit_command_options& o);
 
 // ---- shared helpers (common.cpp) -----------------------------------------------------
 

@@ -35,6 +35,7 @@ cmake -S "$here/find_package" -B "$work/fp" -DCMAKE_PREFIX_PATH="$work/prefix" >
 cmake --build "$work/fp" -j"$jobs" >/dev/null
 "$work/fp/consumer"
 "$work/fp/consumer_eigen"
+(cd "$work/fp" && ./consumer_npz)
 
 # pkg-config: compile the core consumer with the flags the .pc file gives.
 PKG_CONFIG_PATH="$work/prefix/share/pkgconfig" pkg-config --exists kindling
@@ -84,6 +85,7 @@ else
   cmake --build "$work/deb-fp" -j"$jobs" >/dev/null
   "$work/deb-fp/consumer"
   "$work/deb-fp/consumer_eigen"
+  (cd "$work/deb-fp" && ./consumer_npz)
   # shellcheck disable=SC2046
   c++ -std=c++20 "$here/find_package/consumer.cpp" -o "$work/deb_pc_consumer" \
     $(env -u PKG_CONFIG_PATH pkg-config --cflags --libs kindling)

@@ -14,13 +14,27 @@ Usage: check_models.py KINDLING SOURCE_DIR WORK_DIR
   refuses it (exit 1, naming the tensor) once one byte is flipped.
 - Bad input is exit 2 naming the key: a plan with a repeated name, a manifest of
   another format version.
+- The same plan written with name-pattern rules (examples/models/conveyor_belt_rules.json)
+  gives the same manifest, digests included.
+- .npz (a zip of .npy members, PKWARE's APPNOTE): `kindling assemble -o x.npz`, stored and
+  --compress (deflated), read by np.load with the same values as the safetensors file;
+  files written by np.savez and np.savez_compressed pass `kindling verify` and `kindling
+  audit`; an archive whose sizes lie, a truncated central directory and a member that is
+  not .npy are exit 2 naming what is wrong.
+- `kindling audit`: the correct checkpoint passes (Bonferroni over the statistical
+  reports, said in the output); one tensor drawn with the wrong fan fails, named; --json;
+  --threads gives the same bytes (assemble) and the same table (audit); the progress line
+  appears on a terminal only.
 """
+import hashlib
 import json
 import os
+import pty
 import shutil
 import struct
 import subprocess
 import sys
+import zipfile
 
 import numpy as np
 
@@ -142,6 +156,174 @@ with open("short.safetensors", "wb") as f:
     f.write(struct.pack("<Q", 1000) + b"{}")
 code, _, err = run("verify", "short.safetensors", "--manifest", "belt.json")
 expect(code == 2 and "header length 1000 runs past the end" in err, f"a short file: {code} {err!r}")
+
+
+# ---- the same plan written with rules --------------------------------------------------
+RULES = os.path.join(SOURCE, "examples", "models", "conveyor_belt_rules.json")
+code, out, err = run("assemble", RULES, "-o", "rules.safetensors", "--manifest", "rules.json")
+expect(code == 0, f"assemble of the rules plan: exit {code}, {err!r}")
+expect(json.load(open("rules.json")) == manifest, "the rules plan's manifest differs from the full plan's")
+bad = json.load(open(RULES))
+bad["rules"].append({"match": "**.bais", "scheme": "zeros"})
+json.dump(bad, open("typo.json", "w"))
+code, _, err = run("assemble", "typo.json", "-o", "typo.safetensors")
+expect(code == 2 and "rules[9] '**.bais' matches no parameter" in err, f"a pattern matching nothing: {code} {err!r}")
+bad = json.load(open(RULES))
+bad["rules"].append({"match": "gru.w*", "dtype": "f64"})  # 5 literal characters and one '*' each
+bad["rules"].append({"match": "*.w_hh", "dtype": "f16"})
+json.dump(bad, open("tie.json", "w"))
+code, _, err = run("assemble", "tie.json", "-o", "tie.safetensors")
+expect(code == 2 and "parameter 'gru.w_hh': rules[9] 'gru.w*' and rules[10] '*.w_hh' both set its element type" in err
+       and "equally specific" in err, f"a tie: {code} {err!r}")
+bad = json.load(open(RULES))
+bad["parameters"].append({"name": "tail.scale", "shape": [4]})
+json.dump(bad, open("nomatch.json", "w"))
+code, _, err = run("assemble", "nomatch.json", "-o", "nomatch.safetensors")
+expect(code == 2 and "parameter 'tail.scale': no rule matches it" in err, f"an unmatched parameter: {code} {err!r}")
+
+
+# ---- .npz ------------------------------------------------------------------------------
+def npz_values(path):
+    """np.load's arrays as (dtype name, array), bf16 members as their bit patterns."""
+    out = {}
+    with np.load(path) as z:
+        for k in z.files:
+            a = z[k]
+            if a.dtype.names == ("bf16",):
+                out[k] = ("BF16", a["bf16"])
+            else:
+                out[k] = ({"float16": "F16", "float32": "F32", "float64": "F64"}[a.dtype.name], a)
+    return out
+
+
+for flag, method in (([], zipfile.ZIP_STORED), (["--compress"], zipfile.ZIP_DEFLATED)):
+    code, out, err = run("assemble", PLAN, "-o", "belt.npz", "--manifest", "belt_npz.json", *flag)
+    expect(code == 0, f"assemble -o belt.npz {flag}: exit {code}, {err!r}")
+    with zipfile.ZipFile("belt.npz") as z:
+        expect(z.testzip() is None, f"zipfile finds a bad CRC in belt.npz {flag}")
+        expect(all(i.compress_type == method for i in z.infolist()), f"belt.npz {flag}: methods {[i.compress_type for i in z.infolist()]}")
+        expect(sorted(z.namelist()) == sorted(n + ".npy" for n in t), f"belt.npz members {z.namelist()}")
+    z = npz_values("belt.npz")
+    for name, (dtype, a) in t.items():
+        expect(name in z and z[name][0] == dtype and z[name][1].shape == a.shape and np.array_equal(z[name][1], a),
+               f"belt.npz {flag}: {name} differs from the safetensors file")
+    m = json.load(open("belt_npz.json"))
+    expect([r["digest"] for r in m["parameters"]] == [r["digest"] for r in manifest["parameters"]],
+           f"belt.npz {flag}: manifest digests differ from the safetensors ones")
+    code, out, err = run("verify", "belt.npz", "--manifest", "belt.json")
+    expect(code == 0 and "all 9 tensors match" in out, f"verify belt.npz {flag}: {code} {out!r} {err!r}")
+compressed_size = os.path.getsize("belt.npz")
+
+# Our reader on NumPy's files: np.savez and np.savez_compressed of the same arrays.
+arrays = {name: (a.view(np.dtype([("bf16", "<u2")])).reshape(a.shape) if dtype == "BF16" else a)
+          for name, (dtype, a) in t.items()}
+np.savez("numpy_stored.npz", **arrays)
+np.savez_compressed("numpy_deflated.npz", **arrays)
+for f in ("numpy_stored.npz", "numpy_deflated.npz"):
+    code, out, err = run("verify", f, "--manifest", "belt.json")
+    expect(code == 0 and "all 9 tensors match" in out, f"verify {f}: {code} {out!r} {err!r}")
+    code, out, err = run("audit", f, "--manifest", "belt.json")
+    expect(code == 0 and "all 9 tensors passed" in out, f"audit {f}: {code} {out!r} {err!r}")
+
+# Bad archives: exit 2, naming what is wrong.
+raw = open("numpy_stored.npz", "rb").read()
+end = raw.rindex(b"PK\x05\x06")
+count, dir_size, dir_at = struct.unpack("<HII", raw[end + 10:end + 20])
+first = raw[dir_at:dir_at + 46]
+name_len = struct.unpack("<H", first[28:30])[0]
+first_name = raw[dir_at + 46:dir_at + 46 + name_len].decode()
+lie = bytearray(raw)
+csize = struct.unpack("<I", raw[dir_at + 20:dir_at + 24])[0]
+struct.pack_into("<II", lie, dir_at + 20, csize + 5000, csize + 5000)
+open("lie.npz", "wb").write(lie)
+code, _, err = run("verify", "lie.npz", "--manifest", "belt.json")
+expect(code == 2 and f"member '{first_name}'" in err and "lies about its sizes" in err, f"a lying zip: {code} {err!r}")
+cut = bytearray(raw[:end - 20] + raw[end:])  # the last 20 bytes of the directory gone
+struct.pack_into("<I", cut, end - 20 + 12, dir_size - 20)
+open("cut.npz", "wb").write(cut)
+code, _, err = run("audit", "cut.npz", "--manifest", "belt.json")
+expect(code == 2 and "central directory is truncated" in err, f"a truncated central directory: {code} {err!r}")
+with zipfile.ZipFile("notes.npz", "w") as z:
+    z.writestr("head.weight.npy", open("d.npy", "rb").read())
+    z.writestr("notes.txt", "not an array")
+code, _, err = run("verify", "notes.npz", "--manifest", "belt.json")
+expect(code == 2 and "member 'notes.txt' is not a .npy file" in err, f"a member that is not .npy: {code} {err!r}")
+code, _, err = run("assemble", PLAN, "-o", "x.safetensors", "--compress")
+expect(code == 2 and "--compress applies to .npz output only" in err, f"--compress to safetensors: {code} {err!r}")
+
+
+# ---- audit -----------------------------------------------------------------------------
+code, out, err = run("audit", "belt.safetensors", "--plan", PLAN)
+expect(code == 0 and "all 9 tensors passed" in out and "Bonferroni: alpha 0.001 for the whole file" in out,
+       f"audit of the correct file: {code} {out!r} {err!r}")
+for name in t:
+    expect(any(line.startswith(name + " ") and " passed " in line for line in out.splitlines()), f"audit row of {name}: {out!r}")
+# One tensor drawn with the wrong fan (fan-in 80 instead of the grouped convolution's 40).
+code, _, err = run("draw", "--scheme", "he-normal", "--shape", "32x8x5", "--fan-in", "80", "--fan-out", "80",
+                   "--seed", seed, "--name", "front.conv2.weight", "-o", "wrong.npy")
+expect(code == 0, f"draw of the wrong tensor: {err!r}")
+wrong = dict(t)
+wrong["front.conv2.weight"] = ("F32", np.load("wrong.npy"))
+write_safetensors("wrong.safetensors", wrong)
+code, out, err = run("audit", "wrong.safetensors", "--manifest", "belt.json")
+rows = {line.split()[0]: line for line in out.splitlines()[2:] if line and not line.startswith(("audited", "FAILED"))}
+expect(code == 1 and "FAILED wrong.safetensors: 1 of 9 tensors failed: front.conv2.weight" in out,
+       f"audit of a wrong fan: {code} {out!r} {err!r}")
+expect(" FAILED " in rows.get("front.conv2.weight", ""),
+       f"the wrong tensor's row: {rows.get('front.conv2.weight')!r}")
+expect(all(" passed " in r for n, r in rows.items() if n != "front.conv2.weight"), f"other rows: {out!r}")
+code, out, err = run("audit", "wrong.safetensors", "--manifest", "belt.json", "--json")
+j = json.loads(out) if code == 1 else {}
+expect(code == 1 and j.get("passed") is False and j.get("correction") == "bonferroni"
+       and [x["name"] for x in j["tensors"] if not x["passed"]] == ["front.conv2.weight"]
+       and abs(j["alpha_each"] - 0.001 / j["statistical_reports"]) < 1e-18,
+       f"audit --json: {code} {out[:300]!r} {err!r}")
+code, out1, _ = run("audit", "wrong.safetensors", "--manifest", "belt.json", "--threads", "3")
+code2, out2, _ = run("audit", "wrong.safetensors", "--manifest", "belt.json")
+expect(code == 1 and out1 == out2, "audit --threads 3 differs from one thread")
+code, _, err = run("audit", "belt.safetensors", "--plan", PLAN, "--manifest", "belt.json")
+expect(code == 2 and "both --plan and --manifest" in err, f"audit with both: {code} {err!r}")
+code, _, err = run("audit", "belt.safetensors")
+expect(code == 2 and "neither --plan nor --manifest" in err, f"audit with neither: {code} {err!r}")
+code, _, err = run("audit", "belt.safetensors", "--plan", PLAN, "--alpha", "1.5")
+expect(code == 2 and "--alpha 1.5" in err, f"audit --alpha 1.5: {code} {err!r}")
+
+
+# ---- threads and the progress line -----------------------------------------------------
+def digest(path):
+    return hashlib.sha256(open(path, "rb").read()).hexdigest()
+
+
+code, _, err = run("assemble", PLAN, "-o", "t4.npz", "--manifest", "t4.json", "--threads", "4", "--compress")
+expect(code == 0 and digest("t4.npz") == digest("belt.npz"), f"assemble --threads 4: {code} {err!r}")
+code, _, err = run("assemble", PLAN, "-o", "t0.npz", "--threads", "0")
+expect(code == 2 and "--threads" in err, f"assemble --threads 0: {code} {err!r}")
+
+
+def run_on_terminal(*args):
+    """Runs the tool with stderr on a pseudo-terminal; returns (exit code, what it wrote there)."""
+    leader, follower = pty.openpty()
+    p = subprocess.Popen([KINDLING, *args], stdout=subprocess.DEVNULL, stderr=follower)
+    os.close(follower)
+    seen = b""
+    while True:
+        try:
+            chunk = os.read(leader, 4096)
+        except OSError:
+            break
+        if not chunk:
+            break
+        seen += chunk
+    os.close(leader)
+    return p.wait(timeout=120), seen.decode(errors="replace")
+
+
+code, seen = run_on_terminal("assemble", PLAN, "-o", "tty.safetensors")
+expect(code == 0 and "assemble: " in seen and "\r" in seen and "of 9 (" in seen, f"progress on a terminal: {code} {seen!r}")
+code, seen = run_on_terminal("audit", "belt.safetensors", "--plan", PLAN)
+expect(code == 0 and "audit: " in seen and "tensors audited" in seen, f"audit progress on a terminal: {code} {seen!r}")
+code, out, err = run("assemble", PLAN, "-o", "pipe.safetensors")
+expect(code == 0 and err == "", f"no progress line when stderr is not a terminal: {err!r}")
 
 if failures:
     print("\n".join(failures))

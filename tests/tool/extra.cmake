@@ -6,6 +6,10 @@
 if(TARGET kindling_test_tool)
   find_package(nlohmann_json CONFIG REQUIRED)
   target_link_libraries(kindling_test_tool PRIVATE nlohmann_json::nlohmann_json)
+  if(NOT TARGET kindling_npz)
+    message(FATAL_ERROR "kindling's tests need zlib for .npz files (Debian zlib1g-dev)")
+  endif()
+  target_link_libraries(kindling_test_tool PRIVATE kindling_npz)  # npz.cpp
 endif()
 if(KINDLING_BUILD_EXAMPLES)
   foreach(_kindling_tool_case

@@ -44,6 +44,7 @@
 
 #include <cstdint>
 #include <cstdio>
+#include <functional>
 #include <map>
 #include <memory>
 #include <optional>
@@ -458,27 +459,44 @@ inline nlohmann::json manifest_record(const model_parameter& p) {
   return r;
 }
 
-/// Writes every parameter of `plan` under `seed` into one safetensors file at `path`
-/// (streamed; tensors in plan order, named as the parameters) and returns the manifest.
-/// The plan is checked whole before anything is written.
-inline nlohmann::json write_model_safetensors(const model_plan& plan, std::uint64_t seed, const std::string& path,
-                                              const std::string& what = "output") {
+/// How write_model computes and reports.
+struct model_write_options {
+  std::size_t threads = 1;  // threads computing each block of values (the bits do not depend on it)
+  /// Called after each chunk written: bytes of values written so far, of `total`, and
+  /// the index of the parameter being written.
+  std::function<void(std::uint64_t done, std::uint64_t total, std::size_t parameter)> progress;
+};
+
+/// Writes every parameter of `plan` under `seed` through `write`, which receives the
+/// tensors as sources (safetensors_source: name, dtype, shape and a fill callback, in
+/// plan order) and writes them into one file, e.g.
+///   write_model(plan, seed, [&](const std::vector<safetensors_source>& t) { write_npz(path, t); });
+/// Returns the manifest, with each parameter's byte count and the digest of the bytes
+/// the file received. The plan is checked whole before anything is written.
+template <class Write>
+nlohmann::json write_model(const model_plan& plan, std::uint64_t seed, Write&& write, const model_write_options& options = {}) {
   check_plan(plan);
+  if (options.threads == 0) throw std::invalid_argument("kindling::write_model: argument 'options.threads' = 0, expected at least 1");
   nlohmann::json records = nlohmann::json::array();
   std::vector<parameter_digest> digests(plan.parameters.size());
   std::vector<safetensors_source> sources;
+  std::uint64_t total = 0;
+  auto done = std::make_shared<std::uint64_t>(0);
   for (std::size_t i = 0; i < plan.parameters.size(); ++i) {
     const model_parameter& p = plan.parameters[i];
     records.push_back(manifest_record(p));
-    auto bytes = std::make_shared<parameter_bytes>(p, seed);
+    auto bytes = std::make_shared<parameter_bytes>(p, seed, std::uint64_t{1} << 22, options.threads);
+    total += bytes->size();
     sources.push_back({p.name, p.element, p.full_shape(),
-                       [bytes, &digests, i](std::uint64_t offset, char* out, std::size_t size) {
+                       [bytes, &digests, &options, &total, done, i](std::uint64_t offset, char* out, std::size_t size) {
                          bytes->read(offset, out, size);
                          digests[i].update(out, size);
+                         *done += size;
+                         if (options.progress) options.progress(*done, total, i);
                        }});
     records.back()["bytes"] = bytes->size();
   }
-  write_safetensors(path, sources, {{"written_by", "kindling"}}, what);
+  write(static_cast<const std::vector<safetensors_source>&>(sources));
   for (std::size_t i = 0; i < records.size(); ++i) records[i]["digest"] = digests[i].hex();
   return {{"format", "kindling-manifest"},
           {"format_version", manifest_format_version},
@@ -486,6 +504,19 @@ inline nlohmann::json write_model_safetensors(const model_plan& plan, std::uint6
           {"seed", seed},
           {"digest", {{"algorithm", "SipHash-2-4"}, {"key", {"6b696e646c696e67", "6469676573742d31"}}}},
           {"parameters", records}};
+}
+
+/// Writes every parameter of `plan` under `seed` into one safetensors file at `path`
+/// (streamed; tensors in plan order, named as the parameters) and returns the manifest.
+/// The plan is checked whole before anything is written.
+inline nlohmann::json write_model_safetensors(const model_plan& plan, std::uint64_t seed, const std::string& path,
+                                              const std::string& what = "output", const model_write_options& options = {}) {
+  return write_model(
+      plan, seed,
+      [&](const std::vector<safetensors_source>& tensors) {
+        write_safetensors(path, tensors, {{"written_by", "kindling"}}, what);
+      },
+      options);
 }
 
 /// The plan and seed a manifest records; a manifest of another format version, or of

@@ -440,26 +440,14 @@ inline npy_array read_npy(const std::string& path, std::uint64_t max_elements = 
   return parse_npy(file, source);
 }
 
-/// The bytes of a .npy file holding `a`: version 1.0 when the header fits its 16-bit
-/// length, else 2.0; the preamble padded with spaces to a multiple of 64 bytes, as NumPy
-/// does, so the data are aligned.
-inline std::string encode_npy(const npy_array& a) {
-  std::uint64_t count = 1;
-  for (std::uint64_t e : a.shape) {
-    if (e != 0 && count > std::numeric_limits<std::uint64_t>::max() / e) {
-      throw std::length_error("kindling::encode_npy: argument 'a.shape' = " + detail::npy_shape_text(a.shape) +
-                              " has more elements than fit in 64 bits");
-    }
-    count *= e;
-  }
-  if (count > std::numeric_limits<std::uint64_t>::max() / 8 || a.bytes.size() != count * npy_type_size(a.type)) {
-    throw std::length_error("kindling::encode_npy: argument 'a.bytes' holds " + std::to_string(a.bytes.size()) +
-                            " bytes, expected " + std::to_string(count) + " elements of " + npy_type_name(a.type));
-  }
-  const char* descr = a.type == npy_type::f16 ? "'<f2'" : a.type == npy_type::f32 ? "'<f4'"
-                      : a.type == npy_type::f64 ? "'<f8'" : "[('bf16', '<u2')]";
+/// The preamble and header of a .npy file holding `shape` of `type` (the data follow):
+/// version 1.0 when the header fits its 16-bit length, else 2.0; padded with spaces to a
+/// multiple of 64 bytes, as NumPy does, so the data are aligned.
+inline std::string encode_npy_header(npy_type type, const std::vector<std::uint64_t>& shape) {
+  const char* descr = type == npy_type::f16 ? "'<f2'" : type == npy_type::f32 ? "'<f4'"
+                      : type == npy_type::f64 ? "'<f8'" : "[('bf16', '<u2')]";
   std::string dict = std::string("{'descr': ") + descr + ", 'fortran_order': False, 'shape': " +
-                     detail::npy_shape_text(a.shape) + ", }";
+                     detail::npy_shape_text(shape) + ", }";
   int major = 1;
   std::size_t prefix = 10;
   if (dict.size() + 1 + 64 > 65535) {
@@ -475,6 +463,24 @@ inline std::string encode_npy(const npy_array& a) {
   const auto n = static_cast<std::uint32_t>(dict.size());
   for (std::size_t k = 0; k < prefix - 8; ++k) out += static_cast<char>((n >> (8 * k)) & 0xffu);
   out += dict;
+  return out;
+}
+
+/// The bytes of a .npy file holding `a` (encode_npy_header, then the data).
+inline std::string encode_npy(const npy_array& a) {
+  std::uint64_t count = 1;
+  for (std::uint64_t e : a.shape) {
+    if (e != 0 && count > std::numeric_limits<std::uint64_t>::max() / e) {
+      throw std::length_error("kindling::encode_npy: argument 'a.shape' = " + detail::npy_shape_text(a.shape) +
+                              " has more elements than fit in 64 bits");
+    }
+    count *= e;
+  }
+  if (count > std::numeric_limits<std::uint64_t>::max() / 8 || a.bytes.size() != count * npy_type_size(a.type)) {
+    throw std::length_error("kindling::encode_npy: argument 'a.bytes' holds " + std::to_string(a.bytes.size()) +
+                            " bytes, expected " + std::to_string(count) + " elements of " + npy_type_name(a.type));
+  }
+  std::string out = encode_npy_header(a.type, a.shape);
   out.append(reinterpret_cast<const char*>(a.bytes.data()), a.bytes.size());
   return out;
 }

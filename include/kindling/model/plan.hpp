@@ -161,8 +161,11 @@ void initialize_model(const model_plan& plan, std::uint64_t seed, Storage&& stor
 /// reading a parameter front to back computes each value once with bounded memory.
 class parameter_bytes {
  public:
-  parameter_bytes(const model_parameter& p, std::uint64_t seed, std::uint64_t block_bytes = std::uint64_t{1} << 22)
-      : p_(p), seed_(seed), shape_(p.full_shape()), item_(element_kind_bytes(p.element)) {
+  /// `threads` > 1 computes each block on a thread_executor of that many threads (the
+  /// same bits: the values do not depend on the executor).
+  parameter_bytes(const model_parameter& p, std::uint64_t seed, std::uint64_t block_bytes = std::uint64_t{1} << 22,
+                  std::size_t threads = 1)
+      : p_(p), seed_(seed), shape_(p.full_shape()), item_(element_kind_bytes(p.element)), threads_(threads) {
     row_elements_ = 1;
     for (std::size_t d = 1; d < shape_.size(); ++d) row_elements_ *= shape_[d];
     rows_per_block_ = std::max<std::uint64_t>(1, block_bytes / (row_elements_ * item_));
@@ -191,7 +194,8 @@ class parameter_bytes {
     extent[0] = rows;
     const strided_view<E> v(values.data(), shape(shape_.begin(), shape_.end()),
                             region(shape(at.begin(), at.end()), shape(extent.begin(), extent.end())));
-    initialize_parameter(p_, seed_, v);
+    if (threads_ > 1) initialize_parameter(p_, seed_, v, thread_executor(threads_));
+    else initialize_parameter(p_, seed_, v);
     block_.resize(values.size() * sizeof(E));
     std::memcpy(block_.data(), values.data(), block_.size());  // little-endian host (checked by the writers)
   }
@@ -210,6 +214,7 @@ class parameter_bytes {
   std::uint64_t seed_;
   std::vector<std::uint64_t> shape_;
   std::uint64_t item_, row_elements_ = 1, rows_per_block_ = 1;
+  std::size_t threads_ = 1;
   std::uint64_t start_ = 0;
   std::vector<char> block_;
 };

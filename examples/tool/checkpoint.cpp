@@ -1,0 +1,87 @@
+// examples/tool/checkpoint.cpp: see checkpoint.hpp.
+#include "checkpoint.hpp"
+
+#include <algorithm>
+#include <cstdio>
+#include <stdexcept>
+
+#include <fcntl.h>
+#include <unistd.h>
+
+#include <kindling/io/npz.hpp>
+#include <kindling/io/safetensors.hpp>
+
+namespace kindling::tool {
+
+namespace {
+
+// Whether the file starts as a zip archive does: "PK" and a local header, an empty
+// archive's end record or a zip64 end record.
+bool starts_as_zip(const std::string& path) {
+  const int fd = ::open(path.c_str(), O_RDONLY | O_CLOEXEC);
+  if (fd < 0) return false;  // the reader says why
+  unsigned char head[4] = {0, 0, 0, 0};
+  const ssize_t n = ::read(fd, head, 4);
+  ::close(fd);
+  return n == 4 && head[0] == 'P' && head[1] == 'K' &&
+         ((head[2] == 3 && head[3] == 4) || (head[2] == 5 && head[3] == 6) || (head[2] == 6 && head[3] == 6));
+}
+
+}  // namespace
+
+checkpoint::checkpoint(const std::string& path, const std::string& what) {
+  if (starts_as_zip(path)) {
+    npz_ = std::make_unique<npz_reader>(path, what);
+    for (const npz_entry& e : npz_->entries()) tensors_.push_back({e.name, e.dtype, e.shape, e.data_bytes});
+  } else {
+    st_ = std::make_unique<safetensors_reader>(path, what);
+    for (const safetensors_entry& e : st_->index().tensors) tensors_.push_back({e.name, e.dtype, e.shape, e.end - e.begin});
+  }
+}
+
+checkpoint::~checkpoint() = default;
+
+const checkpoint::tensor* checkpoint::find(const std::string& name) const {
+  for (const tensor& t : tensors_) {
+    if (t.name == name) return &t;
+  }
+  return nullptr;
+}
+
+void checkpoint::read(const tensor& t, const std::function<void(const char*, std::size_t)>& consume) const {
+  if (npz_) {
+    npz_->read(*npz_->find(t.name), consume);
+    return;
+  }
+  const safetensors_entry& e = *st_->index().find(t.name);
+  std::vector<char> buffer(std::size_t{1} << 20);
+  for (std::uint64_t off = 0; off < t.bytes;) {
+    const auto n = static_cast<std::size_t>(std::min<std::uint64_t>(buffer.size(), t.bytes - off));
+    st_->read(e, off, buffer.data(), n);
+    consume(buffer.data(), n);
+    off += n;
+  }
+}
+
+progress_line::progress_line(std::string command) : command_(std::move(command)), active_(::isatty(2) == 1) {}
+
+progress_line::~progress_line() { clear(); }
+
+void progress_line::show(const std::string& text, bool force) {
+  if (!active_) return;
+  const auto now = std::chrono::steady_clock::now();
+  if (!force && shown_ && now - last_ < std::chrono::milliseconds(100)) return;
+  last_ = now;
+  shown_ = true;
+  std::fprintf(stderr, "\r\033[K%s: %s", command_.c_str(), text.c_str());
+  std::fflush(stderr);
+}
+
+void progress_line::clear() {
+  if (!active_ || !shown_) return;
+  std::fprintf(stderr, "\r\033[K");
+  std::fflush(stderr);
+  shown_ = false;
+}
+
+}  // namespace kindling::tool
