@@ -25,13 +25,21 @@ namespace {
 
 using json = nlohmann::json;
 
+// Where the file's values sit: the whole tensor (offset 0, extent = global), or the block
+// of --full-shape that draw --region wrote.
+struct placement {
+  std::vector<std::uint64_t> global, offset, extent;
+  bool whole() const { return global == extent; }
+  region part() const { return region(shape(offset.begin(), offset.end()), shape(extent.begin(), extent.end())); }
+};
+
 // The deterministic schemes are checked value by value against a fresh fill.
 template <class E>
-std::vector<double> regenerate(const any_scheme& scheme, const std::vector<std::uint64_t>& global, const weight_info& w) {
+std::vector<double> regenerate(const any_scheme& scheme, const placement& pl, const weight_info& w) {
   std::uint64_t n = 1;
-  for (std::uint64_t e : global) n *= e;
+  for (std::uint64_t e : pl.extent) n *= e;
   std::vector<E> values(static_cast<std::size_t>(n));
-  const strided_view<E> view(values.data(), shape(global.begin(), global.end()));
+  const strided_view<E> view(values.data(), shape(pl.global.begin(), pl.global.end()), pl.part());
   std::visit([&](const auto& sc) { initialize(view, w, sc, make_stream(0, "unused"), serial_executor{}); }, scheme);
   std::vector<double> out(values.size());
   for (std::size_t i = 0; i < values.size(); ++i) out[i] = element_traits<E>::to_double(values[i]);
@@ -39,13 +47,13 @@ std::vector<double> regenerate(const any_scheme& scheme, const std::vector<std::
 }
 
 audit_report exact_values(const npy_array& a, const std::vector<double>& x, const any_scheme& scheme,
-                          const std::vector<std::uint64_t>& global, const weight_info& w, const std::string& name) {
+                          const placement& pl, const weight_info& w, const std::string& name) {
   std::vector<double> want;
   switch (a.type) {
-    case npy_type::f32: want = regenerate<float>(scheme, global, w); break;
-    case npy_type::f64: want = regenerate<double>(scheme, global, w); break;
-    case npy_type::f16: want = regenerate<float16>(scheme, global, w); break;
-    case npy_type::bf16: want = regenerate<bfloat16>(scheme, global, w); break;
+    case npy_type::f32: want = regenerate<float>(scheme, pl, w); break;
+    case npy_type::f64: want = regenerate<double>(scheme, pl, w); break;
+    case npy_type::f16: want = regenerate<float16>(scheme, pl, w); break;
+    case npy_type::bf16: want = regenerate<bfloat16>(scheme, pl, w); break;
   }
   std::uint64_t wrong = 0, first = 0;
   for (std::size_t i = 0; i < x.size(); ++i) {
@@ -83,14 +91,15 @@ std::vector<E> as_elements(const npy_array& a) {
 }
 
 template <class Scheme>
-audit_report conformance_in_type(const npy_array& a, const std::vector<std::uint64_t>& global, const weight_info& w,
+audit_report conformance_in_type(const npy_array& a, const placement& pl, const weight_info& w,
                                  const Scheme& scheme, const check_options& o) {
   audit_options options;
   options.alpha = o.alpha;
   const auto run = [&](auto element) {
     using E = decltype(element);
     const std::vector<E> values = as_elements<E>(a);
-    return check_scheme(strided_view<const E>(values.data(), shape(global.begin(), global.end())), w, scheme, options);
+    return check_scheme(strided_view<const E>(values.data(), shape(pl.global.begin(), pl.global.end()), pl.part()), w,
+                        scheme, options);
   };
   switch (a.type) {
     case npy_type::f32: return run(float{});
@@ -102,15 +111,23 @@ audit_report conformance_in_type(const npy_array& a, const std::vector<std::uint
 }
 
 audit_report expect_report(const npy_array& a, const std::vector<double>& x, const check_options& o,
-                           const std::vector<std::uint64_t>& global, const weight_info& w) {
+                           const placement& pl, const weight_info& w) {
   const any_scheme scheme = make_scheme(o.expect);
   if (uses_fans(scheme) && (w.fans.fan_in == 0 || w.fans.fan_out == 0)) {
     throw std::invalid_argument("--expect '" + o.expect.scheme + "' needs fans, and the rank-1 shape " +
-                                shape_text(global) + " has none: give both --fan-in and --fan-out");
+                                shape_text(pl.global) + " has none: give both --fan-in and --fan-out");
   }
-  const strided_view<const double> v(x.data(), shape(global.begin(), global.end()));
+  const strided_view<const double> v(x.data(), shape(a.shape.begin(), a.shape.end()));
   const std::string& s = o.expect.scheme;
-  if (s == "zeros" || s == "constant" || s == "identity") return exact_values(a, x, scheme, global, w, s);
+  if (s == "identity" && !pl.whole() && o.region.empty()) {
+    throw std::invalid_argument("--expect identity depends on where the block sits: give --region as draw was given it");
+  }
+  if (s == "zeros" || s == "constant" || s == "identity") return exact_values(a, x, scheme, pl, w, s);
+  if (!pl.whole() && (s == "orthogonal" || s == "delta-orthogonal" || s == "sparse")) {
+    throw std::invalid_argument("--expect '" + s + "' checks the structure of the whole tensor, and FILE holds only a " +
+                                shape_text(a.shape) + " block of --full-shape " + shape_text(pl.global) +
+                                "; expected the whole tensor (draw it without --region)");
+  }
   if (s == "orthogonal") {
     return check_orthogonal(v, o.expect.gain.value_or(1.0), orthogonal_tolerance(a.type), w.layout);
   }
@@ -126,7 +143,7 @@ audit_report expect_report(const npy_array& a, const std::vector<double>& x, con
                       std::is_same<S, delta_orthogonal>::value || std::is_same<S, sparse>::value) {
           throw std::logic_error("unreachable");
         } else {
-          return conformance_in_type(a, global, w, sc, o);
+          return conformance_in_type(a, pl, w, sc, o);
         }
       },
       scheme);
@@ -201,9 +218,36 @@ int run_check(const check_options& o) {
   for (std::uint64_t e : a.shape) {
     if (e == 0) throw std::invalid_argument("'" + o.file + "' has shape " + shape_text(a.shape) + " with a size 0, expected a non-empty tensor");
   }
+  // A file that draw --region wrote holds a block of a larger tensor, whose shape (not the
+  // block's) gives the fans; the .npy header cannot record it, so --full-shape says it.
+  placement pl{a.shape, std::vector<std::uint64_t>(a.shape.size(), 0), a.shape};
+  if (!o.full_shape.empty()) {
+    pl.global = parse_shape(o.full_shape);
+    if (pl.global.size() != a.shape.size()) {
+      throw std::invalid_argument("--full-shape " + o.full_shape + " has rank " + std::to_string(pl.global.size()) +
+                                  ", and FILE '" + o.file + "' has shape " + shape_text(a.shape) + " of rank " +
+                                  std::to_string(a.shape.size()) + "; expected the same rank");
+    }
+    for (std::size_t d = 0; d < a.shape.size(); ++d) {
+      if (a.shape[d] > pl.global[d]) {
+        throw std::invalid_argument("--full-shape " + o.full_shape + " is smaller than FILE '" + o.file + "' (shape " +
+                                    shape_text(a.shape) + ") along axis " + std::to_string(d) +
+                                    "; expected the shape of the whole tensor the file is a block of");
+      }
+    }
+  } else if (!o.region.empty()) {
+    throw std::invalid_argument("--region '" + o.region + "' needs --full-shape: the shape of the whole tensor");
+  }
+  if (!o.region.empty()) {
+    parse_region(o.region, pl.global, &pl.offset, &pl.extent);
+    if (pl.extent != a.shape) {
+      throw std::invalid_argument("--region '" + o.region + "' is a " + shape_text(pl.extent) + " block, and FILE '" +
+                                  o.file + "' holds " + shape_text(a.shape) + "; expected the region draw wrote");
+    }
+  }
   weight_layout layout;
   std::string layout_name;
-  const fans f = resolve_fans(a.shape, o.layout, o.fan_in, o.fan_out, &layout, &layout_name);
+  const fans f = resolve_fans(pl.global, o.layout, o.fan_in, o.fan_out, &layout, &layout_name);
   const weight_info w{f, layout};
   if (o.identify && (f.fan_in == 0 || f.fan_out == 0)) {
     throw std::invalid_argument("--identify needs fans, and the rank-1 shape " + shape_text(a.shape) +
@@ -218,10 +262,15 @@ int run_check(const check_options& o) {
   out["file"] = o.file;
   out["shape"] = a.shape;
   out["dtype"] = npy_type_name(a.type);
+  if (!pl.whole()) out["full_shape"] = pl.global;
+  if (!o.region.empty()) out["region"] = o.region;
   if (!layout_name.empty()) out["layout"] = layout_name;
   if (f.fan_in != 0) out["fans"] = {{"fan_in", f.fan_in}, {"fan_out", f.fan_out}, {"receptive_field", f.receptive_field}};
 
   std::string header = o.file + ": " + npy_type_name(a.type) + " " + shape_text(a.shape);
+  if (!pl.whole()) {
+    header += ", a block of " + shape_text(pl.global) + (o.region.empty() ? std::string() : " (region " + o.region + ")");
+  }
   if (!layout_name.empty()) header += ", layout " + layout_name;
   if (f.fan_in != 0) header += ", fan-in " + std::to_string(f.fan_in) + ", fan-out " + std::to_string(f.fan_out);
   if (!o.json) std::printf("%s\n", header.c_str());
@@ -238,7 +287,7 @@ int run_check(const check_options& o) {
     std::printf("symmetry: not applicable (a rank-1 tensor has no units)\n");
   }
   if (!o.expect.scheme.empty()) {
-    const audit_report r = expect_report(a, x, o, a.shape, w);
+    const audit_report r = expect_report(a, x, o, pl, w);
     passed = passed && r.passed();
     out["expect"] = report_json(r);
     out["expect"]["scheme"] = o.expect.scheme;

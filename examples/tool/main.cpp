@@ -123,6 +123,9 @@ int main(int argc, char** argv) {
   check_cmd->add_option("FILE", check.file, "The .npy file")->required();
   check_cmd->add_option("--expect", check.expect.scheme, "Check conformance with this scheme (as draw --scheme)");
   check_cmd->add_option("--layout", check.layout, "Axes of the file, as for draw");
+  check_cmd->add_option("--full-shape", check.full_shape,
+                        "FILE is a block that draw --region wrote: the whole tensor's shape, which gives the fans");
+  check_cmd->add_option("--region", check.region, "With --full-shape: where the block sits, as given to draw --region");
   add(check_cmd, check_fan_in, "Override the fan-in the layout gives");
   add(check_cmd, check_fan_out, "Override the fan-out the layout gives");
   check_flags.attach(check_cmd);

@@ -48,6 +48,8 @@ struct check_options {
   scheme_arguments expect;             // expect.scheme empty: no conformance check
   std::string layout;
   std::optional<std::uint64_t> fan_in, fan_out;
+  std::string full_shape;              // a --region file: the whole tensor's shape (gives the fans)
+  std::string region;                  // and where the block sits (needed by --expect identity)
   bool identify = false;
   bool json = false;
   double alpha = 1e-3;                 // family-wise false-alarm rate of each report

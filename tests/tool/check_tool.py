@@ -140,6 +140,29 @@ elif CASE == "region":
         block = whole[tuple(slice(int(a), int(b)) for a, b in (r.split(":") for r in region.split(",")))]
         expect(block.shape == part.shape and block.tobytes() == part.tobytes(),
                f"{scheme} {shape} --region {region}: the block differs from the whole tensor's")
+    # check of a --region file: --full-shape gives the whole tensor's fans (the .npy
+    # header cannot record them). Without it the block's own shape gives fan-in 256, not
+    # 2048, and He normal fails; with it the block passes.
+    expect_code(0, "draw", "--scheme", "he-normal", "--shape", "512x2048", "--seed", "4", "--region", "0:512,0:256",
+                "-o", "block.npy")
+    expect_code(1, "check", "block.npy", "--expect", "he-normal")
+    code, out, err = run("check", "block.npy", "--expect", "he-normal", "--full-shape", "512x2048")
+    expect(code == 0 and "a block of [512, 2048]" in out and "fan-in 2048" in out, f"check --full-shape: {code} {out!r} {err!r}")
+    code, out, _ = run("check", "block.npy", "--expect", "he-normal", "--full-shape", "512x2048", "--json")
+    expect(code == 0 and json.loads(out)["full_shape"] == [512, 2048], f"check --full-shape --json: {out!r}")
+    expect_code(0, "draw", "--scheme", "identity", "--shape", "64x64", "--region", "16:32,0:64", "-o", "eye.npy")
+    expect_code(0, "check", "eye.npy", "--expect", "identity", "--full-shape", "64x64", "--region", "16:32,0:64")
+    expect_code(1, "check", "eye.npy", "--expect", "identity", "--full-shape", "64x64", "--region", "0:16,0:64")
+    code, _, err = run("check", "eye.npy", "--expect", "identity", "--full-shape", "64x64")
+    expect(code == 2 and "give --region" in err, f"identity block without --region: {code} {err!r}")
+    code, _, err = run("check", "eye.npy", "--expect", "orthogonal", "--full-shape", "64x64")
+    expect(code == 2 and "the whole tensor" in err, f"orthogonal block: {code} {err!r}")
+    code, _, err = run("check", "eye.npy", "--region", "16:32,0:64")
+    expect(code == 2 and "needs --full-shape" in err, f"--region without --full-shape: {code} {err!r}")
+    code, _, err = run("check", "eye.npy", "--full-shape", "8x64")
+    expect(code == 2 and "smaller than FILE" in err, f"--full-shape smaller than the file: {code} {err!r}")
+    code, _, err = run("check", "eye.npy", "--full-shape", "64x64", "--region", "0:8,0:64")
+    expect(code == 2 and "expected the region draw wrote" in err, f"--region of another size: {code} {err!r}")
     # the thread count does not change a value
     expect_code(0, "draw", "--scheme", "he-normal", "--shape", "700x500", "--threads", "1", "-o", "t1.npy")
     expect_code(0, "draw", "--scheme", "he-normal", "--shape", "700x500", "--threads", "2", "-o", "t2.npy")

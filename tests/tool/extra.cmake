@@ -15,7 +15,7 @@ if(KINDLING_BUILD_EXAMPLES)
   foreach(_kindling_tool_case
           "exit-codes;exit codes 0, 1 and 2 with one-line errors for every command"
           "untouched;an existing output file is never replaced by a failed run"
-          "region;--region writes exactly that block of the whole tensor, whatever the threads"
+          "region;--region writes exactly that block of the whole tensor, whatever the threads, and check --full-shape takes its fans"
           "numpy;numpy.load reads every element type and the values match, and numpy's files read back"
           "json;check --identify --json ranks candidates best first, plan --json and --svg"
           "outputs;outputs go through an exclusive temporary file and a rename, links written through, odd files refused"
@@ -31,11 +31,13 @@ if(KINDLING_BUILD_EXAMPLES)
                      $<TARGET_FILE:kindling_tool> ${_case} ${CMAKE_CURRENT_BINARY_DIR}/tool_${_case})
   endforeach()
 endif()
-# Whole models (tests/tool/check_models.py, /usr/bin/python3 with numpy, json, struct):
-# `kindling assemble` of examples/models/conveyor_belt.json read with np.frombuffer,
-# a file written by the script verified by `kindling verify`, a flipped byte caught.
+# Whole models (tests/tool/check_models.py, /usr/bin/python3 with numpy, json, struct,
+# zipfile): `kindling assemble` of examples/models/conveyor_belt.json (and the same plan
+# written with rules) read with np.frombuffer and np.load (.npz, stored and deflated),
+# files written by the script and by np.savez verified and audited, a flipped byte and
+# a wrong fan caught, damaged archives refused, --threads and the progress line.
 if(KINDLING_BUILD_EXAMPLES)
-  add_test(NAME "tool: assemble and verify a whole model, checked with numpy"
+  add_test(NAME "tool: assemble, verify and audit a whole model (safetensors and npz), checked with numpy"
            COMMAND /usr/bin/python3 ${CMAKE_CURRENT_SOURCE_DIR}/tool/check_models.py
                    $<TARGET_FILE:kindling_tool> ${PROJECT_SOURCE_DIR} ${CMAKE_CURRENT_BINARY_DIR}/tool_models)
 endif()
