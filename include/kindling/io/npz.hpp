@@ -477,7 +477,9 @@ class npz_reader {
   void stream(const npz_entry& e, std::uint64_t limit, const std::function<void(const char*, std::size_t)>& consume) const {
     const std::string& name = e.name;
     const bool whole = limit == e.uncompressed;
-    std::vector<char> in(std::size_t{1} << 20);
+    // Buffers of at most 1 MiB, and no larger than the member needs (headers are small).
+    const std::uint64_t span = e.deflated ? e.compressed : limit;
+    std::vector<char> in(static_cast<std::size_t>(std::max<std::uint64_t>(1, std::min<std::uint64_t>(span, 1 << 20))));
     std::uint32_t crc = 0;
     std::uint64_t produced = 0;
     if (!e.deflated) {
@@ -492,7 +494,7 @@ class npz_reader {
     } else {
       z_stream z{};
       if (inflateInit2(&z, -15) != Z_OK) fail("zlib's inflateInit2 failed");
-      std::vector<char> out(std::size_t{1} << 20);
+      std::vector<char> out(static_cast<std::size_t>(std::min<std::uint64_t>(limit + 1, 1 << 20)));
       std::uint64_t taken = 0;
       bool ended = false;
       try {
