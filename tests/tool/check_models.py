@@ -281,6 +281,28 @@ expect(code == 1 and j.get("passed") is False and j.get("correction") == "bonfer
 code, out1, _ = run("audit", "wrong.safetensors", "--manifest", "belt.json", "--threads", "3")
 code2, out2, _ = run("audit", "wrong.safetensors", "--manifest", "belt.json")
 expect(code == 1 and out1 == out2, "audit --threads 3 differs from one thread")
+code, out, err = run("audit", "wrong.safetensors", "--manifest", "belt.json", "--uncorrected", "--json")
+j = json.loads(out) if code == 1 else {}
+expect(j.get("correction") == "none" and j.get("alpha_each") == 0.001, f"audit --uncorrected: {code} {out[:200]!r}")
+# Every other layer kind and the structural schemes pass the audit when drawn right.
+every = {"format": "kindling-model-plan", "seed": 5, "rules": [{"match": "**.bias", "layer": "bias", "scheme": "zeros"}],
+         "parameters": [
+             {"name": "stem.weight", "scheme": "delta-orthogonal(gain=1.5)",
+              "layer": {"kind": "convolution", "in": 16, "out": 16, "kernel": [3, 3]}},
+             {"name": "up.weight", "scheme": "glorot-normal", "dtype": "f16",
+              "layer": {"kind": "transposed_convolution", "in": 32, "out": 16, "kernel": [4, 4]}},
+             {"name": "up.bias", "shape": [16]},
+             {"name": "embed.weight", "scheme": "lecun-normal", "layer": {"kind": "embedding", "vocabulary": 500, "dimension": 64}},
+             {"name": "sparse.weight", "scheme": "sparse(nonzero=5)", "layer": {"kind": "dense", "in": 40, "out": 64}},
+             {"name": "skip.weight", "scheme": "identity", "dtype": "bf16", "layer": {"kind": "dense", "in": 32, "out": 32}},
+             {"name": "qkv.weight", "scheme": "truncated-normal(std=0.02)", "dtype": "bf16",
+              "layer": {"kind": "packed", "blocks": 3, "in": 64, "block_out": 64, "layout": "in_out"}},
+             {"name": "out.weight", "scheme": "he-uniform", "layer": {"kind": "dense", "in": 64, "out": 100, "layout": "in_out"}}]}
+json.dump(every, open("every.json", "w"))
+code, _, err = run("assemble", "every.json", "-o", "every.npz")
+expect(code == 0, f"assemble every.json: {code} {err!r}")
+code, out, err = run("audit", "every.npz", "--plan", "every.json", "--threads", "2")
+expect(code == 0 and "all 8 tensors passed" in out, f"audit of every layer kind: {code} {out!r} {err!r}")
 code, _, err = run("audit", "belt.safetensors", "--plan", PLAN, "--manifest", "belt.json")
 expect(code == 2 and "both --plan and --manifest" in err, f"audit with both: {code} {err!r}")
 code, _, err = run("audit", "belt.safetensors")
