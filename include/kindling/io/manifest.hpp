@@ -1,5 +1,5 @@
 // kindling/io/manifest.hpp: model plans in JSON, writing a whole model into one
-// safetensors file, and the manifest that records what every parameter received.
+// multi-tensor file, and the manifest that records what every parameter received.
 //
 // A plan file:
 //   {"format": "kindling-model-plan", "seed": 7,
@@ -39,6 +39,11 @@
 // little-endian bytes under the fixed key (manifest_digest_k0, manifest_digest_k1) =
 // the ASCII words "kindling" and "digest-1" read big-endian, as 16 hex digits. From the
 // manifest alone each parameter can be regenerated bit for bit (plan_from_manifest).
+//
+// write_model(plan, seed, write) streams every parameter, computed block by block, to a
+// writer of multi-tensor files and returns the manifest: write_model_safetensors
+// (safetensors.hpp), or, with io/npz.hpp (which needs zlib),
+//   write_model(plan, seed, [&](const auto& t) { write_npz(path, t); });
 #ifndef KINDLING_IO_MANIFEST_HPP
 #define KINDLING_IO_MANIFEST_HPP
 
