@@ -272,7 +272,7 @@ inline std::optional<std::size_t> most_specific(const std::vector<plan_rule>& ru
       list += (k == 0 ? "" : k + 1 == tied.size() ? " and " : ", ") + rule_label(rules, tied[k]);
     }
     const name_pattern& p = patterns[best];
-    throw std::invalid_argument("parameter '" + name + "': " + list + " both set its " + field +
+    throw std::invalid_argument("parameter '" + name + "': " + list + (tied.size() == 2 ? " both" : " all") + " set its " + field +
                                 " and are equally specific (" + std::to_string(p.literal_characters()) +
                                 " literal characters, " + std::to_string(p.double_stars()) + " '**', " +
                                 std::to_string(p.single_stars()) +
