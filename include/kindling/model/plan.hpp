@@ -183,6 +183,9 @@ class parameter_bytes {
       offset += n;
       size -= n;
     }
+    // Past the last byte the block is of no more use: a writer holding one of these for
+    // every parameter of a model keeps one block at a time, not one a parameter.
+    if (offset >= this->size()) std::vector<char>().swap(block_);
   }
 
  private:
