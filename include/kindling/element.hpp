@@ -14,8 +14,10 @@
 #define KINDLING_ELEMENT_HPP
 
 #include <cstdint>
+#include <cstring>
 #include <limits>
 #include <type_traits>
+#include <utility>
 
 #include "kindling/detail/dmath.hpp"
 
@@ -247,6 +249,19 @@ template <>
 struct element_kind_of<float16> : std::integral_constant<element_kind, element_kind::f16> {};
 template <>
 struct element_kind_of<bfloat16> : std::integral_constant<element_kind, element_kind::bf16> {};
+
+/// Turns `count` elements of `item` bytes each, in the host's byte order, into their
+/// little-endian bytes in place (files are little-endian on every host; nothing to do on
+/// a little-endian one). Tested on big-endian s390x by tests/digest/tool_files.sh.
+inline void to_little_endian(unsigned char* bytes, std::uint64_t count, std::uint64_t item) noexcept {
+  const std::uint16_t one = 1;
+  unsigned char first = 0;
+  std::memcpy(&first, &one, 1);
+  if (first == 1 || item < 2) return;
+  for (std::uint64_t i = 0; i < count; ++i, bytes += item) {
+    for (std::uint64_t a = 0, b = item - 1; a < b; ++a, --b) std::swap(bytes[a], bytes[b]);
+  }
+}
 
 }  // namespace kindling
 
