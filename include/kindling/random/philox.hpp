@@ -112,19 +112,42 @@ constexpr std::array<Word, n> philox_rounds(std::array<Word, n> x, std::array<Wo
 
 }  // namespace detail
 
+// The constants of the header comment, named once: the block functions below, the
+// engines (philox_engine.hpp) and the vector Philox (random/detail/lanes_body.hpp) read
+// them from here. Checked against Random123's known-answer vectors (tests/random/philox.cpp).
+inline constexpr std::array<std::uint32_t, 2> philox4x32_multipliers{0xCD9E8D57u, 0xD2511F53u};
+inline constexpr std::array<std::uint32_t, 2> philox4x32_key_increments{0x9E3779B9u, 0xBB67AE85u};
+inline constexpr std::array<std::uint64_t, 2> philox4x64_multipliers{0xCA5A826395121157u,
+                                                                     0xD2E7470EE14C6C93u};
+inline constexpr std::array<std::uint64_t, 2> philox4x64_key_increments{0x9E3779B97F4A7C15u,
+                                                                        0xBB67AE8584CAA73Bu};
+inline constexpr unsigned philox_rounds_count = 10;
+
 // Philox4x32-10 of (counter, key), word order as Random123's philox4x32.
 constexpr philox4x32_counter philox4x32_block(const philox4x32_counter& ctr,
                                               const philox4x32_key& key) noexcept {
-  return detail::philox_rounds<std::uint32_t, 32, 4, 10>(ctr, key, {0xCD9E8D57u, 0xD2511F53u},
-                                                         {0x9E3779B9u, 0xBB67AE85u});
+  return detail::philox_rounds<std::uint32_t, 32, 4, philox_rounds_count>(
+      ctr, key, philox4x32_multipliers, philox4x32_key_increments);
 }
 
 // Philox4x64-10 of (counter, key), word order as Random123's philox4x64.
 constexpr philox4x64_counter philox4x64_block(const philox4x64_counter& ctr,
                                               const philox4x64_key& key) noexcept {
-  return detail::philox_rounds<std::uint64_t, 64, 4, 10>(
-      ctr, key, {0xCA5A826395121157u, 0xD2E7470EE14C6C93u},
-      {0x9E3779B97F4A7C15u, 0xBB67AE8584CAA73Bu});
+  return detail::philox_rounds<std::uint64_t, 64, 4, philox_rounds_count>(
+      ctr, key, philox4x64_multipliers, philox4x64_key_increments);
+}
+
+// ---- kindling's counter blocks (reproducibility format, DEVELOPERS.md "Counter blocks")
+
+/// Version of the reproducibility format; the last counter word of every block.
+inline constexpr std::uint32_t format_version = 1;
+
+/// The counter of block `block` of domain `domain`: (block mod 2^32, block >> 32,
+/// domain, format_version), in Random123's word order. Every path (scalar, vector,
+/// stream::block) builds its counters here.
+constexpr philox4x32_counter counter_of(std::uint32_t domain, std::uint64_t block) noexcept {
+  return {static_cast<std::uint32_t>(block), static_cast<std::uint32_t>(block >> 32), domain,
+          format_version};
 }
 
 // An engine with the interface and semantics of C++26 std::philox_engine

@@ -24,6 +24,7 @@
 
 #include <cstddef>
 #include <cstdint>
+#include <type_traits>
 
 #include "kindling/detail/dmath.hpp"
 #include "kindling/random/philox.hpp"
@@ -72,22 +73,16 @@ inline instruction_set best_instruction_set() noexcept {
   return best;
 }
 
-// Parameters of the float transforms, as sample.hpp's kernels hold them.
-struct uniform_f32_params {
-  float lo, width, hi, below_hi;  // below_hi: the largest float below hi
-};
-struct symmetric_f32_params {
-  float bound;
-};
-struct normal_f32_params {
-  float mean, stddev;
-};
-struct truncated_f32_params {
-  float mean, stddev, cut_lo, cut_hi, lower, upper, mass;
-};
-struct normal_f64_params {
-  double mean, stddev;
-};
+// The prepared transforms of random/sample.hpp, which the vector paths take as they are
+// (one description of each distribution for the scalar and the vector code).
+template <class C>
+struct uniform_kernel;
+template <class C>
+struct symmetric_uniform_kernel;
+template <class C>
+struct normal_kernel;
+template <class C>
+struct truncated_normal_kernel;
 
 }  // namespace kindling::detail
 
@@ -247,8 +242,8 @@ class line_writer {
 // (dst[64 k + r] for group g0 + k): each value moved inside [lo_min, hi_max] as
 // round_store_f32 does, then stored, without the pass through a buffer. A unit is a
 // whole group here (16 lanes), so the vectors come in memory order.
-template <class P>
-inline void groups_to_elements(const P& p, const philox4x32_key& key, std::uint32_t domain,
+template <class Kernel>
+inline void groups_to_elements(const Kernel& p, const philox4x32_key& key, std::uint32_t domain,
                                std::uint64_t g0, std::uint64_t count, float* dst, float hi_max,
                                float lo_min, bool stream) noexcept {
   const vf hm = f_set1(hi_max), lm = f_set1(lo_min);
@@ -346,9 +341,11 @@ inline void normal_f64_unit(const vu (&w)[4], vd mean, vd stddev, double* at) no
 }
 
 // Whole groups of the double normal, out[32 k + r] for group g0 + k.
-inline void normal_groups_f64(const normal_f64_params& p, const philox4x32_key& key,
+template <class C>
+inline void normal_groups_f64(const normal_kernel<C>& p, const philox4x32_key& key,
                               std::uint32_t domain, std::uint64_t g0, std::uint64_t count,
                               double* out) noexcept {
+  static_assert(std::is_same<C, double>::value, "the double normal");
   const vd mean = _mm512_set1_pd(p.mean), stddev = _mm512_set1_pd(p.stddev);
   constexpr unsigned batch = 4;
   std::uint64_t u = 0;
@@ -489,8 +486,7 @@ inline void group_words_scalar(const philox4x32_key& key, std::uint32_t domain, 
                                std::uint32_t* w) noexcept {
   for (unsigned lane = 0; lane < 16; ++lane) {
     const std::uint64_t b = 16 * g + lane;
-    const philox4x32_counter x = philox4x32_block(
-        {static_cast<std::uint32_t>(b), static_cast<std::uint32_t>(b >> 32), domain, 1u}, key);
+    const philox4x32_counter x = philox4x32_block(counter_of(domain, b), key);
     for (unsigned j = 0; j < 4; ++j) w[16 * j + lane] = x[j];
   }
 }
@@ -508,8 +504,8 @@ inline void group_words(instruction_set isa, const philox4x32_key& key, std::uin
 
 // The float transforms on `count` whole groups from g0, out[64 k + r] for group g0 + k.
 // Return false when the path has no vector code (the caller then runs the scalar one).
-template <class P>
-inline bool groups_f32(instruction_set isa, const P& p, const philox4x32_key& key,
+template <class Kernel>
+inline bool groups_f32(instruction_set isa, const Kernel& p, const philox4x32_key& key,
                        std::uint32_t domain, std::uint64_t g0, std::uint64_t count,
                        float* out) noexcept {
 #if defined(KINDLING_LANES_X86)
@@ -521,7 +517,8 @@ inline bool groups_f32(instruction_set isa, const P& p, const philox4x32_key& ke
 }
 
 // The double normal on whole groups, out[32 k + r] for group g0 + k (AVX-512 only).
-inline bool groups_f64(instruction_set isa, const normal_f64_params& p, const philox4x32_key& key,
+template <class C>
+inline bool groups_f64(instruction_set isa, const normal_kernel<C>& p, const philox4x32_key& key,
                        std::uint32_t domain, std::uint64_t g0, std::uint64_t count,
                        double* out) noexcept {
 #if defined(KINDLING_LANES_X86)
@@ -535,8 +532,8 @@ inline bool groups_f64(instruction_set isa, const normal_f64_params& p, const ph
 // The same groups as float elements straight into dst, each moved inside [lo_min,
 // hi_max] as round_store_f32 does; `stream`: non-temporal stores. False when the path
 // has no such writer (the caller then generates into a buffer and rounds from there).
-template <class P>
-inline bool groups_f32_elements(instruction_set isa, const P& p, const philox4x32_key& key,
+template <class Kernel>
+inline bool groups_f32_elements(instruction_set isa, const Kernel& p, const philox4x32_key& key,
                                 std::uint32_t domain, std::uint64_t g0, std::uint64_t count,
                                 float* dst, float hi_max, float lo_min, bool stream) noexcept {
 #if defined(KINDLING_LANES_X86)
@@ -554,8 +551,8 @@ inline bool groups_f32_elements(instruction_set isa, const P& p, const philox4x3
 }
 
 // The same for bfloat16 elements (their bits), rounded as round_store_bf16 does.
-template <class P>
-inline bool groups_bf16_elements(instruction_set isa, const P& p, const philox4x32_key& key,
+template <class Kernel>
+inline bool groups_bf16_elements(instruction_set isa, const Kernel& p, const philox4x32_key& key,
                                  std::uint32_t domain, std::uint64_t g0, std::uint64_t count,
                                  std::uint16_t* dst, float hi_max, float lo_min, bool stream) noexcept {
 #if defined(KINDLING_LANES_X86)
