@@ -7,6 +7,7 @@
 #define KINDLING_KINDLING_HPP
 
 #include "kindling/element.hpp"
+#include "kindling/executor.hpp"
 #include "kindling/fan.hpp"
 #include "kindling/fill.hpp"
 #include "kindling/gain.hpp"

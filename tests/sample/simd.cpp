@@ -1,4 +1,5 @@
-// Tests of random/detail/lanes.hpp and the fast paths of fill.hpp: every vector path
+// Tests of random/detail/lanes.hpp (the dispatch to avx512.hpp, avx2.hpp and their shared
+// lanes_body.hpp) and the fast paths of fill.hpp: every vector path
 // (each instruction set this CPU runs, forced on in turn) gives the bits of the scalar
 // path, for every distribution, both compute types and element types, odd offsets and
 // lengths; the vector Philox is checked against Random123's philox4x32 (Debian

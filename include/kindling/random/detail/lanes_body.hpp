@@ -1,10 +1,65 @@
-// The group functions of one instruction set, written once against the lane
-// primitives (u_*, f_*, m_*) that random/detail/lanes.hpp defines for it. lanes.hpp
-// includes this file inside each instruction set's namespace and target region, so it
-// has no include guard and must not be included anywhere else.
+// The group functions of one instruction set, written once against its lane
+// primitives. Each function transcribes its scalar counterpart (named beside it)
+// operation for operation; see lanes.hpp for why the bits agree.
 //
-// Each function transcribes its scalar counterpart (named beside it) operation for
-// operation; see lanes.hpp for why the bits agree.
+// An instruction-set header (random/detail/avx512.hpp, avx2.hpp) includes this file
+// inside its target region, after defining KINDLING_LANES_WIDTH (16 or 8) and, in
+// namespace kindling::detail::lanes_avx512 (16) or lanes_avx2 (8), the primitives it
+// uses, and nothing else of the includer:
+//   lanes                          lanes a vector
+//   vu, vf, vm                     vectors of uint32, float, and a lane mask
+//   u_set1 u_iota u_add u_sub u_xor u_and u_or u_srl<n> u_sll<n> u_eq u_ge u_select
+//   u_mulhilo u_bits u_trunc_f u_load u_store u_store_elements u16_store_elements
+//   f_set1 f_add f_sub f_mul f_div f_sqrt f_fma f_fnma f_fms f_floor f_neg f_abs
+//   f_flip_sign f_from_small_u f_from_i f_exponent f_from_bits f_lt f_le f_ge f_eq
+//   f_select f_store
+//   m_and m_none_of
+// The body is emitted once per instruction set: the guard below is keyed by the width.
+#ifndef KINDLING_LANES_WIDTH
+#error "lanes_body.hpp is included by random/detail/avx512.hpp or avx2.hpp, which define KINDLING_LANES_WIDTH"
+#endif
+
+#include <cstddef>
+#include <cstdint>
+#include <limits>
+#include <type_traits>
+
+#include "kindling/detail/dmath.hpp"
+#include "kindling/random/philox.hpp"
+
+namespace kindling::detail {
+// The prepared transforms of random/sample.hpp, which the vector paths take as they are
+// (one description of each distribution for the scalar and the vector code).
+template <class C>
+struct uniform_kernel;
+template <class C>
+struct symmetric_uniform_kernel;
+template <class C>
+struct normal_kernel;
+template <class C>
+struct truncated_normal_kernel;
+}  // namespace kindling::detail
+
+#if KINDLING_LANES_WIDTH == 16
+#ifndef KINDLING_RANDOM_DETAIL_LANES_BODY_16
+#define KINDLING_RANDOM_DETAIL_LANES_BODY_16
+#define KINDLING_LANES_BODY_EMIT
+#define KINDLING_LANES_NAMESPACE lanes_avx512
+#endif
+#elif KINDLING_LANES_WIDTH == 8
+#ifndef KINDLING_RANDOM_DETAIL_LANES_BODY_8
+#define KINDLING_RANDOM_DETAIL_LANES_BODY_8
+#define KINDLING_LANES_BODY_EMIT
+#define KINDLING_LANES_NAMESPACE lanes_avx2
+#endif
+#else
+#error "KINDLING_LANES_WIDTH is 16 (AVX-512) or 8 (AVX2)"
+#endif
+
+#ifdef KINDLING_LANES_BODY_EMIT
+namespace kindling::detail::KINDLING_LANES_NAMESPACE {
+
+static_assert(lanes == KINDLING_LANES_WIDTH, "the includer's primitives are KINDLING_LANES_WIDTH wide");
 
 // Philox4x32-10 (philox.hpp, philox_rounds) of N units of `lanes` consecutive blocks,
 // unit k starting at block b0 + k lanes, counters from counter_of (philox.hpp). A unit
@@ -355,3 +410,8 @@ inline void groups_to_elements_by_vector(const Kernel& p, const philox4x32_key& 
   };
   drive_units(make_unit(p), key, domain, g0, count, sink);
 }
+
+}  // namespace kindling::detail::KINDLING_LANES_NAMESPACE
+#undef KINDLING_LANES_NAMESPACE
+#undef KINDLING_LANES_BODY_EMIT
+#endif  // KINDLING_LANES_BODY_EMIT
