@@ -12,6 +12,7 @@
 #include "kindling/fill.hpp"
 #include "kindling/gain.hpp"
 #include "kindling/random/philox.hpp"
+#include "kindling/random/philox_engine.hpp"
 #include "kindling/random/sample.hpp"
 #include "kindling/random/siphash.hpp"
 #include "kindling/random/stream.hpp"

@@ -1,6 +1,6 @@
-// Tests of random/philox.hpp against Random123 (known-answer vectors and the live
+// Tests of random/philox.hpp (block functions) and random/philox_engine.hpp against Random123 (known-answer vectors and the live
 // librandom123-dev header) and the C++26 [rand.predef] check values.
-#include "kindling/random/philox.hpp"
+#include "kindling/random/philox_engine.hpp"
 
 #include <doctest/doctest.h>
 
