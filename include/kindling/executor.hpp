@@ -20,6 +20,8 @@
 #include <type_traits>
 #include <vector>
 
+#include "kindling/detail/error.hpp"
+
 namespace kindling {
 
 /// Runs the tasks one after another on the calling thread.
@@ -38,10 +40,8 @@ class thread_executor {
   /// One thread per hardware thread (1 if the machine does not say).
   thread_executor() noexcept : threads_(std::max(1u, std::thread::hardware_concurrency())) {}
   explicit thread_executor(std::size_t threads) : threads_(threads) {
-    if (threads == 0) {
-      throw std::invalid_argument(
-          "kindling: argument 'threads' of thread_executor is 0; expected at least 1 thread");
-    }
+    if (threads == 0)
+      detail::reject_argument<std::invalid_argument>("thread_executor", "threads", "0", "at least 1 thread");
   }
 
   std::size_t threads() const noexcept { return threads_; }

@@ -31,13 +31,13 @@
 #include <cmath>
 #include <cstddef>
 #include <cstdint>
-#include <cstdio>
 #include <limits>
 #include <stdexcept>
 #include <string>
 #include <type_traits>
 
 #include "kindling/detail/dmath.hpp"
+#include "kindling/detail/error.hpp"
 #include "kindling/element.hpp"
 #include "kindling/random/detail/lanes.hpp"
 #include "kindling/random/stream.hpp"
@@ -117,16 +117,9 @@ struct truncated_normal {
 
 namespace detail {
 
-inline std::string number_text(double x) {
-  char buf[40];
-  std::snprintf(buf, sizeof buf, "%.17g", x);
-  return buf;
-}
-
 [[noreturn]] inline void reject(const char* type, const char* field, double value,
                                 const std::string& expected) {
-  throw std::domain_error(std::string("kindling::dist::") + type + ": " + field + " = " +
-                          number_text(value) + "; expected " + expected);
+  reject_argument<std::domain_error>(std::string("dist::") + type, field, argument_text(value), expected);
 }
 
 // Finite, and finite in float too (both compute types must be able to carry it).
@@ -168,13 +161,13 @@ inline cut_probabilities validated_cuts(const char* type, double a, double b) {
     reject(type, "cut_lo", a, "a number or -inf, below cut_hi");
   if (b != b || b == -std::numeric_limits<double>::infinity())
     reject(type, "cut_hi", b, "a number or +inf, above cut_lo");
-  if (!(a < b)) reject(type, "cut_hi", b, "a value greater than cut_lo = " + number_text(a));
+  if (!(a < b)) reject(type, "cut_hi", b, "a value greater than cut_lo = " + argument_text(a));
   const cut_probabilities c = cut_probabilities_of(a, b);
   if (!(c.mass >= 0x1p-100))
     reject(type, "cut_lo", a,
-           "cuts [cut_lo, cut_hi] = [" + number_text(a) + ", " + number_text(b) +
+           "cuts [cut_lo, cut_hi] = [" + argument_text(a) + ", " + argument_text(b) +
                "] holding probability >= 2^-100 under the standard normal (it holds " +
-               number_text(c.mass) + ")");
+               argument_text(c.mass) + ")");
   return c;
 }
 
@@ -260,9 +253,9 @@ uniform_kernel<C> prepare(const dist::uniform& d) {
   const C lo = static_cast<C>(d.lo), hi = static_cast<C>(d.hi);
   if (!(static_cast<float>(d.lo) < static_cast<float>(d.hi)))
     reject("uniform", "hi", d.hi,
-           "a value greater than lo = " + number_text(d.lo) + " (also after rounding to float)");
+           "a value greater than lo = " + argument_text(d.lo) + " (also after rounding to float)");
   if (!std::isfinite(d.hi - d.lo) || !std::isfinite(static_cast<float>(d.hi) - static_cast<float>(d.lo)))
-    reject("uniform", "hi", d.hi, "hi - lo finite in float (lo = " + number_text(d.lo) + ")");
+    reject("uniform", "hi", d.hi, "hi - lo finite in float (lo = " + argument_text(d.lo) + ")");
   return {lo, hi - lo, hi, next_below(hi)};
 }
 
@@ -403,12 +396,12 @@ void generate_checked(const D& d, const stream& s, std::uint32_t domain, std::ui
                 "generate writes the compute type: float or double");
   const auto kernel = prepare<C>(d);
   if (n > std::numeric_limits<std::uint64_t>::max() - first)
-    throw std::length_error("kindling::dist::generate: first + n = " + std::to_string(first) +
-                            " + " + std::to_string(n) + "; expected at most 2^64 - 1");
+    reject_argument<std::length_error>("dist::generate", "n", std::to_string(n),
+                                       "first + n at most 2^64 - 1 (first = " + std::to_string(first) + ")");
   if (n == 0) return;
   if (out == nullptr)
-    throw std::invalid_argument("kindling::dist::generate: out = nullptr; expected storage for n = " +
-                                std::to_string(n) + " values");
+    reject_argument<std::invalid_argument>("dist::generate", "out", "nullptr",
+                                           "storage for n = " + std::to_string(n) + " values");
   generate_run(kernel, s, domain, first, n, out);
 }
 
