@@ -7,8 +7,15 @@
 //   h_l = W_l a_{l-1} + b_l,   a_l = phi_l(h_l),   a_0 = the input x,
 // W_l with i.i.d. zero-mean entries of variance Var W_l, b_l with variance sigma_b,l^2.
 // Dense layers take their fans from `dense`; convolutions from `convolution` (fan_in =
-// in/groups * receptive field, fan_out = out/groups * receptive field): the analyses
-// only need the fans, the measured pass only handles dense layers.
+// in/groups * receptive field, fan_out = out/groups * receptive field).
+//
+// Spatial stacks.  A stack built with an input extent (layer_stack(channels, {H, W}))
+// carries feature maps: a convolution added on top of a map is placed on it
+// (convolution_map.hpp: stride, padding, dilation), so the prediction can follow every
+// output position (borders that read padding included) and the measured pass can run
+// it.  A dense layer on top of a map reads the flattened map (channels x positions
+// features, channel-major).  A convolution on a stack without an extent is analysed
+// through its fans only, as if every output position were interior.
 #ifndef KINDLING_PROPAGATE_STACK_HPP
 #define KINDLING_PROPAGATE_STACK_HPP
 
@@ -23,6 +30,7 @@
 #include <vector>
 
 #include "../fan.hpp"
+#include "convolution_map.hpp"
 #include "../gain.hpp"
 #include "../random/sample.hpp"
 #include "../schemes/fixed.hpp"
@@ -157,19 +165,26 @@ double weight_variance_of(const Scheme& scheme, const fans& f) {
 struct stack_layer {
   std::string label;             // "layer1", ... unless given; weights use label + ".weight"
   kindling::fans fans;           // fan_in, fan_out of W_l
-  std::uint64_t in_width = 0;    // features (channels) into the layer
+  std::uint64_t in_width = 0;    // features (channels of a convolution) into the layer
   std::uint64_t width = 0;       // features (channels) out of it
-  bool dense = true;             // false: a convolution, analysed through its fans only
+  bool dense = true;             // false: a convolution
+  /// A convolution placed on a feature map (spatial stacks): its geometry; empty for
+  /// dense layers and for convolutions analysed through their fans only.
+  std::optional<convolution_map> map;
   nonlinearity act = activation::identity();
   double weight_variance = 0;    // Var W_l per element
   double bias_variance = 0;      // sigma_b,l^2
   std::string scheme;            // the scheme's name, or "normal(variance)"
-  /// Fills the [width, in_width] weight from a stream (dense layers), as the scheme does.
+  /// Fills the weight from a stream as the scheme does: [width, in_width] (dense) or
+  /// [out_channels, in_channels / groups, kernel...] (convolutions placed on a map).
   std::function<void(const strided_view<double>&, const stream&)> draw;
 
   /// sigma_w^2 of the mean-field papers: fan_in Var W (forward), fan_out Var W (backward).
   double forward_scale() const { return static_cast<double>(fans.fan_in) * weight_variance; }
   double backward_scale() const { return static_cast<double>(fans.fan_out) * weight_variance; }
+  /// Output positions (1 for a dense layer) and units (width x positions).
+  std::uint64_t positions() const noexcept { return map ? map->out_positions() : 1; }
+  std::uint64_t units() const noexcept { return width * positions(); }
 };
 
 /// A stack of layers fed by an input of `input_width` features whose entries have
@@ -178,25 +193,56 @@ class layer_stack {
  public:
   explicit layer_stack(std::uint64_t input_width, double input_second_moment = 1.0)
       : input_width_(input_width), input_moment_(input_second_moment) {
-    detail::require_positive(input_width, "kindling::layer_stack", "input_width");
+    check_input("kindling::layer_stack");
+  }
+
+  /// A stack fed by feature maps: `input_channels` channels over the spatial
+  /// `input_extent` (1 to 3 axes, e.g. {length} or {height, width}), each entry with
+  /// second moment `input_second_moment`.  (A named function, not a constructor: a
+  /// braced {64} would otherwise bind to the second moment.)
+  static layer_stack feature_maps(std::uint64_t input_channels, std::vector<std::uint64_t> input_extent,
+                                  double input_second_moment = 1.0) {
+    return layer_stack(input_channels, std::move(input_extent), input_second_moment, 0);
+  }
+
+ private:
+  layer_stack(std::uint64_t input_channels, std::vector<std::uint64_t> input_extent, double input_second_moment,
+              int /* tag */)
+      : input_width_(input_channels), input_moment_(input_second_moment), input_extent_(std::move(input_extent)) {
+    constexpr const char* where = "kindling::layer_stack::feature_maps";
+    check_input(where);
+    if (input_extent_.empty() || input_extent_.size() > 3) {
+      throw std::invalid_argument(std::string(where) + ": argument 'input_extent' = " +
+                                  detail::shape_text(input_extent_) + " has " + std::to_string(input_extent_.size()) +
+                                  " axes, expected 1 to 3");
+    }
+    for (std::uint64_t e : input_extent_) detail::require_positive(e, where, "input_extent");
+    detail::checked_product(detail::checked_product(input_extent_, where, "input positions"), input_channels, where,
+                            "input channels x positions");
+  }
+
+  void check_input(const char* where) const {
+    detail::require_positive(input_width_, where, "input_width");
+    const double input_second_moment = input_moment_;
     if (!(std::isfinite(input_second_moment) && input_second_moment > 0.0)) {
-      throw std::domain_error("kindling::layer_stack: argument 'input_second_moment' = " +
+      throw std::domain_error(std::string(where) + ": argument 'input_second_moment' = " +
                               detail::argument_text(input_second_moment) +
                               ", expected a finite number > 0");
     }
   }
 
+ public:
   /// A dense layer of `width` units after the current top, weights drawn by `scheme`.
   template <class Scheme>
   layer_stack& add_dense(std::uint64_t width, const nonlinearity& act, const Scheme& scheme,
                          double bias_variance = 0.0, std::string label = {}) {
     constexpr const char* where = "kindling::layer_stack::add_dense";
     detail::require_positive(width, where, "width");
-    const dense d(top_width(), width);
+    const dense d(top_features(), width);
     const double v = weight_variance_of(scheme, d.layer_fans());
     stack_layer layer = make(where, d.layer_fans(), width, act, v, bias_variance, std::move(label));
     layer.scheme = scheme.name();
-    const std::uint64_t in = top_width();
+    const std::uint64_t in = top_features();
     layer.draw = [scheme, in, width](const strided_view<double>& w, const stream& s) {
       initialize(w, dense(in, width), scheme, s);
     };
@@ -210,7 +256,7 @@ class layer_stack {
                                        std::string label = {}) {
     constexpr const char* where = "kindling::layer_stack::add_dense_with_variance";
     detail::require_positive(width, where, "width");
-    const dense d(top_width(), width);
+    const dense d(top_features(), width);
     stack_layer layer =
         make(where, d.layer_fans(), width, act, weight_variance, bias_variance, std::move(label));
     layer.scheme = "normal(" + detail::argument_text(weight_variance) + ")";
@@ -222,24 +268,53 @@ class layer_stack {
     return *this;
   }
 
-  /// A convolution after the current top (its in_channels must be the top width);
-  /// analysed through its fans, not runnable by measure.hpp.
+  /// A convolution after the current top (its in_channels must be the top width).  On a
+  /// feature map it is placed with stride 1, no padding and no dilation (the overload
+  /// below takes a geometry); on a stack without an extent it is analysed through its
+  /// fans only (predict), not runnable by measure.hpp.
   template <class Scheme>
   layer_stack& add_convolution(const convolution& conv, const nonlinearity& act,
                                const Scheme& scheme, double bias_variance = 0.0,
                                std::string label = {}) {
+    if (!top_extent().empty()) return add_convolution(conv, convolution_geometry{}, act, scheme, bias_variance, std::move(label));
     constexpr const char* where = "kindling::layer_stack::add_convolution";
-    if (conv.in_channels() != top_width()) {
-      throw std::invalid_argument(std::string(where) + ": argument 'conv' has in_channels = " +
-                                  std::to_string(conv.in_channels()) +
-                                  ", expected the width of the layer below, " +
-                                  std::to_string(top_width()));
-    }
+    require_channels(conv, where);
     const double v = weight_variance_of(scheme, conv.layer_fans());
     stack_layer layer =
         make(where, conv.layer_fans(), conv.out_channels(), act, v, bias_variance, std::move(label));
+    layer.in_width = conv.in_channels();
     layer.dense = false;
     layer.scheme = scheme.name();
+    layers_.push_back(std::move(layer));
+    return *this;
+  }
+
+  /// A convolution placed on the current top feature map with `geometry` (stride,
+  /// padding, dilation): predicted position by position and runnable by measure.hpp.
+  /// Its weight is drawn in the [out, in / groups, kernel...] layout whatever `conv`'s
+  /// layout (the values of a parameter depend on its logical shape).
+  template <class Scheme>
+  layer_stack& add_convolution(const convolution& conv, const convolution_geometry& geometry,
+                               const nonlinearity& act, const Scheme& scheme, double bias_variance = 0.0,
+                               std::string label = {}) {
+    constexpr const char* where = "kindling::layer_stack::add_convolution";
+    require_channels(conv, where);
+    if (top_extent().empty()) {
+      throw std::invalid_argument(std::string(where) +
+                                  ": argument 'geometry' places the convolution on a feature map, but the top of "
+                                  "the stack has no spatial extent, expected a stack built with an input extent "
+                                  "and no dense layer below the convolution");
+    }
+    convolution_map placed(conv, top_extent(), geometry);
+    const double v = weight_variance_of(scheme, conv.layer_fans());
+    stack_layer layer =
+        make(where, conv.layer_fans(), conv.out_channels(), act, v, bias_variance, std::move(label));
+    layer.in_width = conv.in_channels();
+    layer.dense = false;
+    layer.map = std::move(placed);
+    layer.scheme = scheme.name();
+    const convolution drawn(conv.in_channels(), conv.out_channels(), conv.kernel(), conv.groups());
+    layer.draw = [scheme, drawn](const strided_view<double>& w, const stream& s) { initialize(w, drawn, scheme, s); };
     layers_.push_back(std::move(layer));
     return *this;
   }
@@ -252,6 +327,25 @@ class layer_stack {
   const stack_layer& operator[](std::size_t i) const { return layers_.at(i); }
   std::uint64_t top_width() const noexcept {
     return layers_.empty() ? input_width_ : layers_.back().width;
+  }
+  /// The spatial extent of the input, empty for a stack of features.
+  const std::vector<std::uint64_t>& input_extent() const noexcept { return input_extent_; }
+  /// The spatial extent of the top (empty when it is a dense layer or a stack of features).
+  const std::vector<std::uint64_t>& top_extent() const noexcept {
+    if (layers_.empty()) return input_extent_;
+    const stack_layer& l = layers_.back();
+    return l.map ? l.map->out_extent() : no_extent_;
+  }
+  /// Input positions (1 without an extent) and input units (channels x positions).
+  std::uint64_t input_positions() const noexcept {
+    std::uint64_t p = 1;
+    for (std::uint64_t e : input_extent_) p *= e;  // bounded by the constructor
+    return p;
+  }
+  std::uint64_t input_units() const noexcept { return input_width_ * input_positions(); }
+  /// What a dense layer on top reads: the top's units (a feature map flattened).
+  std::uint64_t top_features() const noexcept {
+    return layers_.empty() ? input_units() : layers_.back().units();
   }
 
   /// Throws std::invalid_argument naming `where` if the stack has no layers.
@@ -278,7 +372,7 @@ class layer_stack {
     stack_layer layer;
     layer.label = label.empty() ? "layer" + std::to_string(layers_.size() + 1) : std::move(label);
     layer.fans = f;
-    layer.in_width = top_width();
+    layer.in_width = top_features();
     layer.width = width;
     layer.act = act;
     layer.weight_variance = weight_variance;
@@ -286,8 +380,19 @@ class layer_stack {
     return layer;
   }
 
+  void require_channels(const convolution& conv, const char* where) const {
+    if (conv.in_channels() != top_width()) {
+      throw std::invalid_argument(std::string(where) + ": argument 'conv' has in_channels = " +
+                                  std::to_string(conv.in_channels()) +
+                                  ", expected the width of the layer below, " +
+                                  std::to_string(top_width()));
+    }
+  }
+
   std::uint64_t input_width_;
   double input_moment_;
+  std::vector<std::uint64_t> input_extent_;
+  std::vector<std::uint64_t> no_extent_;
   std::vector<stack_layer> layers_;
 };
 
