@@ -12,9 +12,11 @@
 #include <doctest/doctest.h>
 
 #include "../support/errors.hpp"
+#include "agreement.hpp"
 
 using namespace kindling;
 using kindling_test::mentions;
+using kindling_test::check_every_row_agrees;
 using kindling_test::message_of;
 
 namespace {
@@ -47,13 +49,6 @@ Eigen::MatrixXd random_matrix(Eigen::Index rows, Eigen::Index cols, const char* 
   return x;
 }
 
-void check_every_layer_agrees(const propagation_report& r) {
-  for (std::size_t l = 0; l < r.layers.size(); ++l) {
-    CAPTURE(l);
-    INFO(r.table());
-    CHECK(r.layers[l].agrees);
-  }
-}
 }  // namespace
 
 TEST_CASE("the im2col forward pass equals the convolution written from its definition, and backward is its adjoint") {
@@ -120,7 +115,7 @@ TEST_CASE("convolution stacks: predicted and measured second moments agree at ev
     s.add_convolution(convolution(3, 16, {3, 3}), same, activation::relu(), he_normal{})
         .add_convolution(convolution(16, 16, {3, 3}), same, activation::relu(), he_normal{})
         .add_convolution(convolution(16, 16, {3, 3}), same, activation::relu(), he_normal{});
-    for (std::uint64_t seed : {1u, 2u, 3u}) check_every_layer_agrees(compare_propagation(s, 16, stream::root(seed), o));
+    for (std::uint64_t seed : {1u, 2u, 3u}) check_every_row_agrees(compare_propagation(s, 16, stream::root(seed), o));
   }
   SUBCASE("2-D valid padding and stride 2, tanh Glorot with biases") {
     layer_stack s = layer_stack::feature_maps(4, {11, 9});
@@ -128,7 +123,7 @@ TEST_CASE("convolution stacks: predicted and measured second moments agree at ev
         .add_convolution(convolution(16, 16, {3, 3}), {{2, 2}, {1, 1}, {}}, activation::tanh(),
                          glorot_normal{5.0 / 3.0}, 0.05)
         .add_convolution(convolution(16, 8, {2, 2}), activation::tanh(), glorot_normal{5.0 / 3.0});
-    for (std::uint64_t seed : {4u, 5u, 6u}) check_every_layer_agrees(compare_propagation(s, 16, stream::root(seed), o));
+    for (std::uint64_t seed : {4u, 5u, 6u}) check_every_row_agrees(compare_propagation(s, 16, stream::root(seed), o));
   }
   SUBCASE("grouped and depthwise 2-D convolutions") {
     layer_stack s = layer_stack::feature_maps(8, {6, 6});
@@ -136,7 +131,7 @@ TEST_CASE("convolution stacks: predicted and measured second moments agree at ev
     s.add_convolution(convolution(8, 16, {3, 3}, 4), same, activation::relu(), he_normal{})
         .add_convolution(convolution::depthwise(16, 1, {3, 3}), same, activation::relu(), he_normal{})
         .add_convolution(convolution(16, 16, {1, 1}), activation::relu(), he_normal{});
-    for (std::uint64_t seed : {7u, 8u, 9u}) check_every_layer_agrees(compare_propagation(s, 16, stream::root(seed), o));
+    for (std::uint64_t seed : {7u, 8u, 9u}) check_every_row_agrees(compare_propagation(s, 16, stream::root(seed), o));
   }
   SUBCASE("1-D with dilation and stride, then a dense head on the flattened map") {
     layer_stack s = layer_stack::feature_maps(2, {32});
@@ -145,7 +140,7 @@ TEST_CASE("convolution stacks: predicted and measured second moments agree at ev
         .add_convolution(convolution(16, 16, {3}), {{}, {1}, {}}, activation::relu(), he_normal{})
         .add_dense(8, activation::identity(), lecun_normal{});
     CHECK(s[3].fans.fan_in == 16 * 16);
-    for (std::uint64_t seed : {10u, 11u, 12u}) check_every_layer_agrees(compare_propagation(s, 16, stream::root(seed), o));
+    for (std::uint64_t seed : {10u, 11u, 12u}) check_every_row_agrees(compare_propagation(s, 16, stream::root(seed), o));
   }
 }
 
@@ -161,7 +156,7 @@ TEST_CASE("the fan-based prediction that ignores padding is caught at the border
   interior.add_convolution(convolution(16, 16, {3, 3}), activation::relu(), he_normal{})
       .add_convolution(convolution(16, 16, {3, 3}), activation::relu(), he_normal{});
   const propagation_report good = compare_propagation(s, 16, stream::root(21));
-  check_every_layer_agrees(good);
+  check_every_row_agrees(good);
   const propagation_report naive = compare_propagation(s, predict(interior), 16, stream::root(21));
   CHECK_FALSE(naive.layers[0].preactivation.agrees);
   CHECK_FALSE(naive.layers[1].preactivation.agrees);

@@ -95,7 +95,13 @@ class convolution_map {
     in_positions_ = detail::checked_product(in_extent_, where, "input positions");
     out_positions_ = detail::checked_product(out_extent_, where, "output positions");
     taps_ = detail::checked_product(kernel_, where, "kernel taps");
-    detail::checked_product(out_positions_, taps_, where, "output positions x kernel taps");
+    // the table holds 8 bytes a (position, tap): a bound keeps a hostile extent from
+    // asking for terabytes
+    constexpr std::uint64_t max_pairs = std::uint64_t{1} << 26;
+    if (detail::checked_product(out_positions_, taps_, where, "output positions x kernel taps") > max_pairs) {
+      throw std::length_error(std::string(where) + ": " + std::to_string(out_positions_) + " output positions x " +
+                              std::to_string(taps_) + " kernel taps, expected at most 2^26 pairs");
+    }
     build_sources();
   }
 

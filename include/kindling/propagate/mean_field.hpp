@@ -298,6 +298,8 @@ inline std::vector<layer_prediction> predict(const layer_stack& stack,
   std::vector<layer_prediction> rows(n);
   // E[a_{l-1}^2] per position of the layer below (one entry for a dense layer).
   std::vector<double> a2_map(stack.input_positions(), stack.input_second_moment());
+  // E[a^2] maps of the input (0) and every layer's output (l + 1), for residual skips.
+  std::vector<std::vector<double>> a2_out{a2_map};
   double a2 = stack.input_second_moment();  // its mean
   std::vector<std::vector<double>> slope2(n);
   std::vector<double> fwd_unit(n + 1), fwd_layer(n + 1);
@@ -311,7 +313,17 @@ inline std::vector<layer_prediction> predict(const layer_stack& stack,
     r.forward_scale = L.forward_scale();
     r.backward_scale = L.backward_scale();
     std::vector<double> q;
-    if (L.map) {
+    if (L.residual) {
+      // x + s branch(x): the branch's last weights are zero-mean and independent of x, so
+      // the cross term vanishes and E[h^2] = E[skip(x)^2] + s^2 E[branch(x)^2] (Hanin &
+      // Rolnick, NeurIPS 2018; Zhang et al., ICLR 2019, sec. 2)
+      const std::vector<double>& x = a2_out[L.skip_from];
+      const double s2 = L.branch_scale * L.branch_scale;
+      q.resize(a2_map.size());
+      for (std::size_t p = 0; p < q.size(); ++p) {
+        q[p] = (L.projected ? L.forward_scale() * detail::mean_of(x) : x[p]) + s2 * a2_map[p];
+      }
+    } else if (L.map) {
       const convolution_map& m = *L.map;
       const double scale = L.weight_variance * static_cast<double>(m.in_channels() / m.groups());
       q.assign(m.out_positions(), 0.0);
@@ -328,6 +340,7 @@ inline std::vector<layer_prediction> predict(const layer_stack& stack,
     }
     r.preactivation_variance = detail::mean_of(q);
     a2_map = detail::moments_at(q, [&L](double v) { return L.act.second_moment(v); });
+    a2_out.push_back(a2_map);
     slope2[l] = detail::moments_at(q, [&L](double v) { return L.act.slope_second_moment(v); });
     r.activation_moment = detail::mean_of(a2_map);
     r.forward_factor = a2 > 0.0 ? r.activation_moment / a2
@@ -343,14 +356,34 @@ inline std::vector<layer_prediction> predict(const layer_stack& stack,
   std::vector<double> bwd_unit(n + 1), bwd_layer(n + 1);
   bwd_unit[0] = options.output_gradient_variance;
   bwd_layer[0] = options.output_gradient_variance * static_cast<double>(layers.back().units());
+  // Gradients a residual sum sends back along its skip, waiting for the layer whose
+  // output was the block's input (index as a2_out).
+  std::vector<std::vector<double>> skipped(n + 1);
   for (std::size_t k = n; k-- > 0;) {
     const stack_layer& L = layers[k];
+    if (!skipped[k + 1].empty()) {
+      for (std::size_t p = 0; p < g2_map.size(); ++p) g2_map[p] += skipped[k + 1][p];
+    }
     std::vector<double> delta(g2_map.size());
     for (std::size_t p = 0; p < delta.size(); ++p) delta[p] = slope2[k][p] * g2_map[p];
-    rows[k].chi = (k + 1 < n ? layers[k + 1].backward_scale() : 1.0) * detail::mean_of(slope2[k]);
+    const double above = k + 1 == n ? 1.0
+                         : layers[k + 1].residual ? layers[k + 1].branch_scale * layers[k + 1].branch_scale
+                                                  : layers[k + 1].backward_scale();
+    rows[k].chi = above * detail::mean_of(slope2[k]);
     rows[k].gradient_variance = detail::mean_of(delta);
     const std::uint64_t below = k > 0 ? layers[k - 1].positions() : stack.input_positions();
-    if (L.map) {
+    if (L.residual) {
+      // back through the sum: s^2 of it to the branch, the rest along the skip
+      std::vector<double>& skip = skipped[L.skip_from];
+      const std::size_t skip_positions = L.skip_from > 0 ? layers[L.skip_from - 1].positions() : stack.input_positions();
+      if (skip.empty()) skip.assign(skip_positions, 0.0);
+      for (std::size_t p = 0; p < skip.size(); ++p) {
+        skip[p] += L.projected ? L.backward_scale() * rows[k].gradient_variance : delta[p];
+      }
+      const double s2 = L.branch_scale * L.branch_scale;
+      g2_map = delta;
+      for (double& g : g2_map) g *= s2;
+    } else if (L.map) {
       const convolution_map& m = *L.map;
       const double scale = L.weight_variance * static_cast<double>(m.out_channels() / m.groups());
       g2_map.assign(m.in_positions(), 0.0);
