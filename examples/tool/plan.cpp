@@ -77,13 +77,12 @@ std::string std_text(double variance) { return number_text(std::sqrt(variance), 
 // --measure holds the weights and, for a batch, each layer's activations forward and
 // gradients backward (doubles); refused above the tool's memory cap before anything is
 // drawn, naming --batch and the spec's widths.
-void check_measure_memory(const network_spec& spec, std::uint64_t batch) {
-  double weights = 0, units = static_cast<double>(spec.input_width);
-  double width = static_cast<double>(spec.input_width);
-  for (const layer_spec& l : spec.layers) {
-    weights += width * static_cast<double>(l.width);
-    width = static_cast<double>(l.width);
-    units += width;
+void check_measure_memory(const layer_stack& stack, std::uint64_t batch) {
+  // units: every value a sample has at each layer (channels x positions on a map)
+  double weights = 0, units = static_cast<double>(stack.input_units());
+  for (const stack_layer& l : stack.layers()) {
+    weights += static_cast<double>(l.width) * static_cast<double>(kindling::detail::weight_columns(l));
+    units += static_cast<double>(l.units());
   }
   const double peak = 8.0 * (weights + 2.0 * static_cast<double>(batch) * units);
   if (peak > static_cast<double>(memory_budget)) {
@@ -107,9 +106,9 @@ int run_plan(const plan_options& o) {
   if (o.measure && o.trials < 2) {
     throw std::invalid_argument("--trials " + std::to_string(o.trials) + ": expected at least 2 draws");
   }
-  if (o.measure) check_measure_memory(spec, o.batch);
-  if (!o.svg.empty()) check_output("--svg", o.svg, {{"SPEC", o.spec}});
   const layer_stack stack = build_stack(spec);
+  if (o.measure) check_measure_memory(stack, o.batch);
+  if (!o.svg.empty()) check_output("--svg", o.svg, {{"SPEC", o.spec}});
   const std::vector<layer_prediction> predicted = predict(stack);
   propagation_report measured;
   if (o.measure) {
