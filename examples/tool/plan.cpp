@@ -178,7 +178,13 @@ int run_plan(const plan_options& o) {
                                                   " draws of the weights, " + std::to_string(o.batch) +
                                                   " samples each (seed " + std::to_string(o.seed) + ")"
                                             : std::string(" (add --measure for measured points)"));
-    write_output("--svg", o.svg, variance_plot_svg(title, subtitle, series, stack.depth()));
+    std::vector<std::string> names;
+    std::vector<bool> warned;
+    for (std::size_t l = 0; l < stack.depth(); ++l) {
+      names.push_back(stack[l].label);
+      warned.push_back(!predicted[l].warnings.empty() || (o.measure && !measured.layers[l].agrees));
+    }
+    write_output("--svg", o.svg, variance_plot_svg(title, subtitle, series, stack.depth(), names, warned));
   }
   if (o.json) {
     json out = {{"layers", layers}, {"warnings", warnings}};
@@ -191,8 +197,12 @@ int run_plan(const plan_options& o) {
     }
     std::printf("%s\n", out.dump(2).c_str());
   } else {
-    std::printf("%s: input %llu features, E[x^2] = %s\n", spec.name.empty() ? o.spec.c_str() : spec.name.c_str(),
-                static_cast<unsigned long long>(spec.input_width), number_text(spec.input_variance).c_str());
+    std::string extent;  // a feature map: its channels over the extent
+    for (std::size_t d = 0; d < spec.input_extent.size(); ++d) extent += (d ? " x " : "") + std::to_string(spec.input_extent[d]);
+    std::printf("%s: input %llu %s, E[x^2] = %s\n", spec.name.empty() ? o.spec.c_str() : spec.name.c_str(),
+                static_cast<unsigned long long>(spec.input_width),
+                extent.empty() ? "features" : ("channels over " + extent + " positions").c_str(),
+                number_text(spec.input_variance).c_str());
     std::printf("%-3s %-9s %6s %7s %-10s %-14s %9s %11s %11s", "#", "layer", "fan_in", "fan_out", "activation",
                 "scheme", "weight_sd", "fwd_var", "bwd_var");
     if (o.measure) std::printf(" %11s %7s %11s %7s  %s", "fwd_med", "x/", "bwd_med", "x/", "agrees");

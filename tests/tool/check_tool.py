@@ -277,6 +277,14 @@ elif CASE == "json":
     for word in ("layer (depth)", "variance (log scale)", "predicted", "measured"):
         expect(word in texts, f"the SVG lacks the text {word!r}")
     expect(len(list(svg.iter("{http://www.w3.org/2000/svg}circle"))) >= 14, "the SVG lacks the measured points")
+    expect("layer1" in texts and "layer7" in texts, "the SVG's depth axis lacks the layer names")
+    expect(not any(t.get("class") == "warns" for t in svg.iter("{http://www.w3.org/2000/svg}text")),
+           "a stack that agrees everywhere, without warnings, got a warned layer in the SVG")
+    # Glorot on ReLU warns from layer 1 (above): its name is marked in the SVG
+    expect_code(0, "plan", "glorot_relu.json", "--svg", "glorot_relu.svg")
+    marked = [t.text for t in ET.parse("glorot_relu.svg").getroot().iter("{http://www.w3.org/2000/svg}text")
+              if t.get("class") == "warns"]
+    expect(marked and marked[0] == "layer1 !", f"the SVG should mark layer1 as warning, marked {marked}")
 elif CASE == "outputs":
     def npy_shape(path):
         try:
