@@ -7,7 +7,7 @@
 // from memory); Dumoulin & Visin 2016 for the geometry.  The NumPy cross-check of the
 // same passes is tests/propagate/check_convolution.py (extra.cmake).
 #include "kindling/propagate/measure.hpp"
-#include "kindling/schemes/variance_scaling.hpp"
+#include "kindling/schemes/fan_scaled.hpp"
 
 #include <doctest/doctest.h>
 

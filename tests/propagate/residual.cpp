@@ -8,7 +8,7 @@
 // derived beside predict(): for a branch independent of the stream and zero-mean last
 // weights, Var(x_{l+1}) = Var(x_l) + s^2 Var(branch(x_l)).
 #include "kindling/propagate/measure.hpp"
-#include "kindling/schemes/variance_scaling.hpp"
+#include "kindling/schemes/fan_scaled.hpp"
 
 #include <cmath>
 

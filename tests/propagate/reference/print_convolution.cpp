@@ -10,7 +10,7 @@
 
 #include "kindling/io/npy.hpp"
 #include "kindling/propagate/measure.hpp"
-#include "kindling/schemes/variance_scaling.hpp"
+#include "kindling/schemes/fan_scaled.hpp"
 
 using namespace kindling;
 
