@@ -8,8 +8,14 @@
 #include <fcntl.h>
 #include <unistd.h>
 
-#include <kindling/io/npz.hpp>
 #include <kindling/io/safetensors.hpp>
+#ifdef KINDLING_TOOL_NPZ
+#include <kindling/io/npz.hpp>
+#else
+namespace kindling {
+class npz_reader {};  // this build has no zlib: .npz files are refused
+}  // namespace kindling
+#endif
 
 namespace kindling::tool {
 
@@ -31,8 +37,13 @@ bool starts_as_zip(const std::string& path) {
 
 checkpoint::checkpoint(const std::string& path, const std::string& what) {
   if (starts_as_zip(path)) {
+#ifdef KINDLING_TOOL_NPZ
     npz_ = std::make_unique<npz_reader>(path, what);
     for (const npz_entry& e : npz_->entries()) tensors_.push_back({e.name, e.dtype, e.shape, e.data_bytes});
+#else
+    throw std::invalid_argument(what + " '" + path + "' is an .npz (zip) file, and this kindling was built without "
+                                "zlib, so without .npz support; expected a safetensors file");
+#endif
   } else {
     st_ = std::make_unique<safetensors_reader>(path, what);
     for (const safetensors_entry& e : st_->index().tensors) tensors_.push_back({e.name, e.dtype, e.shape, e.end - e.begin});
@@ -49,10 +60,12 @@ const checkpoint::tensor* checkpoint::find(const std::string& name) const {
 }
 
 void checkpoint::read(const tensor& t, const std::function<void(const char*, std::size_t)>& consume) const {
+#ifdef KINDLING_TOOL_NPZ
   if (npz_) {
     npz_->read(*npz_->find(t.name), consume);
     return;
   }
+#endif
   const safetensors_entry& e = *st_->index().find(t.name);
   std::vector<char> buffer(std::size_t{1} << 20);
   for (std::uint64_t off = 0; off < t.bytes;) {

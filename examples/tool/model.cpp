@@ -25,7 +25,9 @@
 #include <kindling/audit/structure.hpp>
 #include <kindling/audit/symmetry.hpp>
 #include <kindling/io/manifest.hpp>
+#ifdef KINDLING_TOOL_NPZ
 #include <kindling/io/npz.hpp>
+#endif
 
 #include "checkpoint.hpp"
 #include "output.hpp"
@@ -77,10 +79,16 @@ int run_assemble(const assemble_options& o) {
   }
   json manifest;
   if (npz) {
+#ifdef KINDLING_TOOL_NPZ
     npz_options zip;
     zip.compress = o.compress;
     manifest = write_model(
-        plan, seed, [&](const std::vector<npz_source>& tensors) { write_npz(o.output, tensors, zip, "-o"); }, options);
+        plan, seed, [&](const std::vector<safetensors_source>& tensors) { write_npz(o.output, tensors, zip, "-o"); },
+        options);
+#else
+    throw std::invalid_argument("-o '" + o.output + "' ends in .npz, and this kindling was built without zlib, so "
+                                "without .npz support; expected a .safetensors output");
+#endif
   } else {
     manifest = write_model_safetensors(plan, seed, o.output, "-o", options);
   }
@@ -236,7 +244,9 @@ void audit_values(const model_parameter& p, std::uint64_t seed, std::vector<char
                   tensor_verdict* out) {
   const std::vector<std::uint64_t> s = p.full_shape();
   std::vector<E> values(bytes.size() / sizeof(E));
-  std::memcpy(values.data(), bytes.data(), bytes.size());  // little-endian host (the writers check)
+  std::vector<char> host = bytes;  // the file's little-endian bytes in the host's order
+  to_little_endian(reinterpret_cast<unsigned char*>(host.data()), values.size(), sizeof(E));
+  std::memcpy(values.data(), host.data(), host.size());
   const strided_view<const E> v(values.data(), shape(s.begin(), s.end()));
   const audit_report r = scheme_report<E>(p, seed, v, bytes, alpha);
   std::vector<char>().swap(bytes);

@@ -77,13 +77,12 @@ std::string std_text(double variance) { return number_text(std::sqrt(variance), 
 // --measure holds the weights and, for a batch, each layer's activations forward and
 // gradients backward (doubles); refused above the tool's memory cap before anything is
 // drawn, naming --batch and the spec's widths.
-void check_measure_memory(const network_spec& spec, std::uint64_t batch) {
-  double weights = 0, units = static_cast<double>(spec.input_width);
-  double width = static_cast<double>(spec.input_width);
-  for (const layer_spec& l : spec.layers) {
-    weights += width * static_cast<double>(l.width);
-    width = static_cast<double>(l.width);
-    units += width;
+void check_measure_memory(const layer_stack& stack, std::uint64_t batch) {
+  // units: every value a sample has at each layer (channels x positions on a map)
+  double weights = 0, units = static_cast<double>(stack.input_units());
+  for (const stack_layer& l : stack.layers()) {
+    weights += static_cast<double>(l.width) * static_cast<double>(kindling::detail::weight_columns(l));
+    units += static_cast<double>(l.units());
   }
   const double peak = 8.0 * (weights + 2.0 * static_cast<double>(batch) * units);
   if (peak > static_cast<double>(memory_budget)) {
@@ -107,9 +106,9 @@ int run_plan(const plan_options& o) {
   if (o.measure && o.trials < 2) {
     throw std::invalid_argument("--trials " + std::to_string(o.trials) + ": expected at least 2 draws");
   }
-  if (o.measure) check_measure_memory(spec, o.batch);
-  if (!o.svg.empty()) check_output("--svg", o.svg, {{"SPEC", o.spec}});
   const layer_stack stack = build_stack(spec);
+  if (o.measure) check_measure_memory(stack, o.batch);
+  if (!o.svg.empty()) check_output("--svg", o.svg, {{"SPEC", o.spec}});
   const std::vector<layer_prediction> predicted = predict(stack);
   propagation_report measured;
   if (o.measure) {
@@ -179,7 +178,13 @@ int run_plan(const plan_options& o) {
                                                   " draws of the weights, " + std::to_string(o.batch) +
                                                   " samples each (seed " + std::to_string(o.seed) + ")"
                                             : std::string(" (add --measure for measured points)"));
-    write_output("--svg", o.svg, variance_plot_svg(title, subtitle, series, stack.depth()));
+    std::vector<std::string> names;
+    std::vector<bool> warned;
+    for (std::size_t l = 0; l < stack.depth(); ++l) {
+      names.push_back(stack[l].label);
+      warned.push_back(!predicted[l].warnings.empty() || (o.measure && !measured.layers[l].agrees));
+    }
+    write_output("--svg", o.svg, variance_plot_svg(title, subtitle, series, stack.depth(), names, warned));
   }
   if (o.json) {
     json out = {{"layers", layers}, {"warnings", warnings}};
@@ -192,8 +197,12 @@ int run_plan(const plan_options& o) {
     }
     std::printf("%s\n", out.dump(2).c_str());
   } else {
-    std::printf("%s: input %llu features, E[x^2] = %s\n", spec.name.empty() ? o.spec.c_str() : spec.name.c_str(),
-                static_cast<unsigned long long>(spec.input_width), number_text(spec.input_variance).c_str());
+    std::string extent;  // a feature map: its channels over the extent
+    for (std::size_t d = 0; d < spec.input_extent.size(); ++d) extent += (d ? " x " : "") + std::to_string(spec.input_extent[d]);
+    std::printf("%s: input %llu %s, E[x^2] = %s\n", spec.name.empty() ? o.spec.c_str() : spec.name.c_str(),
+                static_cast<unsigned long long>(spec.input_width),
+                extent.empty() ? "features" : ("channels over " + extent + " positions").c_str(),
+                number_text(spec.input_variance).c_str());
     std::printf("%-3s %-9s %6s %7s %-10s %-14s %9s %11s %11s", "#", "layer", "fan_in", "fan_out", "activation",
                 "scheme", "weight_sd", "fwd_var", "bwd_var");
     if (o.measure) std::printf(" %11s %7s %11s %7s  %s", "fwd_med", "x/", "bwd_med", "x/", "agrees");

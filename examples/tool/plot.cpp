@@ -37,10 +37,13 @@ std::string escape(const std::string& s) {
 }  // namespace
 
 std::string variance_plot_svg(const std::string& title, const std::string& subtitle,
-                              const std::vector<plot_series>& series, std::size_t depth) {
-  // The legend sits right of the plot, so it never hides a point.
-  const double width = 980, height = 480;
-  const double left = 84, right = 316, top = 66, bottom = 64;
+                              const std::vector<plot_series>& series, std::size_t depth,
+                              const std::vector<std::string>& names, const std::vector<bool>& warned) {
+  // The legend sits right of the plot, so it never hides a point; layer names, slanted,
+  // need more room below it.
+  const bool named = names.size() == depth && depth > 0;
+  const double width = 980, height = named ? 560 : 480;
+  const double left = 84, right = 316, top = 66, bottom = named ? 144 : 64;
   const double pw = width - left - right, ph = height - top - bottom;
   // The variance axis spans whole decades around every positive value.
   double lo = std::numeric_limits<double>::infinity(), hi = 0;
@@ -86,15 +89,30 @@ std::string variance_plot_svg(const std::string& title, const std::string& subti
            std::to_string(k) + "</tspan></text>\n";
     }
   }
-  // depth ticks
-  const std::size_t every = std::max<std::size_t>(1, (depth + 11) / 12);
+  // depth ticks: numbers, or the layers' names slanted (a warned layer in red, with "!"
+  // -- every warned layer is labelled, whatever the spacing)
+  const std::size_t every = std::max<std::size_t>(1, (depth + (named ? 23 : 11)) / (named ? 24 : 12));
+  bool any_warned = false;
   for (std::size_t l = 1; l <= depth; ++l) {
-    if ((l - 1) % every != 0 && l != depth) continue;
+    const bool warns = named && l - 1 < warned.size() && warned[l - 1];
+    any_warned = any_warned || warns;
+    if ((l - 1) % every != 0 && l != depth && !warns) continue;
     const double x = sx(static_cast<double>(l));
     o += "<line x1=\"" + fmt(x) + "\" y1=\"" + fmt(top + ph) + "\" x2=\"" + fmt(x) + "\" y2=\"" + fmt(top + ph + 5) +
-         "\" stroke=\"black\"/>\n";
-    o += "<text x=\"" + fmt(x) + "\" y=\"" + fmt(top + ph + 20) + "\" text-anchor=\"middle\">" + std::to_string(l) +
-         "</text>\n";
+         "\" stroke=\"" + (warns ? "#c00000" : "black") + "\"/>\n";
+    if (named) {
+      const std::string y = fmt(top + ph + 16);
+      o += "<text x=\"" + fmt(x) + "\" y=\"" + y + "\" text-anchor=\"end\" font-size=\"11\" transform=\"rotate(-40 " +
+           fmt(x) + " " + y + ")\"" + (warns ? " fill=\"#c00000\" class=\"warns\"" : "") + ">" +
+           escape(names[l - 1] + (warns ? " !" : "")) + "</text>\n";
+    } else {
+      o += "<text x=\"" + fmt(x) + "\" y=\"" + fmt(top + ph + 20) + "\" text-anchor=\"middle\">" + std::to_string(l) +
+           "</text>\n";
+    }
+  }
+  if (any_warned) {
+    o += "<text x=\"" + fmt(left + pw + 24) + "\" y=\"" + fmt(top + ph + 20) +
+         "\" fill=\"#c00000\">red, with !: the layer warns</text>\n";
   }
   o += "<rect x=\"" + fmt(left) + "\" y=\"" + fmt(top) + "\" width=\"" + fmt(pw) + "\" height=\"" + fmt(ph) +
        "\" fill=\"none\" stroke=\"black\"/>\n";

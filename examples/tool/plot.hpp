@@ -17,9 +17,12 @@ struct plot_series {
 };
 
 /// An SVG document: the series against depth 1..depth on a log-scaled variance axis,
-/// with axes, tick labels, axis titles and a legend.
+/// with axes, tick labels, axis titles and a legend.  With `names` (one a layer) the
+/// depth axis is labelled with them, and the layers `warned` marks are drawn in red with
+/// a "!" (a legend line says so).
 std::string variance_plot_svg(const std::string& title, const std::string& subtitle,
-                              const std::vector<plot_series>& series, std::size_t depth);
+                              const std::vector<plot_series>& series, std::size_t depth,
+                              const std::vector<std::string>& names = {}, const std::vector<bool>& warned = {});
 
 }  // namespace kindling::tool
 

@@ -14,12 +14,17 @@
 #define KINDLING_ELEMENT_HPP
 
 #include <cstdint>
+#include <cstring>
 #include <limits>
 #include <type_traits>
+#include <utility>
 
 #include "kindling/detail/dmath.hpp"
 
 namespace kindling {
+
+template <class E>
+struct element_traits;
 
 struct float16 {
   std::uint16_t bits;
@@ -159,21 +164,94 @@ struct element_codec<bfloat16> {
   static double value(bits b) noexcept { return static_cast<double>(to_float(bfloat16{b})); }
 };
 
-// The members every element_traits shares. from_compute rounds to nearest even, then a
-// value outside the bounds (or on an open bound) moves one representable step toward
-// the inside: it is outside only by rounding, so one step suffices whenever the
-// interval holds a representable value of E. NaN passes through.
+// The one rounding from the compute type C to the element type E under a
+// distribution's bounds: round to nearest even, then a value outside the bounds (or on
+// an open bound) moves one representable step toward the inside. It is outside only
+// by rounding, so one step suffices whenever the interval holds a value of E; NaN
+// passes through. element_traits<E>::from_compute is this rounder; fill keeps one per
+// call, and the vector writers (random/detail/lanes_body.hpp) apply its thresholds.
+//
+// The thresholds: "above the bounds (or on an open upper bound)" holds for an
+// upward-closed set of values, so for the exact value t (in C) of the rounded element
+// it is t > hi_max, hi_max the largest C not above; the same below with lo_min. Bounds
+// that give no such thresholds (never those of a valid distribution) are compared as
+// doubles instead, with the same result.
+template <class E, class = void>
+struct element_rounder {
+  // An element type without a codec (an adapter's own type, forwarding its traits to
+  // one of ours) rounds through its traits.
+  using compute = typename element_traits<E>::compute_type;
+  element_bounds bounds;
+  compute hi_max{}, lo_min{};
+  bool thresholds = false;
+  explicit element_rounder(const element_bounds& b) noexcept : bounds(b) {}
+  E operator()(compute v) const noexcept { return element_traits<E>::from_compute(v, bounds); }
+};
+
+template <class E>
+struct element_rounder<E, std::void_t<decltype(element_codec<E>::sign)>> {
+  using codec = element_codec<E>;
+  using compute = std::conditional_t<std::is_same<E, double>::value, double, float>;
+  element_bounds bounds;
+  compute hi_max, lo_min;
+  bool thresholds;
+
+  explicit element_rounder(const element_bounds& b) noexcept
+      : bounds(b), hi_max(limit(b, true)), lo_min(limit(b, false)) {
+    thresholds = hi_max == hi_max && lo_min == lo_min && lo_min <= hi_max;
+  }
+
+  E operator()(compute v) const noexcept {
+    typename codec::bits x = codec::round(v);
+    int side;
+    if (thresholds) {
+      const auto t = static_cast<compute>(codec::value(x));  // exact: E's values are C's
+      side = t > hi_max ? 1 : t < lo_min ? -1 : 0;
+    } else {
+      side = side_of(codec::value(x), bounds);
+    }
+    if (side > 0) x = step_down_bits(x, codec::sign);
+    if (side < 0) x = step_up_bits(x, codec::sign);
+    return codec::make(x);
+  }
+
+ private:
+  // The largest (upper) / smallest (lower) value of C that is not outside on that side.
+  static compute limit(const element_bounds& b, bool upper) noexcept {
+    using cbits = typename element_codec<compute>::bits;
+    constexpr cbits sign = element_codec<compute>::sign;
+    const auto outside = [&](compute t) {
+      const int side = side_of(static_cast<double>(t), b);
+      return upper ? side > 0 : side < 0;
+    };
+    const auto inward = [&](compute t) {
+      const cbits x = bits_of(t);
+      return element_codec<compute>::make(upper ? step_down_bits(x, sign) : step_up_bits(x, sign));
+    };
+    const auto outward = [&](compute t) {
+      const cbits x = bits_of(t);
+      return element_codec<compute>::make(upper ? step_up_bits(x, sign) : step_down_bits(x, sign));
+    };
+    const compute inf = std::numeric_limits<compute>::infinity();
+    compute t = static_cast<compute>(upper ? b.hi : b.lo);
+    for (int k = 0; k < 4 && t == t && outside(t); ++k) t = inward(t);
+    if (t != t || outside(t)) return std::numeric_limits<compute>::quiet_NaN();
+    for (int k = 0; k < 4 && t != (upper ? inf : -inf); ++k) {
+      const compute next = outward(t);
+      if (next != next || outside(next)) return t;
+      t = next;
+    }
+    return t == (upper ? inf : -inf) ? t : std::numeric_limits<compute>::quiet_NaN();
+  }
+};
+
+// The members every element_traits shares; from_compute is element_rounder above.
 template <class E, class Compute, unsigned Words>
 struct element_traits_base {
   using compute_type = Compute;
   static constexpr unsigned words = Words;
   static E from_compute(Compute v, const element_bounds& b) noexcept {
-    using codec = element_codec<E>;
-    typename codec::bits x = codec::round(v);
-    const int side = side_of(codec::value(x), b);
-    if (side > 0) x = step_down_bits(x, codec::sign);
-    if (side < 0) x = step_up_bits(x, codec::sign);
-    return codec::make(x);
+    return element_rounder<E>(b)(v);
   }
 };
 
@@ -247,6 +325,19 @@ template <>
 struct element_kind_of<float16> : std::integral_constant<element_kind, element_kind::f16> {};
 template <>
 struct element_kind_of<bfloat16> : std::integral_constant<element_kind, element_kind::bf16> {};
+
+/// Turns `count` elements of `item` bytes each, in the host's byte order, into their
+/// little-endian bytes in place (files are little-endian on every host; nothing to do on
+/// a little-endian one). Tested on big-endian s390x by tests/digest/tool_files.sh.
+inline void to_little_endian(unsigned char* bytes, std::uint64_t count, std::uint64_t item) noexcept {
+  const std::uint16_t one = 1;
+  unsigned char first = 0;
+  std::memcpy(&first, &one, 1);
+  if (first == 1 || item < 2) return;
+  for (std::uint64_t i = 0; i < count; ++i, bytes += item) {
+    for (std::uint64_t a = 0, b = item - 1; a < b; ++a, --b) std::swap(bytes[a], bytes[b]);
+  }
+}
 
 }  // namespace kindling
 

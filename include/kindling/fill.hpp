@@ -14,15 +14,10 @@
 //     a stack buffer of the compute type, cut where the global index crosses a
 //     multiple of 512 (a whole number of 16-block counter groups, so the generator
 //     works on full groups);
-//   - each value is rounded to the element type with element_traits<E>::from_compute
+//   - each value is rounded to the element type by element.hpp's element_rounder
 //     under the distribution's bounds and stored through the view's strides.
 //
-// An executor is anything callable as exec(n_tasks, task) with task a
-// const std::function<void(std::size_t)>&, which must call task(k) exactly once for
-// every k in [0, n_tasks), in any order, on any threads, and return when all are
-// done (rethrowing a task's exception if one threw). serial_executor,
-// thread_executor and (with OpenMP) openmp_executor are provided; a trainer's own
-// thread pool becomes one with a lambda.
+// An executor (executor.hpp) runs the chunks: anything callable as exec(n_tasks, task).
 //
 // An executor that breaks this promise is caught, not trusted: the fill marks each
 // task it completes, and if the executor throws, returns with a task never run, or
@@ -42,15 +37,14 @@
 #include <exception>
 #include <functional>
 #include <limits>
-#include <mutex>
 #include <stdexcept>
 #include <string>
-#include <thread>
 #include <type_traits>
 #include <utility>
 #include <vector>
 
 #include "kindling/element.hpp"
+#include "kindling/executor.hpp"
 #include "kindling/random/sample.hpp"
 #include "kindling/random/stream.hpp"
 #include "kindling/view.hpp"
@@ -78,95 +72,6 @@ inline constexpr std::uint64_t fill_chunk_elements = 16384;
 /// (64 elements of a 1-word type, 32 of a 2-word type).
 inline constexpr std::size_t fill_buffer_elements = 512;
 
-/// Runs the tasks one after another on the calling thread.
-struct serial_executor {
-  void operator()(std::size_t n_tasks, const std::function<void(std::size_t)>& task) const {
-    for (std::size_t k = 0; k < n_tasks; ++k) task(k);
-  }
-};
-
-/// Runs the tasks on up to `threads` threads (the calling thread is one of them),
-/// started for the call and joined before it returns. Tasks are taken in order from
-/// a shared counter. If a task throws, no further tasks start, and the first
-/// exception is rethrown in the caller once every thread has stopped.
-class thread_executor {
- public:
-  /// One thread per hardware thread (1 if the machine does not say).
-  thread_executor() noexcept : threads_(std::max(1u, std::thread::hardware_concurrency())) {}
-  explicit thread_executor(std::size_t threads) : threads_(threads) {
-    if (threads == 0) {
-      throw std::invalid_argument(
-          "kindling: argument 'threads' of thread_executor is 0; expected at least 1 thread");
-    }
-  }
-
-  std::size_t threads() const noexcept { return threads_; }
-
-  void operator()(std::size_t n_tasks, const std::function<void(std::size_t)>& task) const {
-    std::atomic<std::size_t> next{0};
-    std::atomic<bool> failed{false};
-    std::mutex error_mutex;
-    std::exception_ptr first_error;
-    auto work = [&]() noexcept {
-      for (;;) {
-        if (failed.load(std::memory_order_relaxed)) return;
-        const std::size_t k = next.fetch_add(1, std::memory_order_relaxed);
-        if (k >= n_tasks) return;
-        try {
-          task(k);
-        } catch (...) {
-          std::lock_guard<std::mutex> lock(error_mutex);
-          if (!first_error) first_error = std::current_exception();
-          failed.store(true, std::memory_order_relaxed);
-        }
-      }
-    };
-    std::vector<std::thread> helpers;
-    const std::size_t wanted = std::min(threads_, n_tasks);
-    if (wanted > 1) {
-      try {
-        helpers.reserve(wanted - 1);
-        for (std::size_t t = 1; t < wanted; ++t) helpers.emplace_back(work);
-      } catch (...) {
-        // Fewer threads than asked for: the ones running and this one share the tasks.
-      }
-    }
-    work();
-    for (std::thread& t : helpers) t.join();
-    if (first_error) std::rethrow_exception(first_error);
-  }
-
- private:
-  std::size_t threads_;
-};
-
-#if defined(_OPENMP)
-/// Runs the tasks in an OpenMP parallel loop (only when compiled with OpenMP). The
-/// first exception a task throws is rethrown in the caller after the loop.
-struct openmp_executor {
-  void operator()(std::size_t n_tasks, const std::function<void(std::size_t)>& task) const {
-    std::exception_ptr first_error;
-    const auto n = static_cast<long long>(n_tasks);
-#pragma omp parallel for schedule(dynamic, 1)
-    for (long long k = 0; k < n; ++k) {
-      try {
-        task(static_cast<std::size_t>(k));
-      } catch (...) {
-#pragma omp critical(kindling_openmp_executor)
-        if (!first_error) first_error = std::current_exception();
-      }
-    }
-    if (first_error) std::rethrow_exception(first_error);
-  }
-};
-#endif
-
-/// True if Exec can serve as an executor: callable as exec(n_tasks, task) (see the top
-/// of this header).
-template <class Exec>
-inline constexpr bool is_executor_v =
-    std::is_invocable<Exec, std::size_t, const std::function<void(std::size_t)>&>::value;
-
 namespace detail {
 
 // What fill, fill_generated, initialize and initialize_bias check at compile time before
@@ -187,89 +92,6 @@ constexpr bool writes_into() {
 inline std::size_t fill_task_count(std::uint64_t elements) noexcept {
   return static_cast<std::size_t>((elements + fill_chunk_elements - 1) / fill_chunk_elements);
 }
-
-// element_traits<E>::from_compute with the bounds turned into two thresholds in the
-// compute type C, the same result bit for bit: "above the bounds (or on an open upper
-// bound)" holds for an upward-closed set of values, so it is t > hi_max with hi_max the
-// largest C value not above, for the exact value t (in C) of the rounded element; the
-// same below with lo_min. Bounds that give no such thresholds (never those of a valid
-// distribution) keep from_compute.
-// Element types without a codec (an adapter's own type, forwarding its traits) keep
-// from_compute.
-template <class E, class = void>
-struct element_rounder {
-  using compute = compute_type_t<E>;
-  element_bounds bounds;
-  compute hi_max{}, lo_min{};
-  bool thresholds = false;
-  explicit element_rounder(const element_bounds& b) noexcept : bounds(b) {}
-  E operator()(compute v) const noexcept { return element_traits<E>::from_compute(v, bounds); }
-};
-
-template <class E>
-struct element_rounder<E, std::void_t<decltype(element_codec<E>::sign)>> {
-  using compute = compute_type_t<E>;
-  using codec = element_codec<E>;
-  element_bounds bounds;
-  compute hi_max, lo_min;
-  bool thresholds;
-
-  explicit element_rounder(const element_bounds& b) noexcept
-      : bounds(b), hi_max(limit(b, true)), lo_min(limit(b, false)) {
-    thresholds = hi_max == hi_max && lo_min == lo_min && lo_min <= hi_max;
-  }
-
-  static compute exact_value(typename codec::bits x) noexcept {
-    if constexpr (std::is_same<E, float16>::value) {
-      return to_float(float16{x});
-    } else if constexpr (std::is_same<E, bfloat16>::value) {
-      return to_float(bfloat16{x});
-    } else {
-      return codec::make(x);
-    }
-  }
-
-  E operator()(compute v) const noexcept {
-    if (!thresholds) return element_traits<E>::from_compute(v, bounds);
-    typename codec::bits x = codec::round(v);
-    const compute t = exact_value(x);
-    if (t > hi_max) {
-      x = step_down_bits(x, codec::sign);
-    } else if (t < lo_min) {
-      x = step_up_bits(x, codec::sign);
-    }
-    return codec::make(x);
-  }
-
- private:
-  // The largest (upper) / smallest (lower) value of C that is not outside on that side.
-  static compute limit(const element_bounds& b, bool upper) noexcept {
-    using cbits = typename element_codec<compute>::bits;
-    constexpr cbits sign = element_codec<compute>::sign;
-    const auto outside = [&](compute t) {
-      const double d = static_cast<double>(t);
-      return upper ? (d > b.hi || (b.hi_open && d == b.hi)) : (d < b.lo || (b.lo_open && d == b.lo));
-    };
-    const auto inward = [&](compute t) {
-      const cbits x = bits_of(t);
-      return element_codec<compute>::make(upper ? step_down_bits(x, sign) : step_up_bits(x, sign));
-    };
-    const auto outward = [&](compute t) {
-      const cbits x = bits_of(t);
-      return element_codec<compute>::make(upper ? step_up_bits(x, sign) : step_down_bits(x, sign));
-    };
-    const compute inf = std::numeric_limits<compute>::infinity();
-    compute t = static_cast<compute>(upper ? b.hi : b.lo);
-    for (int k = 0; k < 4 && t == t && outside(t); ++k) t = inward(t);
-    if (t != t || outside(t)) return std::numeric_limits<compute>::quiet_NaN();
-    for (int k = 0; k < 4 && t != (upper ? inf : -inf); ++k) {
-      const compute next = outward(t);
-      if (next != next || outside(next)) return t;
-      t = next;
-    }
-    return t == (upper ? inf : -inf) ? t : std::numeric_limits<compute>::quiet_NaN();
-  }
-};
 
 // Elements rounded and stored to contiguous memory: the vector paths of
 // random/detail/lanes.hpp for float and bfloat16, the rounder for the rest.

@@ -210,7 +210,6 @@ class gaussian_quadrature {
       : rule_(detail::gauss_hermite_rule(nodes)) {}
 
   std::size_t nodes() const noexcept { return rule_.nodes.size(); }
-  const std::vector<double>& abscissas() const noexcept { return rule_.nodes; }
   // Probability weights: they sum to 1.
   const std::vector<double>& weights() const noexcept { return rule_.weights; }
 

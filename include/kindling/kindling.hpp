@@ -7,10 +7,12 @@
 #define KINDLING_KINDLING_HPP
 
 #include "kindling/element.hpp"
+#include "kindling/executor.hpp"
 #include "kindling/fan.hpp"
 #include "kindling/fill.hpp"
 #include "kindling/gain.hpp"
 #include "kindling/random/philox.hpp"
+#include "kindling/random/philox_engine.hpp"
 #include "kindling/random/sample.hpp"
 #include "kindling/random/siphash.hpp"
 #include "kindling/random/stream.hpp"

@@ -5,12 +5,14 @@
 #                                           exits 1 if any line differs (or a build fails)
 #   tests/digest/compare.sh CXX [FLAGS...]  one build; prints its lines
 #
-# The four builds (DESIGN.md, "The reproducibility contract"):
+# The six builds (DESIGN.md, "The reproducibility contract"):
 #   g++ -O0
 #   g++ -O3 -march=native
 #   clang++ -O2 -march=native -ffp-contract=fast
 #   aarch64-linux-gnu-g++ -O2 -static, run under qemu-aarch64
-# A compiler whose name starts with "aarch64-" is run under qemu-aarch64.
+#   riscv64-linux-gnu-g++ -O2 -static, run under qemu-riscv64
+#   s390x-linux-gnu-g++ -O2 -static, run under qemu-s390x (big-endian)
+# A cross compiler ARCH-linux-gnu-g++ (Debian's naming) is run under qemu-ARCH.
 set -euo pipefail
 
 here=$(cd "$(dirname "$0")" && pwd)
@@ -28,7 +30,7 @@ build_and_run() {
   local exe="$work/digest.$RANDOM$RANDOM"
   "$cxx" "${common[@]}" "$@" "$here/digest.cpp" -o "$exe"
   case "$(basename "$cxx")" in
-    aarch64-*) qemu-aarch64 "$exe" >"$out" ;;
+    *-linux-gnu-*) "qemu-$(basename "$cxx" | cut -d- -f1)" "$exe" >"$out" ;;
     *) "$exe" >"$out" ;;
   esac
 }
@@ -40,9 +42,13 @@ if [ $# -gt 0 ]; then
 fi
 
 names=("g++ -O0" "g++ -O3 -march=native" "clang++ -O2 -march=native -ffp-contract=fast"
-       "aarch64-linux-gnu-g++ -O2 -static (qemu-aarch64)")
+       "aarch64-linux-gnu-g++ -O2 -static (qemu-aarch64)"
+       "riscv64-linux-gnu-g++ -O2 -static (qemu-riscv64)"
+       "s390x-linux-gnu-g++ -O2 -static (qemu-s390x, big-endian)")
 configs=("g++ -O0" "g++ -O3 -march=native" "clang++ -O2 -march=native -ffp-contract=fast"
-         "aarch64-linux-gnu-g++ -O2 -static")
+         "aarch64-linux-gnu-g++ -O2 -static"
+         "riscv64-linux-gnu-g++ -O2 -static"
+         "s390x-linux-gnu-g++ -O2 -static")
 
 status=0
 for k in "${!configs[@]}"; do

@@ -1,6 +1,6 @@
 // Tests of include/kindling/gain.hpp.
 //
-// External values (from /work/shared/REFERENCES.md unless noted):
+// External values (from tests/REFERENCES.md unless noted):
 //   E[relu(z)^2] = 1/2, so the ReLU gain is sqrt(2)             He et al., ICCV 2015
 //   leaky ReLU gain sqrt(2 / (1 + a^2))                           He et al. 2015, eq. 14
 //   E[tanh(z)^2] = 0.39429449039784126, 1/sqrt = 1.5925374197228312   scipy.integrate.quad

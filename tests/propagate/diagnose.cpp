@@ -99,6 +99,21 @@ TEST_CASE("a Glorot tanh network passes every pass diagnostic (Glorot & Bengio 2
   }
 }
 
+TEST_CASE("a dense stack on a flattened feature map is diagnosed with channels x positions inputs") {
+  layer_stack s = layer_stack::feature_maps(2, {4, 3});  // 24 inputs a sample
+  s.add_dense(16, activation::tanh(), glorot_normal{}).add_dense(3, activation::identity(), glorot_normal{});
+  CHECK(s[0].fans.fan_in == 24);
+  const realized_stack net = realize(s, make_stream(4, "net"));
+  const audit_report r = diagnose_initialization(s, net, 64, make_stream(4, "batch"));
+  CAPTURE(r.explain());
+  CHECK(r.passed());
+  Eigen::MatrixXd two_rows(2, 8), g(3, 8);
+  two_rows.setOnes();
+  g.setOnes();
+  CHECK(mentions(message_of<std::invalid_argument>([&] { diagnose_pass(s, net, two_rows, g); }),
+                 "expected 24 rows"));
+}
+
 // He ReLU, width 64, depth 3, batch 256: a unit of layer 1 is dead with probability
 // 2^-256 (its pre-activations are symmetric and independent across samples); in the
 // deeper layers the ReLU's positive mean gives each unit an offset of about 0.7 of its

@@ -6,3 +6,14 @@ kindling_reference_check(
   AREA propagate PROGRAM kindling_propagate_print
   SOURCE reference/print_critical.cpp SCRIPT check_critical.py
   NAME "propagate: tanh critical points match scipy quad and brentq")
+
+# (The measured pass needs Eigen: kindling_eigen, present whenever this area is built.)
+# Convolution passes checked against NumPy (Debian python3-numpy, /usr/bin/python3): the
+# printer exports draw 0 of four convolution stacks (weights, biases, inputs, output
+# gradients as .npy, and kindling's measured moments), and check_convolution.py redoes
+# the forward and backward passes with numpy.pad, strided slices and numpy.einsum.
+kindling_reference_check(
+  AREA propagate PROGRAM kindling_propagate_print_convolution
+  SOURCE reference/print_convolution.cpp SCRIPT check_convolution.py
+  NAME "propagate: convolution passes match a NumPy computation from the same weights")
+target_link_libraries(kindling_propagate_print_convolution PRIVATE kindling_eigen)

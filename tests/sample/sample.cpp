@@ -340,8 +340,10 @@ TEST_CASE("bad distribution parameters are rejected naming the field, before any
   auto rejects = [&](const auto& d, const std::string& field) {
     CAPTURE(field);
     const std::string msg = message_of([&] { dist::validate(d); });
-    CHECK_MESSAGE(msg.find(field + " = ") != std::string::npos, "expected the message to name " << field << ": " << msg);
-    CHECK_MESSAGE(msg.find("expected") != std::string::npos, "expected the message to say what was expected: " << msg);
+    // The core's message style: kindling::<function>: argument '<name>' = <value>, expected <what>.
+    CHECK_MESSAGE(msg.rfind("kindling::dist::", 0) == 0, "expected the message to name the call: " << msg);
+    CHECK_MESSAGE(msg.find("argument '" + field + "' = ") != std::string::npos, "expected the message to name " << field << ": " << msg);
+    CHECK_MESSAGE(msg.find(", expected ") != std::string::npos, "expected the message to say what was expected: " << msg);
     CHECK_THROWS_AS(dist::validate(d), std::domain_error);
     std::vector<float> f(40, 7.0f);
     std::vector<double> g(40, 7.0);
@@ -386,12 +388,12 @@ TEST_CASE("bad distribution parameters are rejected naming the field, before any
     rejects(dist::truncated_normal{0, 1, 2, -2}, "cut_hi");
     rejects(dist::truncated_normal{0, 1, 15, 16}, "cut_lo");  // probability 3e-51 < 2^-100
     CHECK_THROWS_AS(kindling::truncated_normal_stddev(1, 1), std::domain_error);
-    CHECK(message_of([] { kindling::truncated_normal_stddev(3, 1); }).find("cut_hi = 1") != std::string::npos);
+    CHECK(message_of([] { kindling::truncated_normal_stddev(3, 1); }).find("argument 'cut_hi' = 1, expected") != std::string::npos);
   }
   SUBCASE("the run itself") {
     std::vector<double> g(4, 7.0);
     CHECK_THROWS_AS(dist::generate(dist::normal{0, 1}, s, 0, 0, 4, static_cast<double*>(nullptr)), std::invalid_argument);
-    CHECK(message_of([&] { dist::generate(dist::normal{0, 1}, s, 0, 0, 4, static_cast<float*>(nullptr)); }).find("out = ") !=
+    CHECK(message_of([&] { dist::generate(dist::normal{0, 1}, s, 0, 0, 4, static_cast<float*>(nullptr)); }).find("kindling::dist::generate: argument 'out' = nullptr, expected") !=
           std::string::npos);
     CHECK_THROWS_AS(dist::generate(dist::normal{0, 1}, s, 0, std::numeric_limits<std::uint64_t>::max() - 2, 4, g.data()),
                     std::length_error);

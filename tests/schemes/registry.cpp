@@ -1,6 +1,6 @@
 // Tests of kindling/schemes/registry.hpp: scheme values by name, their text, and that a
 // registry scheme writes the same bits as the scheme type it stands for. The variance
-// formulas the schemes implement are checked against their papers in variance_scaling.cpp.
+// formulas the schemes implement are checked against their papers in fan_scaled.cpp.
 #include <doctest/doctest.h>
 
 #include <stdexcept>

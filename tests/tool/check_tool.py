@@ -271,11 +271,43 @@ elif CASE == "json":
             expect(set(m) >= {"median", "spread_factor", "mean_over_predicted", "band_factor", "agrees", "draws"}
                    and len(m["draws"]) == 16, f"layer {l['index']} {side}: {m}")
     expect(all(l["agrees"] for l in doc["layers"]), "a Glorot tanh stack should agree at every layer")
+    # a belt-fault detector: 1-D convolutions on a 3-channel map, a residual block, a dense
+    # head (kindling/io/spec.hpp "conv" and "residual"), measured layer by layer
+    with open("belt.json", "w") as f:
+        json.dump({"input": {"width": 3, "extent": [48]},
+                   "layers": [{"width": 16, "activation": "relu", "scheme": "he-normal",
+                               "conv": {"kernel": [5], "padding": "same"}},
+                              {"width": 16, "activation": "relu", "scheme": "he-normal",
+                               "conv": {"kernel": [3], "stride": [2], "padding": [1], "groups": 4}},
+                              {"residual": {"layers": [
+                                  {"width": 16, "activation": "relu", "scheme": "he-normal",
+                                   "conv": {"kernel": [3], "padding": "same"}},
+                                  {"width": 16, "activation": "identity", "scheme": "he-normal",
+                                   "conv": {"kernel": [3], "padding": "same"}}],
+                                  "scaling": "inverse-sqrt", "blocks": 1}},
+                              {"width": 4, "activation": "identity", "scheme": "glorot-uniform"}]}, f)
+    doc = json.loads(expect_code(0, "plan", "belt.json", "--measure", "--batch", "32", "--json")[0])
+    expect(len(doc["layers"]) == 6 and all(l["agrees"] for l in doc["layers"]),
+           f"the belt-fault detector should agree at every layer: {[l.get('agrees') for l in doc['layers']]}")
+    with open("belt_bad.json", "w") as f:
+        json.dump({"input": {"width": 3, "extent": [4]},
+                   "layers": [{"width": 8, "activation": "relu", "scheme": "he-normal", "conv": {"kernel": [7]}}]}, f)
+    _, err = expect_code(2, "plan", "belt_bad.json")
+    expect("layers[0].conv.kernel" in err and "larger than the padded input 4" in err,
+           f"expected the kernel's key and reason in the plan error, got {err!r}")
     svg = ET.parse("net.svg").getroot()
     texts = " ".join(t.text or "" for t in svg.iter("{http://www.w3.org/2000/svg}text"))
     for word in ("layer (depth)", "variance (log scale)", "predicted", "measured"):
         expect(word in texts, f"the SVG lacks the text {word!r}")
     expect(len(list(svg.iter("{http://www.w3.org/2000/svg}circle"))) >= 14, "the SVG lacks the measured points")
+    expect("layer1" in texts and "layer7" in texts, "the SVG's depth axis lacks the layer names")
+    expect(not any(t.get("class") == "warns" for t in svg.iter("{http://www.w3.org/2000/svg}text")),
+           "a stack that agrees everywhere, without warnings, got a warned layer in the SVG")
+    # Glorot on ReLU warns from layer 1 (above): its name is marked in the SVG
+    expect_code(0, "plan", "glorot_relu.json", "--svg", "glorot_relu.svg")
+    marked = [t.text for t in ET.parse("glorot_relu.svg").getroot().iter("{http://www.w3.org/2000/svg}text")
+              if t.get("class") == "warns"]
+    expect(marked and marked[0] == "layer1 !", f"the SVG should mark layer1 as warning, marked {marked}")
 elif CASE == "outputs":
     def npy_shape(path):
         try:

@@ -34,7 +34,9 @@
 // the member and what was expected.
 //
 // Needs zlib (Debian zlib1g-dev; CMake: the kindling::npz target, or link ZLIB::ZLIB)
-// and POSIX; kindling's core does not include it. Little-endian hosts only for writing.
+// and POSIX; kindling's core does not include it. The sources hand the writer
+// little-endian bytes, as write_safetensors's do, and every zip field is written byte by
+// byte, so any host writes the same file.
 #ifndef KINDLING_IO_NPZ_HPP
 #define KINDLING_IO_NPZ_HPP
 
@@ -203,9 +205,6 @@ class zip_member_writer {
 inline void write_npz(const std::string& path, const std::vector<npz_source>& arrays, const npz_options& options = {},
                       const std::string& what = "output") {
   using namespace detail;
-  if (!host_is_little_endian()) {
-    throw std::runtime_error("kindling::write_npz: this host is big-endian, expected a little-endian host");
-  }
   if (options.compress && (options.level < 1 || options.level > 9)) {
     throw std::invalid_argument("kindling::write_npz: argument 'options.level' = " + std::to_string(options.level) +
                                 ", expected a zlib level from 1 to 9");

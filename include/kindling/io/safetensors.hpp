@@ -17,8 +17,9 @@
 // (no overlap, no gap, nothing out of range). Every failure is std::invalid_argument
 // naming the file, the tensor or key, the value and what was expected.
 //
-// Element types: F16, BF16, F32, F64. POSIX (pread) and nlohmann-json; little-endian
-// hosts only (the writer refuses to run elsewhere rather than write wrong bytes).
+// Element types: F16, BF16, F32, F64. POSIX (pread) and nlohmann-json. The writer's
+// sources hand it little-endian bytes on any host (parameter_bytes of model/plan.hpp
+// converts with to_little_endian), so a big-endian host writes the same file.
 #ifndef KINDLING_IO_SAFETENSORS_HPP
 #define KINDLING_IO_SAFETENSORS_HPP
 
@@ -84,13 +85,6 @@ struct safetensors_index {
 };
 
 namespace detail {
-
-inline bool host_is_little_endian() {
-  const std::uint16_t one = 1;
-  unsigned char first = 0;
-  std::memcpy(&first, &one, 1);
-  return first == 1;
-}
 
 [[noreturn]] inline void st_fail(const std::string& source, const std::string& what) {
   throw std::invalid_argument("safetensors " + source + ": " + what);
@@ -312,9 +306,6 @@ inline constexpr std::size_t safetensors_chunk_bytes = std::size_t{1} << 20;
 inline void write_safetensors(const std::string& path, const std::vector<safetensors_source>& tensors,
                               const std::map<std::string, std::string>& metadata = {},
                               const std::string& what = "output") {
-  if (!detail::host_is_little_endian()) {
-    throw std::runtime_error("kindling::write_safetensors: this host is big-endian, expected a little-endian host");
-  }
   nlohmann::json header = nlohmann::json::object();
   if (!metadata.empty()) header["__metadata__"] = metadata;
   std::set<std::string> seen;

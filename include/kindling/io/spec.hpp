@@ -18,6 +18,28 @@
 // spec_max_bytes, nested at most spec_max_depth levels; a gain whose square (the weight
 // variance factor) overflows or vanishes is refused under its key.
 //
+// Feature maps, convolutions and residual blocks:
+//
+//   {"input": {"width": 3, "extent": [64]},                       channels over a 1-D map
+//    "layers": [{"width": 16, "activation": "relu", "scheme": "he-normal",
+//                "conv": {"kernel": [5], "stride": [2], "padding": "same", "dilation": [1],
+//                         "groups": 1}},
+//               {"residual": {"layers": [...], "scaling": "inverse-sqrt", "blocks": 4,
+//                             "projection": "lecun-normal"}, "label": "block1"}]}
+//
+// "input.extent" (1 to 3 positive integers) makes the input a feature map of "width"
+// channels.  A layer with "conv" is a convolution of "width" output channels placed on
+// the map below it: "kernel" required, "stride" and "dilation" (default 1 on every
+// axis), "padding" (zeros on each side, default 0; "same" for dilation (k - 1) / 2),
+// "groups" (default 1).  A layer with "residual" holds only "residual" and "label": its
+// "layers" are the branch (read from the top of the stack), "scaling" is none
+// (default), inverse-sqrt (1/sqrt(blocks)), fixup or fixup-keep-last (Fixup's rule,
+// with or without the last branch layer zeroed), "blocks" the L of those rules
+// (required by them), "projection" a scheme for a dense projection skip.  What only the
+// stack can check -- a kernel larger than the padded input, groups that do not divide
+// the channels, a branch whose width does not match its skip -- is refused naming the
+// key (layers[2].conv.kernel, layers[0].residual.layers) with the library's reason.
+//
 // Needs nlohmann-json (Debian nlohmann-json3-dev) and, for the orthogonal scheme's
 // variance, Eigen; the core of kindling needs neither.
 #ifndef KINDLING_IO_SPEC_HPP
@@ -54,12 +76,26 @@ struct layer_spec {
   std::optional<double> stddev;    // "std" of the normal and uniform schemes
   double bias_variance = 0;
   std::string label;
+  /// A convolution ("conv"): kernel, stride, padding (or same), dilation, groups.
+  bool convolution = false;
+  std::vector<std::uint64_t> kernel, stride, padding, dilation;
+  bool same_padding = false;
+  std::uint64_t groups = 1;
+  /// A residual block ("residual"): its branch, scaling rule, blocks, projection scheme.
+  bool residual = false;
+  std::vector<layer_spec> branch;
+  std::string scaling = "none";
+  std::uint64_t blocks = 1;
+  std::string projection;
+  /// Where the layer sits in the spec (e.g. "layers[2]"), for messages.
+  std::string path;
 };
 
 /// A network spec: the input and the dense layers on top of it.
 struct network_spec {
   std::string name;
   std::uint64_t input_width = 0;
+  std::vector<std::uint64_t> input_extent;  // empty: features, not a map
   double input_variance = 1;
   std::vector<layer_spec> layers;
 };
@@ -199,7 +235,118 @@ inline double spec_gain(const nlohmann::json& v, const std::string& source, cons
   return g;
 }
 
+inline std::vector<std::uint64_t> spec_sizes(const nlohmann::json& v, const std::string& source, const std::string& path,
+                                             std::size_t rank, bool positive) {
+  const std::string expected = (rank == 0 ? std::string("1 to 3") : std::to_string(rank)) +
+                               (positive ? " positive integers" : " integers >= 0");
+  if (!v.is_array() || v.empty() || v.size() > 3 || (rank != 0 && v.size() != rank)) {
+    spec_fail(source, path, spec_value_text(v), "an array of " + expected + (rank != 0 ? " (one per kernel axis)" : ""));
+  }
+  std::vector<std::uint64_t> out;
+  for (const nlohmann::json& e : v) {
+    const bool ok = e.is_number_unsigned() || (e.is_number_integer() && e.get<std::int64_t>() >= 0);
+    if (!ok || (positive && e.get<std::uint64_t>() == 0) || e.get<std::uint64_t>() > (std::uint64_t{1} << 32)) {
+      spec_fail(source, path, spec_value_text(v), "an array of " + expected + " up to 2^32");
+    }
+    out.push_back(e.get<std::uint64_t>());
+  }
+  return out;
+}
+
+inline const std::vector<std::string>& spec_scaling_names() {
+  static const std::vector<std::string> names{"none", "inverse-sqrt", "fixup", "fixup-keep-last"};
+  return names;
+}
+
+inline layer_spec spec_layer(const nlohmann::json& l, const std::string& source, const std::string& path);
+
+inline std::vector<layer_spec> spec_layers(const nlohmann::json& layers, const std::string& source,
+                                           const std::string& path) {
+  if (!layers.is_array() || layers.empty()) spec_fail(source, path, spec_value_text(layers), "a non-empty array of layers");
+  std::vector<layer_spec> out;
+  for (std::size_t i = 0; i < layers.size(); ++i) out.push_back(spec_layer(layers[i], source, path + "[" + std::to_string(i) + "]"));
+  return out;
+}
+
+inline void spec_residual(const nlohmann::json& l, const std::string& source, const std::string& path, layer_spec& s) {
+  spec_keys(l, source, path, {"residual", "label"});
+  const nlohmann::json& r = l["residual"];
+  const std::string rpath = path + ".residual";
+  spec_keys(r, source, rpath, {"layers", "scaling", "blocks", "projection"});
+  s.residual = true;
+  s.branch = spec_layers(spec_required(r, source, rpath, "layers"), source, rpath + ".layers");
+  if (r.contains("scaling")) s.scaling = spec_name(r["scaling"], source, rpath + ".scaling", spec_scaling_names());
+  if (r.contains("blocks")) {
+    s.blocks = spec_width(r["blocks"], source, rpath + ".blocks");
+  } else if (s.scaling != "none") {
+    throw std::invalid_argument("kindling network spec " + source + ": '" + rpath + "' has scaling '" + s.scaling +
+                                "' but no key 'blocks', expected the number of residual blocks L of the rule");
+  }
+  if (r.contains("projection")) s.projection = spec_name(r["projection"], source, rpath + ".projection", spec_scheme_names());
+  if (l.contains("label")) s.label = spec_name(l["label"], source, path + ".label", {});
+}
+
+inline void spec_convolution(const nlohmann::json& c, const std::string& source, const std::string& path, layer_spec& s) {
+  spec_keys(c, source, path, {"kernel", "stride", "padding", "dilation", "groups"});
+  s.convolution = true;
+  s.kernel = spec_sizes(spec_required(c, source, path, "kernel"), source, path + ".kernel", 0, true);
+  const std::size_t rank = s.kernel.size();
+  if (c.contains("stride")) s.stride = spec_sizes(c["stride"], source, path + ".stride", rank, true);
+  if (c.contains("dilation")) s.dilation = spec_sizes(c["dilation"], source, path + ".dilation", rank, true);
+  if (c.contains("padding")) {
+    if (c["padding"].is_string()) {
+      spec_name(c["padding"], source, path + ".padding", {"same"});
+      s.same_padding = true;
+      for (std::uint64_t k : s.kernel) {
+        if (k % 2 == 0) spec_fail(source, path + ".padding", "\"same\"", "odd kernel sizes for \"same\" padding (kernel " +
+                                  shape_text(s.kernel) + ")");
+      }
+    } else {
+      s.padding = spec_sizes(c["padding"], source, path + ".padding", rank, false);
+    }
+  }
+  if (c.contains("groups")) s.groups = spec_width(c["groups"], source, path + ".groups");
+}
+
+inline layer_spec spec_layer(const nlohmann::json& l, const std::string& source, const std::string& path) {
+  layer_spec s;
+  s.path = path;
+  if (l.is_object() && l.contains("residual")) {
+    spec_residual(l, source, path, s);
+    return s;
+  }
+  spec_keys(l, source, path, {"width", "activation", "scheme", "gain", "bias_variance", "slope", "std", "label", "conv"});
+  s.width = spec_width(spec_required(l, source, path, "width"), source, path + ".width");
+  s.activation = spec_name(spec_required(l, source, path, "activation"), source, path + ".activation",
+                           spec_activation_names());
+  s.scheme = spec_name(spec_required(l, source, path, "scheme"), source, path + ".scheme", spec_scheme_names());
+  if (l.contains("gain")) s.gain = spec_gain(l["gain"], source, path + ".gain");
+  if (l.contains("bias_variance")) s.bias_variance = spec_number(l["bias_variance"], source, path + ".bias_variance", false, true);
+  if (l.contains("slope")) {
+    if (s.activation != "leaky_relu") {
+      spec_fail(source, path + ".slope", spec_value_text(l["slope"]), "no 'slope' unless the activation is leaky_relu");
+    }
+    s.slope = spec_number(l["slope"], source, path + ".slope", false, true);
+  }
+  const bool fixed = s.scheme == "normal" || s.scheme == "uniform";
+  if (l.contains("std")) {
+    if (!fixed) spec_fail(source, path + ".std", spec_value_text(l["std"]), "no 'std' unless the scheme is normal or uniform");
+    s.stddev = spec_number(l["std"], source, path + ".std", true, false);
+  } else if (fixed) {
+    throw std::invalid_argument("kindling network spec " + source + ": '" + path + "' has scheme '" + s.scheme +
+                                "' but no key 'std', expected its standard deviation");
+  }
+  if (s.gain && fixed) {
+    spec_fail(source, path + ".gain", spec_value_text(l["gain"]), "no 'gain' with scheme '" + s.scheme + "' (give 'std')");
+  }
+  if (l.contains("label")) s.label = spec_name(l["label"], source, path + ".label", {});
+  if (l.contains("conv")) spec_convolution(l["conv"], source, path + ".conv", s);
+  return s;
+}
+
 }  // namespace detail
+
+inline layer_stack build_stack(const network_spec& spec);
 
 /// Parses the JSON text of a network spec; `source` names it in messages.
 inline network_spec parse_network_spec(const std::string& text, const std::string& source = "(text)") {
@@ -237,41 +384,20 @@ inline network_spec parse_network_spec(const std::string& text, const std::strin
   spec_keys(doc, source, "(top)", {"name", "input", "layers"});
   if (doc.contains("name")) spec.name = spec_name(doc["name"], source, "name", {});
   const nlohmann::json& input = spec_required(doc, source, "(top)", "input");
-  spec_keys(input, source, "input", {"width", "variance"});
+  spec_keys(input, source, "input", {"width", "variance", "extent"});
   spec.input_width = spec_width(spec_required(input, source, "input", "width"), source, "input.width");
   if (input.contains("variance")) spec.input_variance = spec_number(input["variance"], source, "input.variance", true, false);
-  const nlohmann::json& layers = spec_required(doc, source, "(top)", "layers");
-  if (!layers.is_array() || layers.empty()) spec_fail(source, "layers", spec_value_text(layers), "a non-empty array of layers");
-  for (std::size_t i = 0; i < layers.size(); ++i) {
-    const std::string path = "layers[" + std::to_string(i) + "]";
-    const nlohmann::json& l = layers[i];
-    spec_keys(l, source, path, {"width", "activation", "scheme", "gain", "bias_variance", "slope", "std", "label"});
-    layer_spec s;
-    s.width = spec_width(spec_required(l, source, path, "width"), source, path + ".width");
-    s.activation = spec_name(spec_required(l, source, path, "activation"), source, path + ".activation",
-                             spec_activation_names());
-    s.scheme = spec_name(spec_required(l, source, path, "scheme"), source, path + ".scheme", spec_scheme_names());
-    if (l.contains("gain")) s.gain = spec_gain(l["gain"], source, path + ".gain");
-    if (l.contains("bias_variance")) s.bias_variance = spec_number(l["bias_variance"], source, path + ".bias_variance", false, true);
-    if (l.contains("slope")) {
-      if (s.activation != "leaky_relu") {
-        spec_fail(source, path + ".slope", spec_value_text(l["slope"]), "no 'slope' unless the activation is leaky_relu");
-      }
-      s.slope = spec_number(l["slope"], source, path + ".slope", false, true);
-    }
-    const bool fixed = s.scheme == "normal" || s.scheme == "uniform";
-    if (l.contains("std")) {
-      if (!fixed) spec_fail(source, path + ".std", spec_value_text(l["std"]), "no 'std' unless the scheme is normal or uniform");
-      s.stddev = spec_number(l["std"], source, path + ".std", true, false);
-    } else if (fixed) {
-      throw std::invalid_argument("kindling network spec " + source + ": '" + path + "' has scheme '" + s.scheme +
-                                  "' but no key 'std', expected its standard deviation");
-    }
-    if (s.gain && fixed) {
-      spec_fail(source, path + ".gain", spec_value_text(l["gain"]), "no 'gain' with scheme '" + s.scheme + "' (give 'std')");
-    }
-    if (l.contains("label")) s.label = spec_name(l["label"], source, path + ".label", {});
-    spec.layers.push_back(s);
+  if (input.contains("extent")) spec.input_extent = spec_sizes(input["extent"], source, "input.extent", 0, true);
+  spec.layers = spec_layers(spec_required(doc, source, "(top)", "layers"), source, "layers");
+  // What only the stack can check (geometry, channels, branch widths), under its key.
+  try {
+    build_stack(spec);
+  } catch (const std::invalid_argument& e) {
+    const std::string what = e.what(), named = "kindling network spec: ";
+    throw std::invalid_argument("kindling network spec " + source + ": " +
+                                (what.rfind(named, 0) == 0 ? what.substr(named.size()) : what));
+  } catch (const std::length_error& e) {
+    throw std::invalid_argument("kindling network spec " + source + ": " + e.what());
   }
   return spec;
 }
@@ -300,34 +426,92 @@ inline activation spec_activation(const layer_spec& l) {
                               detail::spec_join(spec_activation_names()));
 }
 
+namespace detail {
+// Calls f with the scheme a spec names, for the schemes whose variance the analysis knows.
+template <class F>
+void with_spec_scheme(const std::string& name, const scheme_arguments_list& given, F&& f) {
+  const scheme_value scheme = make_scheme_value(name, given, "kindling::build_stack: argument 'scheme'");
+  std::visit(
+      [&](const auto& sc) {
+        using S = std::decay_t<decltype(sc)>;
+        if constexpr (has_variance<S>::value || std::is_same<S, fixed_normal>::value ||
+                      std::is_same<S, fixed_uniform>::value || std::is_same<S, orthogonal>::value) {
+          f(sc);
+        } else {
+          throw std::invalid_argument("kindling::build_stack: argument 'scheme' = '" + name + "', expected one of " +
+                                      spec_join(spec_scheme_names()));
+        }
+      },
+      scheme.variant());
+}
+
+// The key a library refusal belongs to: the messages name the argument that failed.
+inline std::string spec_key_of(const layer_spec& l, const std::string& what) {
+  if (l.residual) return l.path + ".residual.layers";
+  if (!l.convolution) return l.path;
+  if (what.find("groups") != std::string::npos) return l.path + ".conv.groups";
+  if (what.find("in_channels") != std::string::npos || what.find("feature map") != std::string::npos) return l.path + ".conv";
+  return l.path + ".conv.kernel";
+}
+
+inline void spec_add_layers(layer_stack& stack, const std::vector<layer_spec>& layers) {
+  for (const layer_spec& l : layers) {
+    try {
+      if (l.residual) {
+        layer_stack branch = stack.top_extent().empty() ? layer_stack(stack.top_width())
+                                                        : layer_stack::feature_maps(stack.top_width(), stack.top_extent());
+        spec_add_layers(branch, l.branch);
+        const residual_scaling scaling = l.scaling == "inverse-sqrt"      ? residual_scaling::inverse_sqrt(l.blocks)
+                                         : l.scaling == "fixup"           ? residual_scaling::fixup(l.blocks)
+                                         : l.scaling == "fixup-keep-last" ? residual_scaling::fixup(l.blocks, false)
+                                                                          : residual_scaling::none();
+        if (l.projection.empty()) {
+          stack.add_residual(branch, scaling, l.label);
+        } else {
+          with_spec_scheme(l.projection, {}, [&](const auto& sc) { stack.add_projected_residual(branch, sc, scaling, l.label); });
+        }
+        continue;
+      }
+      const activation act = spec_activation(l);
+      const double slope = l.activation == "leaky_relu" ? l.slope : 0.0;
+      // The scheme comes from the registry (schemes/registry.hpp), as everywhere else.
+      scheme_arguments_list given;
+      if (l.gain) given.emplace_back("gain", *l.gain);
+      if (l.stddev) given.emplace_back("std", *l.stddev);
+      const scheme_entry* entry = find_scheme_entry(l.scheme);
+      if (slope != 0.0 && entry != nullptr && entry->argument("slope") != nullptr) given.emplace_back("slope", slope);
+      with_spec_scheme(l.scheme, given, [&](const auto& sc) {
+        if (!l.convolution) {
+          stack.add_dense(l.width, act, sc, l.bias_variance, l.label);
+          return;
+        }
+        if (stack.top_extent().empty()) {
+          throw std::invalid_argument("a convolution needs a feature map below it, expected 'input.extent' and no dense "
+                                      "layer below the convolution");
+        }
+        const convolution conv(stack.top_width(), l.width, l.kernel, l.groups);
+        convolution_geometry g{l.stride, l.padding, l.dilation};
+        if (l.same_padding) g.padding = same_padding(l.kernel, l.dilation);
+        stack.add_convolution(conv, g, act, sc, l.bias_variance, l.label);
+      });
+    } catch (const std::invalid_argument& e) {
+      const std::string what = e.what();
+      if (what.rfind("kindling network spec", 0) == 0) throw;  // already named (an inner branch layer)
+      throw std::invalid_argument("kindling network spec: '" + spec_key_of(l, what) + "' is refused: " + what);
+    }
+  }
+}
+}  // namespace detail
+
 /// The layer stack a spec describes. A gain on a He or LeCun scheme scales its standard
 /// deviation: Var W = gain^2 / fan (the fan of the scheme), drawn as that scheme draws;
-/// He schemes under leaky_relu use its slope (He et al. 2015, eq. 14).
+/// He schemes under leaky_relu use its slope (He et al. 2015, eq. 14).  Convolutions are
+/// placed on the map below them, residual branches read the top of the stack.
 inline layer_stack build_stack(const network_spec& spec) {
-  layer_stack stack(spec.input_width, spec.input_variance);
-  for (const layer_spec& l : spec.layers) {
-    const activation act = spec_activation(l);
-    const double slope = l.activation == "leaky_relu" ? l.slope : 0.0;
-    // The scheme comes from the registry (schemes/registry.hpp), as everywhere else.
-    scheme_arguments_list given;
-    if (l.gain) given.emplace_back("gain", *l.gain);
-    if (l.stddev) given.emplace_back("std", *l.stddev);
-    const scheme_entry* entry = find_scheme_entry(l.scheme);
-    if (slope != 0.0 && entry != nullptr && entry->argument("slope") != nullptr) given.emplace_back("slope", slope);
-    const scheme_value scheme = make_scheme_value(l.scheme, given, "kindling::build_stack: argument 'scheme'");
-    std::visit(
-        [&](const auto& sc) {
-          using S = std::decay_t<decltype(sc)>;
-          if constexpr (detail::has_variance<S>::value || std::is_same<S, fixed_normal>::value ||
-                        std::is_same<S, fixed_uniform>::value || std::is_same<S, orthogonal>::value) {
-            stack.add_dense(l.width, act, sc, l.bias_variance, l.label);
-          } else {
-            throw std::invalid_argument("kindling::build_stack: argument 'scheme' = '" + l.scheme +
-                                        "', expected one of " + detail::spec_join(spec_scheme_names()));
-          }
-        },
-        scheme.variant());
-  }
+  layer_stack stack = spec.input_extent.empty()
+                          ? layer_stack(spec.input_width, spec.input_variance)
+                          : layer_stack::feature_maps(spec.input_width, spec.input_extent, spec.input_variance);
+  detail::spec_add_layers(stack, spec.layers);
   return stack;
 }
 

@@ -200,7 +200,8 @@ class parameter_bytes {
     if (threads_ > 1) initialize_parameter(p_, seed_, v, thread_executor(threads_));
     else initialize_parameter(p_, seed_, v);
     block_.resize(values.size() * sizeof(E));
-    std::memcpy(block_.data(), values.data(), block_.size());  // little-endian host (checked by the writers)
+    std::memcpy(block_.data(), values.data(), block_.size());
+    to_little_endian(reinterpret_cast<unsigned char*>(block_.data()), values.size(), sizeof(E));
   }
   void compute(std::uint64_t row) {
     const std::uint64_t rows = std::min(rows_per_block_, shape_[0] - row);

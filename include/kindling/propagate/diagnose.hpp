@@ -142,9 +142,9 @@ inline audit_report diagnose_pass(const layer_stack& stack, const realized_stack
   constexpr const char* where = "kindling::diagnose_pass";
   detail::require_dense_stack(stack, where);
   detail::check_diagnosis_options(options, where);
-  if (input.rows() != detail::eigen_index(stack.input_width()) || input.cols() == 0) {
+  if (input.rows() != detail::eigen_index(stack.input_units()) || input.cols() == 0) {
     throw std::invalid_argument(std::string(where) + ": argument 'input' is " + std::to_string(input.rows()) + " x " +
-                                std::to_string(input.cols()) + ", expected " + std::to_string(stack.input_width()) +
+                                std::to_string(input.cols()) + ", expected " + std::to_string(stack.input_units()) +
                                 " rows and at least one column");
   }
   if (net.weights.size() != stack.depth()) {
@@ -313,7 +313,7 @@ audit_report diagnose_initialization(const layer_stack& stack, const realized_st
     throw std::invalid_argument(std::string(where) + ": argument 'batch' = " + std::to_string(batch) +
                                 ", expected at least 2 samples (one sample cannot tell a dead unit from a quiet one)");
   }
-  Eigen::MatrixXd x(detail::eigen_index(stack.input_width()), detail::eigen_index(batch));
+  Eigen::MatrixXd x(detail::eigen_index(stack.input_units()), detail::eigen_index(batch));
   fill(view_of(x), dist::normal{0.0, std::sqrt(stack.input_second_moment())}, s.named("input"));
   Eigen::MatrixXd g(detail::eigen_index(stack.top_width()), detail::eigen_index(batch));
   fill(view_of(g), dist::normal{0.0, 1.0}, s.named("output_gradient"));

@@ -22,6 +22,7 @@
 #include <cstdio>
 #include <cstddef>
 #include <limits>
+#include <map>
 #include <stdexcept>
 #include <string>
 #include <vector>
@@ -36,6 +37,24 @@ inline void require_variance(double v, const char* where, const char* argument) 
     throw std::domain_error(std::string(where) + ": argument '" + argument + "' = " +
                             argument_text(v) + ", expected a finite number >= 0");
   }
+}
+inline double mean_of(const std::vector<double>& v) {
+  double sum = 0.0;
+  for (double x : v) sum += x;
+  return sum / static_cast<double>(v.size());
+}
+// phi's moment at each position's q; positions share few distinct q (interior ones all
+// the same), so each distinct q is integrated once.
+template <class Moment>
+std::vector<double> moments_at(const std::vector<double>& q, const Moment& moment) {
+  std::map<double, double> seen;
+  std::vector<double> out(q.size());
+  for (std::size_t p = 0; p < q.size(); ++p) {
+    auto it = seen.find(q[p]);
+    if (it == seen.end()) it = seen.emplace(q[p], moment(q[p])).first;
+    out[p] = it->second;
+  }
+  return out;
 }
 inline double depth_scale(double slope) {
   // -1 / ln(slope); infinite at slope 1 (and for slope > 1, the scale of departure).
@@ -244,6 +263,19 @@ inline std::string drift_sentence(const char* pass, const char* what, const drif
 ///   backward: E[g^2] of the loss gradient at the output, then E[delta_l^2] of each
 ///             layer's pre-activation gradient (what its weight gradient is made of,
 ///             dL/dW_l = delta_l a_{l-1}^T), from the output down.
+/// Convolutions placed on a feature map (layer_stack::feature_maps) are followed position
+/// by position: output position p of a convolution with Var W per weight gets
+///   q_l(p) = Var W (in / groups) sum_{taps t in the input} E[a_{l-1}^2](source(p, t)) + sigma_b^2,
+/// the dense rule with the fan-in counted over the taps that fall inside the input (He et
+/// al., ICCV 2015, sec. 2.2: a convolution is a dense layer of fan-in k^2 c; Xiao et al.,
+/// ICML 2018: the mean-field variance of a convolution averages the layer below over the
+/// filter window, from memory).  Interior positions get fan_in Var W E[a^2] + sigma_b^2;
+/// border positions that read padding get less, and the layer's row is the mean over its
+/// positions, which is what the measured pass averages.  Backward, an input position gets
+///   E[(dL/da)^2](s) = Var W (out / groups) sum_{(p, t) reading s} E[delta_l^2](p),
+/// so the positions a stride skips or a border cuts get less than fan_out Var W.  A
+/// dense layer on a map reads its flattened features: fan_in = channels x positions,
+/// the mean of E[a^2] over them.  Every step is exact in the limit of many channels.
 /// A run of consecutive steps -- the input -> layer-1 step and the loss -> layer-L step
 /// included -- is warned about when its second moment changes by more than warn_factor
 /// both per unit and per layer (the per-unit value times the layer's width).  The two
@@ -264,11 +296,15 @@ inline std::vector<layer_prediction> predict(const layer_stack& stack,
   const auto& layers = stack.layers();
   const std::size_t n = layers.size();
   std::vector<layer_prediction> rows(n);
-  double a2 = stack.input_second_moment();  // E[a_{l-1}^2]
-  std::vector<double> slope2(n);
+  // E[a_{l-1}^2] per position of the layer below (one entry for a dense layer).
+  std::vector<double> a2_map(stack.input_positions(), stack.input_second_moment());
+  // E[a^2] maps of the input (0) and every layer's output (l + 1), for residual skips.
+  std::vector<std::vector<double>> a2_out{a2_map};
+  double a2 = stack.input_second_moment();  // its mean
+  std::vector<std::vector<double>> slope2(n);
   std::vector<double> fwd_unit(n + 1), fwd_layer(n + 1);
   fwd_unit[0] = a2;
-  fwd_layer[0] = a2 * static_cast<double>(stack.input_width());
+  fwd_layer[0] = a2 * static_cast<double>(stack.input_units());
   for (std::size_t l = 0; l < n; ++l) {
     const stack_layer& L = layers[l];
     layer_prediction& r = rows[l];
@@ -276,27 +312,92 @@ inline std::vector<layer_prediction> predict(const layer_stack& stack,
     r.width = L.width;
     r.forward_scale = L.forward_scale();
     r.backward_scale = L.backward_scale();
-    r.preactivation_variance = L.forward_scale() * a2 + L.bias_variance;
-    r.activation_moment = L.act.second_moment(r.preactivation_variance);
+    std::vector<double> q;
+    if (L.residual) {
+      // x + s branch(x): the branch's last weights are zero-mean and independent of x, so
+      // the cross term vanishes and E[h^2] = E[skip(x)^2] + s^2 E[branch(x)^2] (Hanin &
+      // Rolnick, NeurIPS 2018; Zhang et al., ICLR 2019, sec. 2)
+      const std::vector<double>& x = a2_out[L.skip_from];
+      const double s2 = L.branch_scale * L.branch_scale;
+      q.resize(a2_map.size());
+      for (std::size_t p = 0; p < q.size(); ++p) {
+        q[p] = (L.projected ? L.forward_scale() * detail::mean_of(x) : x[p]) + s2 * a2_map[p];
+      }
+    } else if (L.map) {
+      const convolution_map& m = *L.map;
+      const double scale = L.weight_variance * static_cast<double>(m.in_channels() / m.groups());
+      q.assign(m.out_positions(), 0.0);
+      for (std::uint64_t p = 0; p < m.out_positions(); ++p) {
+        double sum = 0.0;
+        for (std::uint64_t t = 0; t < m.taps(); ++t) {
+          const std::int64_t src = m.source(p, t);
+          if (src >= 0) sum += a2_map[static_cast<std::size_t>(src)];
+        }
+        q[p] = scale * sum + L.bias_variance;
+      }
+    } else {
+      q.assign(1, L.forward_scale() * a2 + L.bias_variance);
+    }
+    r.preactivation_variance = detail::mean_of(q);
+    a2_map = detail::moments_at(q, [&L](double v) { return L.act.second_moment(v); });
+    a2_out.push_back(a2_map);
+    slope2[l] = detail::moments_at(q, [&L](double v) { return L.act.slope_second_moment(v); });
+    r.activation_moment = detail::mean_of(a2_map);
     r.forward_factor = a2 > 0.0 ? r.activation_moment / a2
                                 : (r.activation_moment > 0.0 ? std::numeric_limits<double>::infinity() : 1.0);
     a2 = r.activation_moment;
-    slope2[l] = L.act.slope_second_moment(r.preactivation_variance);
     fwd_unit[l + 1] = a2;
-    fwd_layer[l + 1] = a2 * static_cast<double>(L.width);
+    fwd_layer[l + 1] = a2 * static_cast<double>(L.units());
   }
-  double g2 = options.output_gradient_variance;  // E[(dL/da_l)^2]
+  // E[(dL/da_l)^2] per position of the layer's output, from the loss gradient down.
+  std::vector<double> g2_map(layers.back().positions(), options.output_gradient_variance);
   // Points of the backward pass: p = 0 the loss gradient g at the output, p >= 1 delta of
   // layer index n - p (0-based), i.e. from the top layer down.
   std::vector<double> bwd_unit(n + 1), bwd_layer(n + 1);
-  bwd_unit[0] = g2;
-  bwd_layer[0] = g2 * static_cast<double>(layers.back().width);
+  bwd_unit[0] = options.output_gradient_variance;
+  bwd_layer[0] = options.output_gradient_variance * static_cast<double>(layers.back().units());
+  // Gradients a residual sum sends back along its skip, waiting for the layer whose
+  // output was the block's input (index as a2_out).
+  std::vector<std::vector<double>> skipped(n + 1);
   for (std::size_t k = n; k-- > 0;) {
-    rows[k].chi = (k + 1 < n ? layers[k + 1].backward_scale() : 1.0) * slope2[k];
-    rows[k].gradient_variance = slope2[k] * g2;
-    g2 = layers[k].backward_scale() * rows[k].gradient_variance;
+    const stack_layer& L = layers[k];
+    if (!skipped[k + 1].empty()) {
+      for (std::size_t p = 0; p < g2_map.size(); ++p) g2_map[p] += skipped[k + 1][p];
+    }
+    std::vector<double> delta(g2_map.size());
+    for (std::size_t p = 0; p < delta.size(); ++p) delta[p] = slope2[k][p] * g2_map[p];
+    const double above = k + 1 == n ? 1.0
+                         : layers[k + 1].residual ? layers[k + 1].branch_scale * layers[k + 1].branch_scale
+                                                  : layers[k + 1].backward_scale();
+    rows[k].chi = above * detail::mean_of(slope2[k]);
+    rows[k].gradient_variance = detail::mean_of(delta);
+    const std::uint64_t below = k > 0 ? layers[k - 1].positions() : stack.input_positions();
+    if (L.residual) {
+      // back through the sum: s^2 of it to the branch, the rest along the skip
+      std::vector<double>& skip = skipped[L.skip_from];
+      const std::size_t skip_positions = L.skip_from > 0 ? layers[L.skip_from - 1].positions() : stack.input_positions();
+      if (skip.empty()) skip.assign(skip_positions, 0.0);
+      for (std::size_t p = 0; p < skip.size(); ++p) {
+        skip[p] += L.projected ? L.backward_scale() * rows[k].gradient_variance : delta[p];
+      }
+      const double s2 = L.branch_scale * L.branch_scale;
+      g2_map = delta;
+      for (double& g : g2_map) g *= s2;
+    } else if (L.map) {
+      const convolution_map& m = *L.map;
+      const double scale = L.weight_variance * static_cast<double>(m.out_channels() / m.groups());
+      g2_map.assign(m.in_positions(), 0.0);
+      for (std::uint64_t p = 0; p < m.out_positions(); ++p) {
+        for (std::uint64_t t = 0; t < m.taps(); ++t) {
+          const std::int64_t src = m.source(p, t);
+          if (src >= 0) g2_map[static_cast<std::size_t>(src)] += scale * delta[p];
+        }
+      }
+    } else {
+      g2_map.assign(below, L.backward_scale() * rows[k].gradient_variance);
+    }
     bwd_unit[n - k] = rows[k].gradient_variance;
-    bwd_layer[n - k] = rows[k].gradient_variance * static_cast<double>(layers[k].width);
+    bwd_layer[n - k] = rows[k].gradient_variance * static_cast<double>(L.units());
   }
 
   const double log_limit = std::log(options.warn_factor);

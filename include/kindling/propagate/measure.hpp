@@ -1,4 +1,5 @@
-// kindling/propagate/measure.hpp (Eigen): measured propagation.  The dense stack is
+// kindling/propagate/measure.hpp (Eigen): measured propagation.  The stack (dense layers,
+// convolutions placed on feature maps, residual sums) is
 // initialized for real, several times (independent draws), a random batch goes forward
 // and a random output gradient goes back through each draw, and per layer the second
 // moments of the pre-activations h_l and of the gradients dL/dh_l are set beside the
@@ -8,7 +9,8 @@
 // Draws.  Draw k (k = 0 .. trials-1) uses the stream t = s.indexed(k): weights and biases
 // as realize(stack, t) draws them (`label.weight`, `label.bias`), inputs N(0, E[x^2])
 // from t.named("input") and output gradients N(0, E[g^2]) from t.named("output_gradient"),
-// each a [width, batch] matrix.  In draw k the measured moment of a layer is
+// each a [units, batch] matrix (units: features, or channels x positions of a map, one
+// column a sample, channel-major).  In draw k the measured moment of a layer is
 //     m_k = mean over units and samples of h^2 (forward) or of (dL/dh)^2 (backward).
 //
 // Why several draws.  The mean-field value is an average over weight draws; one network
@@ -77,6 +79,7 @@
 
 #include "../eigen.hpp"
 #include "../schemes/orthogonal.hpp"
+#include "convolution_pass.hpp"
 #include "mean_field.hpp"
 
 namespace kindling {
@@ -87,33 +90,125 @@ inline double weight_variance_of(const orthogonal& s, const fans& f) {
   return s.gain * s.gain / static_cast<double>(std::max(f.fan_in, f.fan_out));
 }
 
-/// The parameters of a dense stack, drawn.
+/// The parameters of a stack, drawn.
 struct realized_stack {
-  std::vector<Eigen::MatrixXd> weights;  // [width, in_width]
-  std::vector<Eigen::VectorXd> biases;
+  std::vector<Eigen::MatrixXd> weights;  // [width, in_width]; convolutions [out, in / groups x taps]
+  std::vector<Eigen::VectorXd> biases;   // [width] (one a channel for convolutions)
 };
 
 namespace detail {
+/// Dense layers only (the pass diagnostics read weight rows as units).
 inline void require_dense_stack(const layer_stack& stack, const char* where) {
   stack.require_layers(where);
   for (const stack_layer& l : stack.layers()) {
     if (!l.dense || !l.draw) {
       throw std::invalid_argument(std::string(where) + ": layer '" + l.label +
-                                  "' of argument 'stack' is a convolution, expected dense layers "
-                                  "only (convolutions are analysed through their fans by predict())");
+                                  "' of argument 'stack' is a convolution or a residual sum, expected dense "
+                                  "layers only");
+    }
+  }
+}
+/// Layers the measured pass can run: dense ones and convolutions placed on a map.
+inline void require_runnable_stack(const layer_stack& stack, const char* where) {
+  stack.require_layers(where);
+  for (const stack_layer& l : stack.layers()) {
+    if (!l.draw) {
+      throw std::invalid_argument(std::string(where) + ": layer '" + l.label +
+                                  "' of argument 'stack' is a convolution without a spatial extent, expected dense "
+                                  "layers or convolutions placed on a feature map (build the stack with "
+                                  "layer_stack::feature_maps; a convolution without an extent is analysed through "
+                                  "its fans by predict())");
     }
   }
 }
 inline Eigen::Index eigen_index(std::uint64_t n) { return static_cast<Eigen::Index>(n); }
+/// Columns of a layer's weight matrix: in_width (dense) or in / groups x taps.
+inline Eigen::Index weight_columns(const stack_layer& l) {
+  if (l.residual && !l.projected) return 0;  // an identity skip has no weight
+  return l.map ? eigen_index(l.map->in_channels() / l.map->groups() * l.map->taps()) : eigen_index(l.in_width);
+}
+/// h = W a + b (dense) or the convolution of a (convolution_pass.hpp).
+inline void layer_forward(const stack_layer& l, const Eigen::MatrixXd& w, const Eigen::VectorXd& b,
+                          const Eigen::MatrixXd& a, Eigen::MatrixXd& h) {
+  if (l.map) {
+    convolution_forward(*l.map, w, b, a, h);
+    return;
+  }
+  h.noalias() = w * a;
+  h.colwise() += b;
+}
+/// The gradient with respect to the layer's input from delta, that with respect to h.
+inline void layer_backward(const stack_layer& l, const Eigen::MatrixXd& w, const Eigen::MatrixXd& delta,
+                           Eigen::MatrixXd& d) {
+  if (l.map) {
+    convolution_backward(*l.map, w, delta, d);
+    return;
+  }
+  d.noalias() = w.transpose() * delta;
+}
+
+/// One slice of samples through the stack: forward from `a` (the input), then back from
+/// `d` (the loss gradient at the output); pre(l, h_l) and grad(l, dL/dh_l) see every
+/// layer.  A residual sum adds its skip to s times the branch's output and sends the
+/// gradient back both ways (the skip's share waits for the block's input layer).
+template <class Pre, class Grad>
+void run_slice(const layer_stack& stack, const realized_stack& net, Eigen::MatrixXd a, Eigen::MatrixXd d, Pre&& pre,
+               Grad&& grad) {
+  const auto& layers = stack.layers();
+  const std::size_t n = layers.size();
+  std::vector<Eigen::MatrixXd> h(n), kept(n + 1), skipped(n + 1);  // kept/skipped: 0 the input, l + 1 layer l
+  std::vector<bool> keep(n + 1, false);
+  for (const stack_layer& l : layers) if (l.residual) keep[l.skip_from] = true;
+  if (keep[0]) kept[0] = a;
+  for (std::size_t l = 0; l < n; ++l) {
+    const stack_layer& L = layers[l];
+    if (L.residual) {
+      h[l] = L.branch_scale * a;
+      if (L.projected) h[l].noalias() += net.weights[l] * kept[L.skip_from];
+      else h[l] += kept[L.skip_from];
+    } else {
+      layer_forward(L, net.weights[l], net.biases[l], a, h[l]);
+    }
+    pre(l, h[l]);
+    const nonlinearity& phi = L.act;
+    a = h[l].unaryExpr([&phi](double x) { return phi(x); });
+    if (keep[l + 1]) kept[l + 1] = a;
+  }
+  for (std::size_t k = n; k-- > 0;) {
+    const stack_layer& L = layers[k];
+    if (skipped[k + 1].size() > 0) d += skipped[k + 1];
+    const nonlinearity& phi = L.act;
+    const Eigen::MatrixXd delta = h[k].unaryExpr([&phi](double x) { return phi.slope(x); }).cwiseProduct(d);
+    grad(k, delta);
+    if (L.residual) {
+      Eigen::MatrixXd& skip = skipped[L.skip_from];
+      if (skip.size() == 0) skip.setZero(L.projected ? net.weights[k].cols() : delta.rows(), delta.cols());
+      if (L.projected) skip.noalias() += net.weights[k].transpose() * delta;
+      else skip += delta;
+      d = L.branch_scale * delta;
+    } else if (k > 0) {
+      layer_backward(L, net.weights[k], delta, d);
+    }
+  }
+}
 }  // namespace detail
 
-/// Draws every weight and bias of a dense stack from stream s.
+/// Draws every weight and bias of a stack from stream s (convolutions as their
+/// [out, in / groups, kernel...] tensor, then read row-major as [out, in / groups x taps]).
 inline realized_stack realize(const layer_stack& stack, const stream& s) {
-  detail::require_dense_stack(stack, "kindling::realize");
+  detail::require_runnable_stack(stack, "kindling::realize");
   realized_stack r;
   for (const stack_layer& l : stack.layers()) {
-    Eigen::MatrixXd w(detail::eigen_index(l.width), detail::eigen_index(l.in_width));
-    l.draw(view_of(w), s.named(l.label + ".weight"));
+    Eigen::MatrixXd w(detail::eigen_index(l.width), detail::weight_columns(l));
+    if (l.map) {
+      Eigen::Matrix<double, Eigen::Dynamic, Eigen::Dynamic, Eigen::RowMajor> rows(w.rows(), w.cols());
+      std::vector<std::uint64_t> dims{l.map->out_channels(), l.map->in_channels() / l.map->groups()};
+      dims.insert(dims.end(), l.map->kernel().begin(), l.map->kernel().end());
+      l.draw(strided_view<double>(rows.data(), shape(dims.begin(), dims.end())), s.named(l.label + ".weight"));
+      w = rows;
+    } else if (w.cols() > 0) {
+      l.draw(view_of(w), s.named(l.label + ".weight"));
+    }
     Eigen::VectorXd b = Eigen::VectorXd::Zero(detail::eigen_index(l.width));
     if (l.bias_variance > 0.0) fill(view_of(b), dist::normal{0.0, std::sqrt(l.bias_variance)}, s.named(l.label + ".bias"));
     r.weights.push_back(std::move(w));
@@ -138,7 +233,7 @@ template <class Exec = serial_executor>
 pass_record run_pass(const layer_stack& stack, const realized_stack& net, const Eigen::MatrixXd& input,
                      const Eigen::MatrixXd& output_gradient, Exec&& exec = Exec{}) {
   constexpr const char* where = "kindling::run_pass";
-  detail::require_dense_stack(stack, where);
+  detail::require_runnable_stack(stack, where);
   const auto& layers = stack.layers();
   if (net.weights.size() != layers.size() || net.biases.size() != layers.size()) {
     throw std::invalid_argument(std::string(where) + ": argument 'net' has " +
@@ -147,53 +242,41 @@ pass_record run_pass(const layer_stack& stack, const realized_stack& net, const 
   }
   for (std::size_t l = 0; l < layers.size(); ++l) {
     if (net.weights[l].rows() != detail::eigen_index(layers[l].width) ||
-        net.weights[l].cols() != detail::eigen_index(layers[l].in_width) ||
+        net.weights[l].cols() != detail::weight_columns(layers[l]) ||
         net.biases[l].size() != detail::eigen_index(layers[l].width)) {
       throw std::invalid_argument(std::string(where) + ": argument 'net' layer " + std::to_string(l) +
                                   " has a weight of " + std::to_string(net.weights[l].rows()) + " x " +
                                   std::to_string(net.weights[l].cols()) + ", expected " +
-                                  std::to_string(layers[l].width) + " x " + std::to_string(layers[l].in_width));
+                                  std::to_string(layers[l].width) + " x " +
+                                  std::to_string(detail::weight_columns(layers[l])));
     }
   }
-  if (input.rows() != detail::eigen_index(stack.input_width()) || input.cols() == 0) {
+  if (input.rows() != detail::eigen_index(stack.input_units()) || input.cols() == 0) {
     throw std::invalid_argument(std::string(where) + ": argument 'input' has " + std::to_string(input.rows()) +
                                 " rows and " + std::to_string(input.cols()) + " columns, expected " +
-                                std::to_string(stack.input_width()) + " rows and at least one column");
+                                std::to_string(stack.input_units()) + " rows and at least one column");
   }
-  if (output_gradient.rows() != detail::eigen_index(stack.top_width()) ||
+  if (output_gradient.rows() != detail::eigen_index(stack.layers().back().units()) ||
       output_gradient.cols() != input.cols()) {
     throw std::invalid_argument(std::string(where) + ": argument 'output_gradient' is " +
                                 std::to_string(output_gradient.rows()) + " x " +
                                 std::to_string(output_gradient.cols()) + ", expected " +
-                                std::to_string(stack.top_width()) + " x " + std::to_string(input.cols()));
+                                std::to_string(stack.layers().back().units()) + " x " + std::to_string(input.cols()));
   }
   const Eigen::Index batch = input.cols();
   pass_record rec;
   for (const stack_layer& l : layers) {
-    rec.pre.emplace_back(detail::eigen_index(l.width), batch);
-    rec.grad.emplace_back(detail::eigen_index(l.width), batch);
+    rec.pre.emplace_back(detail::eigen_index(l.units()), batch);
+    rec.grad.emplace_back(detail::eigen_index(l.units()), batch);
   }
   const Eigen::Index tasks = (batch + pass_task_columns - 1) / pass_task_columns;
   const auto task = [&](std::size_t t) {
     const Eigen::Index c0 = static_cast<Eigen::Index>(t) * pass_task_columns;
     const Eigen::Index nc = std::min(pass_task_columns, batch - c0);
-    Eigen::MatrixXd a = input.middleCols(c0, nc);
-    for (std::size_t l = 0; l < layers.size(); ++l) {
-      Eigen::MatrixXd h = net.weights[l] * a;
-      h.colwise() += net.biases[l];
-      rec.pre[l].middleCols(c0, nc) = h;
-      const nonlinearity& phi = layers[l].act;
-      a = h.unaryExpr([&phi](double x) { return phi(x); });
-    }
-    Eigen::MatrixXd d = output_gradient.middleCols(c0, nc);
-    for (std::size_t k = layers.size(); k-- > 0;) {
-      const nonlinearity& phi = layers[k].act;
-      const Eigen::MatrixXd slope =
-          rec.pre[k].middleCols(c0, nc).unaryExpr([&phi](double x) { return phi.slope(x); });
-      Eigen::MatrixXd delta = slope.cwiseProduct(d);
-      rec.grad[k].middleCols(c0, nc) = delta;
-      if (k > 0) d = net.weights[k].transpose() * delta;
-    }
+    detail::run_slice(
+        stack, net, input.middleCols(c0, nc), output_gradient.middleCols(c0, nc),
+        [&](std::size_t l, const Eigen::MatrixXd& h) { rec.pre[l].middleCols(c0, nc) = h; },
+        [&](std::size_t l, const Eigen::MatrixXd& delta) { rec.grad[l].middleCols(c0, nc) = delta; });
   };
   exec(static_cast<std::size_t>(tasks), std::function<void(std::size_t)>(task));
   return rec;
@@ -373,33 +456,22 @@ inline draw_moments measure_draw(const layer_stack& stack, const stream& t, std:
   const stream inputs = t.named("input"), gradients = t.named("output_gradient");
   const dist::normal x_dist{0.0, std::sqrt(stack.input_second_moment())};
   const dist::normal g_dist{0.0, std::sqrt(output_gradient_variance)};
-  const shape x_shape(stack.input_width(), batch), g_shape(stack.top_width(), batch);
+  const shape x_shape(stack.input_units(), batch), g_shape(layers.back().units(), batch);
   draw_moments m{std::vector<double>(n, 0.0), std::vector<double>(n, 0.0)};
-  std::vector<Eigen::MatrixXd> h(n);
   const auto columns = static_cast<Eigen::Index>(batch);
   for (Eigen::Index c0 = 0; c0 < columns; c0 += pass_task_columns) {
     const Eigen::Index nc = std::min(pass_task_columns, columns - c0);
     const auto offset = static_cast<std::uint64_t>(c0);
-    Eigen::MatrixXd a(eigen_index(stack.input_width()), nc);
+    Eigen::MatrixXd a(eigen_index(stack.input_units()), nc);
     fill(view_of(a).as_part_of(x_shape, shape(std::uint64_t{0}, offset)), x_dist, inputs);
-    for (std::size_t l = 0; l < n; ++l) {
-      h[l].noalias() = net.weights[l] * a;
-      h[l].colwise() += net.biases[l];
-      m.pre[l] += h[l].squaredNorm();
-      const nonlinearity& phi = layers[l].act;
-      a = h[l].unaryExpr([&phi](double x) { return phi(x); });
-    }
-    Eigen::MatrixXd d(eigen_index(stack.top_width()), nc);
+    Eigen::MatrixXd d(eigen_index(layers.back().units()), nc);
     fill(view_of(d).as_part_of(g_shape, shape(std::uint64_t{0}, offset)), g_dist, gradients);
-    for (std::size_t k = n; k-- > 0;) {
-      const nonlinearity& phi = layers[k].act;
-      const Eigen::MatrixXd delta = h[k].unaryExpr([&phi](double x) { return phi.slope(x); }).cwiseProduct(d);
-      m.grad[k] += delta.squaredNorm();
-      if (k > 0) d.noalias() = net.weights[k].transpose() * delta;
-    }
+    run_slice(
+        stack, net, std::move(a), std::move(d), [&m](std::size_t l, const Eigen::MatrixXd& h) { m.pre[l] += h.squaredNorm(); },
+        [&m](std::size_t l, const Eigen::MatrixXd& delta) { m.grad[l] += delta.squaredNorm(); });
   }
   for (std::size_t l = 0; l < n; ++l) {
-    const double count = static_cast<double>(layers[l].width) * static_cast<double>(batch);
+    const double count = static_cast<double>(layers[l].units()) * static_cast<double>(batch);
     m.pre[l] /= count;
     m.grad[l] /= count;
   }
@@ -431,7 +503,7 @@ propagation_report compare_propagation(const layer_stack& stack, const std::vect
                                        std::uint64_t batch, const stream& s, const measure_options& options = {},
                                        Exec&& exec = Exec{}) {
   constexpr const char* where = "kindling::compare_propagation";
-  detail::require_dense_stack(stack, where);
+  detail::require_runnable_stack(stack, where);
   detail::check_options(options.analysis, where);
   detail::check_measure_options(options, where);
   if (batch < 1) {
@@ -464,9 +536,13 @@ propagation_report compare_propagation(const layer_stack& stack, const std::vect
                                                 options.trials - 1);
   // Finite-width paths: forward sum_{k<l} 1/n_k; backward the whole forward pass below
   // the top layer, then sum_{k>l} 1/n_k from the output down.
+  // An identity residual sum draws nothing and adds no term.
+  const auto term = [&layers](std::size_t k) {
+    return layers[k].residual && !layers[k].projected ? 0.0 : 1.0 / static_cast<double>(layers[k].width);
+  };
   std::vector<double> below(n, 0.0), above(n, 0.0);
-  for (std::size_t l = 1; l < n; ++l) below[l] = below[l - 1] + 1.0 / static_cast<double>(layers[l - 1].width);
-  for (std::size_t l = n - 1; l-- > 0;) above[l] = above[l + 1] + 1.0 / static_cast<double>(layers[l + 1].width);
+  for (std::size_t l = 1; l < n; ++l) below[l] = below[l - 1] + term(l - 1);
+  for (std::size_t l = n - 1; l-- > 0;) above[l] = above[l + 1] + term(l + 1);
   const double c = options.finite_width_allowance;
   for (std::size_t l = 0; l < n; ++l) {
     std::vector<double> fwd(options.trials), bwd(options.trials);
@@ -491,7 +567,7 @@ propagation_report compare_propagation(const layer_stack& stack, const std::vect
 template <class Exec = serial_executor>
 propagation_report compare_propagation(const layer_stack& stack, std::uint64_t batch, const stream& s,
                                        const measure_options& options = {}, Exec&& exec = Exec{}) {
-  detail::require_dense_stack(stack, "kindling::compare_propagation");
+  detail::require_runnable_stack(stack, "kindling::compare_propagation");
   return compare_propagation(stack, predict(stack, options.analysis), batch, s, options, std::forward<Exec>(exec));
 }
 

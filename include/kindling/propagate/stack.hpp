@@ -7,8 +7,22 @@
 //   h_l = W_l a_{l-1} + b_l,   a_l = phi_l(h_l),   a_0 = the input x,
 // W_l with i.i.d. zero-mean entries of variance Var W_l, b_l with variance sigma_b,l^2.
 // Dense layers take their fans from `dense`; convolutions from `convolution` (fan_in =
-// in/groups * receptive field, fan_out = out/groups * receptive field): the analyses
-// only need the fans, the measured pass only handles dense layers.
+// in/groups * receptive field, fan_out = out/groups * receptive field).
+//
+// Spatial stacks.  A stack built with an input extent (layer_stack(channels, {H, W}))
+// carries feature maps: a convolution added on top of a map is placed on it
+// (convolution_map.hpp: stride, padding, dilation), so the prediction can follow every
+// output position (borders that read padding included) and the measured pass can run
+// it.  A dense layer on top of a map reads the flattened map (channels x positions
+// features, channel-major).  A convolution on a stack without an extent is analysed
+// through its fans only, as if every output position were interior.
+//
+// Residual blocks.  add_residual(branch, ...) appends the branch's layers (labels
+// "block.layer...") and then a sum layer that closes the block:
+//     x_{l+1} = skip(x_l) + s branch(x_l),
+// skip the identity or a dense projection, s the branch scale (residual_scaling), with
+// no nonlinearity after the sum (the pre-activation form, He et al., ECCV 2016, from
+// memory).  The sum's row reports the residual stream x_{l+1}.
 #ifndef KINDLING_PROPAGATE_STACK_HPP
 #define KINDLING_PROPAGATE_STACK_HPP
 
@@ -23,6 +37,8 @@
 #include <vector>
 
 #include "../fan.hpp"
+#include "fixup.hpp"
+#include "convolution_map.hpp"
 #include "../gain.hpp"
 #include "../random/sample.hpp"
 #include "../schemes/fixed.hpp"
@@ -153,23 +169,64 @@ double weight_variance_of(const Scheme& scheme, const fans& f) {
   return scheme.variance(f);
 }
 
+/// How the branch of a residual block is scaled at initialization.
+///   none:          x_{l+1} = skip(x_l) + branch(x_l); with He branches the stream's
+///                  second moment grows by the branch's share every block (Hanin &
+///                  Rolnick, NeurIPS 2018: the sum of the branch scales controls it).
+///   inverse_sqrt:  the branch output times 1/sqrt(blocks), so L blocks add about as
+///                  much as one (a common rule; Hanin & Rolnick 2018 motivate a summable
+///                  series of scales).
+///   fixup:         Fixup's rule (Zhang, Dauphin & Ma, ICLR 2019, sec. 3): the first
+///                  m - 1 weight layers of a branch of m scaled by blocks^(-1/(2m-2))
+///                  (fixup_factor), the last one zero; zero_last = false keeps the last
+///                  layer as drawn (the scaling alone, to see what it does).
+struct residual_scaling {
+  enum class rule { none, inverse_sqrt, fixup };
+  rule kind = rule::none;
+  std::uint64_t blocks = 1;
+  bool zero_last = true;
+
+  static residual_scaling none() { return {}; }
+  static residual_scaling inverse_sqrt(std::uint64_t blocks) { return {rule::inverse_sqrt, blocks, true}; }
+  static residual_scaling fixup(std::uint64_t blocks, bool zero_last = true) {
+    return {rule::fixup, blocks, zero_last};
+  }
+};
+
 /// One layer of a stack.
 struct stack_layer {
   std::string label;             // "layer1", ... unless given; weights use label + ".weight"
   kindling::fans fans;           // fan_in, fan_out of W_l
-  std::uint64_t in_width = 0;    // features (channels) into the layer
+  std::uint64_t in_width = 0;    // features (channels of a convolution) into the layer
   std::uint64_t width = 0;       // features (channels) out of it
-  bool dense = true;             // false: a convolution, analysed through its fans only
+  bool dense = true;             // false: a convolution or a residual sum
+  /// The sum closing a residual block: h = skip(output of layer skip_from - 1, or the
+  /// stack's input when skip_from = 0) + branch_scale * (output of the layer below).
+  /// `draw`, `fans` and `weight_variance` are the projection's when projected.
+  bool residual = false;
+  bool projected = false;
+  std::size_t skip_from = 0;
+  double branch_scale = 1.0;
+  /// A convolution placed on a feature map (spatial stacks): its geometry; empty for
+  /// dense layers and for convolutions analysed through their fans only.
+  std::optional<convolution_map> map;
   nonlinearity act = activation::identity();
   double weight_variance = 0;    // Var W_l per element
   double bias_variance = 0;      // sigma_b,l^2
   std::string scheme;            // the scheme's name, or "normal(variance)"
-  /// Fills the [width, in_width] weight from a stream (dense layers), as the scheme does.
+  /// Fills the weight from a stream as the scheme does: [width, in_width] (dense) or
+  /// [out_channels, in_channels / groups, kernel...] (convolutions placed on a map).
   std::function<void(const strided_view<double>&, const stream&)> draw;
 
   /// sigma_w^2 of the mean-field papers: fan_in Var W (forward), fan_out Var W (backward).
   double forward_scale() const { return static_cast<double>(fans.fan_in) * weight_variance; }
   double backward_scale() const { return static_cast<double>(fans.fan_out) * weight_variance; }
+  /// Output positions (1 for a dense layer) and units (width x positions).
+  std::uint64_t positions() const noexcept { return map ? map->out_positions() : extent_positions; }
+  /// Positions of a residual sum on a feature map (the block's input extent), else 1.
+  std::uint64_t extent_positions = 1;
+  std::vector<std::uint64_t> sum_extent;
+  std::uint64_t units() const noexcept { return width * positions(); }
 };
 
 /// A stack of layers fed by an input of `input_width` features whose entries have
@@ -178,25 +235,60 @@ class layer_stack {
  public:
   explicit layer_stack(std::uint64_t input_width, double input_second_moment = 1.0)
       : input_width_(input_width), input_moment_(input_second_moment) {
-    detail::require_positive(input_width, "kindling::layer_stack", "input_width");
+    check_input("kindling::layer_stack");
+  }
+
+  /// A stack fed by feature maps: `input_channels` channels over the spatial
+  /// `input_extent` (1 to 3 axes, e.g. {length} or {height, width}), each entry with
+  /// second moment `input_second_moment`.  (A named function, not a constructor: a
+  /// braced {64} would otherwise bind to the second moment.)
+  static layer_stack feature_maps(std::uint64_t input_channels, std::vector<std::uint64_t> input_extent,
+                                  double input_second_moment = 1.0) {
+    return layer_stack(input_channels, std::move(input_extent), input_second_moment, 0);
+  }
+
+ private:
+  layer_stack(std::uint64_t input_channels, std::vector<std::uint64_t> input_extent, double input_second_moment,
+              int /* tag */)
+      : input_width_(input_channels), input_moment_(input_second_moment), input_extent_(std::move(input_extent)) {
+    constexpr const char* where = "kindling::layer_stack::feature_maps";
+    check_input(where);
+    if (input_extent_.empty() || input_extent_.size() > 3) {
+      throw std::invalid_argument(std::string(where) + ": argument 'input_extent' = " +
+                                  detail::shape_text(input_extent_) + " has " + std::to_string(input_extent_.size()) +
+                                  " axes, expected 1 to 3");
+    }
+    for (std::uint64_t e : input_extent_) detail::require_positive(e, where, "input_extent");
+    const std::uint64_t positions = detail::checked_product(input_extent_, where, "input positions");
+    detail::checked_product(positions, input_channels, where, "input channels x positions");
+    if (positions > (std::uint64_t{1} << 24)) {  // the analyses keep a second moment a position
+      throw std::length_error(std::string(where) + ": argument 'input_extent' = " + detail::shape_text(input_extent_) +
+                              " has " + std::to_string(positions) + " positions, expected at most 2^24");
+    }
+  }
+
+  void check_input(const char* where) const {
+    detail::require_positive(input_width_, where, "input_width");
+    const double input_second_moment = input_moment_;
     if (!(std::isfinite(input_second_moment) && input_second_moment > 0.0)) {
-      throw std::domain_error("kindling::layer_stack: argument 'input_second_moment' = " +
+      throw std::domain_error(std::string(where) + ": argument 'input_second_moment' = " +
                               detail::argument_text(input_second_moment) +
                               ", expected a finite number > 0");
     }
   }
 
+ public:
   /// A dense layer of `width` units after the current top, weights drawn by `scheme`.
   template <class Scheme>
   layer_stack& add_dense(std::uint64_t width, const nonlinearity& act, const Scheme& scheme,
                          double bias_variance = 0.0, std::string label = {}) {
     constexpr const char* where = "kindling::layer_stack::add_dense";
     detail::require_positive(width, where, "width");
-    const dense d(top_width(), width);
+    const dense d(top_features(), width);
     const double v = weight_variance_of(scheme, d.layer_fans());
     stack_layer layer = make(where, d.layer_fans(), width, act, v, bias_variance, std::move(label));
     layer.scheme = scheme.name();
-    const std::uint64_t in = top_width();
+    const std::uint64_t in = top_features();
     layer.draw = [scheme, in, width](const strided_view<double>& w, const stream& s) {
       initialize(w, dense(in, width), scheme, s);
     };
@@ -210,7 +302,7 @@ class layer_stack {
                                        std::string label = {}) {
     constexpr const char* where = "kindling::layer_stack::add_dense_with_variance";
     detail::require_positive(width, where, "width");
-    const dense d(top_width(), width);
+    const dense d(top_features(), width);
     stack_layer layer =
         make(where, d.layer_fans(), width, act, weight_variance, bias_variance, std::move(label));
     layer.scheme = "normal(" + detail::argument_text(weight_variance) + ")";
@@ -222,25 +314,93 @@ class layer_stack {
     return *this;
   }
 
-  /// A convolution after the current top (its in_channels must be the top width);
-  /// analysed through its fans, not runnable by measure.hpp.
+  /// A convolution after the current top (its in_channels must be the top width).  On a
+  /// feature map it is placed with stride 1, no padding and no dilation (the overload
+  /// below takes a geometry); on a stack without an extent it is analysed through its
+  /// fans only (predict), not runnable by measure.hpp.
   template <class Scheme>
   layer_stack& add_convolution(const convolution& conv, const nonlinearity& act,
                                const Scheme& scheme, double bias_variance = 0.0,
                                std::string label = {}) {
+    if (!top_extent().empty()) return add_convolution(conv, convolution_geometry{}, act, scheme, bias_variance, std::move(label));
     constexpr const char* where = "kindling::layer_stack::add_convolution";
-    if (conv.in_channels() != top_width()) {
-      throw std::invalid_argument(std::string(where) + ": argument 'conv' has in_channels = " +
-                                  std::to_string(conv.in_channels()) +
-                                  ", expected the width of the layer below, " +
-                                  std::to_string(top_width()));
-    }
+    require_channels(conv, where);
     const double v = weight_variance_of(scheme, conv.layer_fans());
     stack_layer layer =
         make(where, conv.layer_fans(), conv.out_channels(), act, v, bias_variance, std::move(label));
+    layer.in_width = conv.in_channels();
     layer.dense = false;
     layer.scheme = scheme.name();
     layers_.push_back(std::move(layer));
+    return *this;
+  }
+
+  /// A convolution placed on the current top feature map with `geometry` (stride,
+  /// padding, dilation): predicted position by position and runnable by measure.hpp.
+  /// Its weight is drawn in the [out, in / groups, kernel...] layout whatever `conv`'s
+  /// layout (the values of a parameter depend on its logical shape).
+  template <class Scheme>
+  layer_stack& add_convolution(const convolution& conv, const convolution_geometry& geometry,
+                               const nonlinearity& act, const Scheme& scheme, double bias_variance = 0.0,
+                               std::string label = {}) {
+    constexpr const char* where = "kindling::layer_stack::add_convolution";
+    require_channels(conv, where);
+    if (top_extent().empty()) {
+      throw std::invalid_argument(std::string(where) +
+                                  ": argument 'geometry' places the convolution on a feature map, but the top of "
+                                  "the stack has no spatial extent, expected a stack built with an input extent "
+                                  "and no dense layer below the convolution");
+    }
+    convolution_map placed(conv, top_extent(), geometry);
+    const double v = weight_variance_of(scheme, conv.layer_fans());
+    stack_layer layer =
+        make(where, conv.layer_fans(), conv.out_channels(), act, v, bias_variance, std::move(label));
+    layer.in_width = conv.in_channels();
+    layer.dense = false;
+    layer.map = std::move(placed);
+    layer.scheme = scheme.name();
+    const convolution drawn(conv.in_channels(), conv.out_channels(), conv.kernel(), conv.groups());
+    layer.draw = [scheme, drawn](const strided_view<double>& w, const stream& s) { initialize(w, drawn, scheme, s); };
+    layers_.push_back(std::move(layer));
+    return *this;
+  }
+
+  /// A residual block on the current top: `branch` (a stack whose input is the top:
+  /// layer_stack(top_width()) or feature_maps(top_width(), top_extent())), its layers
+  /// appended under "label.", then the sum x + s branch(x) with an identity skip.  The
+  /// branch must end in the top's width (and extent).  Its weights are drawn as its
+  /// schemes say, then scaled by `scaling`.
+  layer_stack& add_residual(const layer_stack& branch, const residual_scaling& scaling = residual_scaling::none(),
+                            std::string label = {}) {
+    append_residual(branch, scaling, std::move(label), nullptr);
+    return *this;
+  }
+
+  /// The same with a projection skip: a dense layer from the top to the branch's output
+  /// width, weights drawn by `projection` (stacks without an extent only).
+  template <class Scheme>
+  layer_stack& add_projected_residual(const layer_stack& branch, const Scheme& projection,
+                                      const residual_scaling& scaling = residual_scaling::none(),
+                                      std::string label = {}) {
+    constexpr const char* where = "kindling::layer_stack::add_projected_residual";
+    if (!top_extent().empty() || (!branch.empty() && !branch.top_extent().empty())) {
+      throw std::invalid_argument(std::string(where) +
+                                  ": argument 'branch' starts or ends on a feature map, expected a projection skip "
+                                  "between features (use add_residual for an identity skip on maps)");
+    }
+    const std::uint64_t in = top_features();
+    const std::uint64_t out = branch.empty() ? 0 : branch.top_width();
+    stack_layer projection_layer;
+    if (out > 0) {
+      const dense d(in, out);
+      projection_layer.fans = d.layer_fans();
+      projection_layer.weight_variance = weight_variance_of(projection, d.layer_fans());
+      projection_layer.scheme = projection.name();
+      projection_layer.draw = [projection, in, out](const strided_view<double>& w, const stream& s) {
+        initialize(w, dense(in, out), projection, s);
+      };
+    }
+    append_residual(branch, scaling, std::move(label), &projection_layer);
     return *this;
   }
 
@@ -252,6 +412,25 @@ class layer_stack {
   const stack_layer& operator[](std::size_t i) const { return layers_.at(i); }
   std::uint64_t top_width() const noexcept {
     return layers_.empty() ? input_width_ : layers_.back().width;
+  }
+  /// The spatial extent of the input, empty for a stack of features.
+  const std::vector<std::uint64_t>& input_extent() const noexcept { return input_extent_; }
+  /// The spatial extent of the top (empty when it is a dense layer or a stack of features).
+  const std::vector<std::uint64_t>& top_extent() const noexcept {
+    if (layers_.empty()) return input_extent_;
+    const stack_layer& l = layers_.back();
+    return l.map ? l.map->out_extent() : l.sum_extent;
+  }
+  /// Input positions (1 without an extent) and input units (channels x positions).
+  std::uint64_t input_positions() const noexcept {
+    std::uint64_t p = 1;
+    for (std::uint64_t e : input_extent_) p *= e;  // bounded by the constructor
+    return p;
+  }
+  std::uint64_t input_units() const noexcept { return input_width_ * input_positions(); }
+  /// What a dense layer on top reads: the top's units (a feature map flattened).
+  std::uint64_t top_features() const noexcept {
+    return layers_.empty() ? input_units() : layers_.back().units();
   }
 
   /// Throws std::invalid_argument naming `where` if the stack has no layers.
@@ -278,7 +457,7 @@ class layer_stack {
     stack_layer layer;
     layer.label = label.empty() ? "layer" + std::to_string(layers_.size() + 1) : std::move(label);
     layer.fans = f;
-    layer.in_width = top_width();
+    layer.in_width = top_features();
     layer.width = width;
     layer.act = act;
     layer.weight_variance = weight_variance;
@@ -286,8 +465,92 @@ class layer_stack {
     return layer;
   }
 
+  void append_residual(const layer_stack& branch, const residual_scaling& scaling, std::string label,
+                       const stack_layer* projection) {
+    const char* where = projection ? "kindling::layer_stack::add_projected_residual" : "kindling::layer_stack::add_residual";
+    if (branch.empty()) {
+      throw std::invalid_argument(std::string(where) + ": argument 'branch' has no layers, expected at least one");
+    }
+    if (branch.input_width() != top_width() || branch.input_extent() != top_extent()) {
+      throw std::invalid_argument(std::string(where) + ": argument 'branch' reads " +
+                                  std::to_string(branch.input_width()) + " channels over extent " +
+                                  detail::shape_text(branch.input_extent()) + ", expected the top of the stack, " +
+                                  std::to_string(top_width()) + " over " + detail::shape_text(top_extent()));
+    }
+    if (!projection && (branch.top_width() != top_width() || branch.top_extent() != top_extent())) {
+      throw std::invalid_argument(std::string(where) + ": argument 'branch' ends in " +
+                                  std::to_string(branch.top_width()) + " channels over extent " +
+                                  detail::shape_text(branch.top_extent()) + ", expected " +
+                                  std::to_string(top_width()) + " over " + detail::shape_text(top_extent()) +
+                                  " to match its identity skip (add_projected_residual projects the skip)");
+    }
+    if (scaling.blocks == 0) {
+      throw std::invalid_argument(std::string(where) + ": argument 'scaling.blocks' = 0, expected at least 1");
+    }
+    const std::size_t m = branch.depth();
+    if (scaling.kind == residual_scaling::rule::fixup && m < 2) {
+      throw std::invalid_argument(std::string(where) + ": argument 'branch' has 1 layer, expected at least 2 for "
+                                  "Fixup's rule (its exponent -1/(2m-2) needs m >= 2)");
+    }
+    std::size_t blocks_so_far = 0;
+    for (const stack_layer& l : layers_) blocks_so_far += l.residual;
+    if (label.empty()) label = "block" + std::to_string(blocks_so_far + 1);
+    const std::size_t source = layers_.size();
+    const std::uint64_t skip_features = top_features();
+    const std::vector<std::uint64_t> extent = top_extent();
+    const std::uint64_t positions = layers_.empty() ? input_positions() : layers_.back().positions();
+    const double f = scaling.kind == residual_scaling::rule::fixup ? fixup_factor(scaling.blocks, m) : 1.0;
+    for (std::size_t k = 0; k < m; ++k) {
+      stack_layer l = branch.layers()[k];
+      l.label = label + "." + l.label;
+      if (scaling.kind == residual_scaling::rule::fixup && (k + 1 < m || scaling.zero_last)) {
+        const bool zero = k + 1 == m;
+        const double factor = zero ? 0.0 : f;
+        l.weight_variance *= factor * factor;
+        l.scheme += zero ? " zeroed (Fixup)" : " x " + detail::argument_text(factor) + " (Fixup)";
+        if (l.draw) {
+          auto inner = l.draw;
+          l.draw = [inner, factor](const strided_view<double>& w, const stream& st) {
+            inner(w, st);
+            detail::for_each_element(w, [factor](double& x) { x *= factor; });
+          };
+        }
+      }
+      layers_.push_back(std::move(l));
+    }
+    stack_layer sum = projection ? *projection : stack_layer{};
+    if (!projection) {
+      sum.fans = fans{skip_features, skip_features, 1};
+      sum.scheme = "identity skip";
+      sum.draw = [](const strided_view<double>&, const stream&) {};
+    }
+    sum.label = std::move(label);
+    sum.in_width = skip_features;
+    sum.width = branch.top_width();
+    sum.dense = false;
+    sum.residual = true;
+    sum.projected = projection != nullptr;
+    sum.skip_from = source;
+    sum.branch_scale = scaling.kind == residual_scaling::rule::inverse_sqrt
+                           ? 1.0 / std::sqrt(static_cast<double>(scaling.blocks))
+                           : 1.0;
+    sum.extent_positions = projection ? 1 : positions;
+    sum.sum_extent = projection ? std::vector<std::uint64_t>{} : extent;
+    layers_.push_back(std::move(sum));
+  }
+
+  void require_channels(const convolution& conv, const char* where) const {
+    if (conv.in_channels() != top_width()) {
+      throw std::invalid_argument(std::string(where) + ": argument 'conv' has in_channels = " +
+                                  std::to_string(conv.in_channels()) +
+                                  ", expected the width of the layer below, " +
+                                  std::to_string(top_width()));
+    }
+  }
+
   std::uint64_t input_width_;
   double input_moment_;
+  std::vector<std::uint64_t> input_extent_;
   std::vector<stack_layer> layers_;
 };
 

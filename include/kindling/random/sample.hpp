@@ -31,13 +31,13 @@
 #include <cmath>
 #include <cstddef>
 #include <cstdint>
-#include <cstdio>
 #include <limits>
 #include <stdexcept>
 #include <string>
 #include <type_traits>
 
 #include "kindling/detail/dmath.hpp"
+#include "kindling/detail/error.hpp"
 #include "kindling/element.hpp"
 #include "kindling/random/detail/lanes.hpp"
 #include "kindling/random/stream.hpp"
@@ -117,16 +117,9 @@ struct truncated_normal {
 
 namespace detail {
 
-inline std::string number_text(double x) {
-  char buf[40];
-  std::snprintf(buf, sizeof buf, "%.17g", x);
-  return buf;
-}
-
 [[noreturn]] inline void reject(const char* type, const char* field, double value,
                                 const std::string& expected) {
-  throw std::domain_error(std::string("kindling::dist::") + type + ": " + field + " = " +
-                          number_text(value) + "; expected " + expected);
+  reject_argument<std::domain_error>(std::string("dist::") + type, field, argument_text(value), expected);
 }
 
 // Finite, and finite in float too (both compute types must be able to carry it).
@@ -168,13 +161,13 @@ inline cut_probabilities validated_cuts(const char* type, double a, double b) {
     reject(type, "cut_lo", a, "a number or -inf, below cut_hi");
   if (b != b || b == -std::numeric_limits<double>::infinity())
     reject(type, "cut_hi", b, "a number or +inf, above cut_lo");
-  if (!(a < b)) reject(type, "cut_hi", b, "a value greater than cut_lo = " + number_text(a));
+  if (!(a < b)) reject(type, "cut_hi", b, "a value greater than cut_lo = " + argument_text(a));
   const cut_probabilities c = cut_probabilities_of(a, b);
   if (!(c.mass >= 0x1p-100))
     reject(type, "cut_lo", a,
-           "cuts [cut_lo, cut_hi] = [" + number_text(a) + ", " + number_text(b) +
+           "cuts [cut_lo, cut_hi] = [" + argument_text(a) + ", " + argument_text(b) +
                "] holding probability >= 2^-100 under the standard normal (it holds " +
-               number_text(c.mass) + ")");
+               argument_text(c.mass) + ")");
   return c;
 }
 
@@ -192,17 +185,19 @@ inline float next_below(float x) noexcept {
 
 template <class C>
 struct uniform_kernel {
-  C lo, width, hi;
+  using compute_type = C;
+  C lo, width, hi, below_hi;  // below_hi: the largest C below hi
   void operator()(const philox4x32_counter& w, C* v) const noexcept {
     for (unsigned slot = 0; slot < elements_per_block<C>; ++slot) {
       const C x = std::fma(width, unit_uniform<C>(w, slot), lo);
-      v[slot] = x >= hi ? next_below(hi) : x;
+      v[slot] = x >= hi ? below_hi : x;
     }
   }
 };
 
 template <class C>
 struct symmetric_uniform_kernel {
+  using compute_type = C;
   C bound;
   void operator()(const philox4x32_counter& w, C* v) const noexcept {
     for (unsigned slot = 0; slot < elements_per_block<C>; ++slot) {
@@ -214,6 +209,7 @@ struct symmetric_uniform_kernel {
 
 template <class C>
 struct normal_kernel {
+  using compute_type = C;
   C mean, stddev;
   void operator()(const philox4x32_counter& w, C* v) const noexcept {
     for (unsigned slot = 0; slot < elements_per_block<C>; slot += 2) {
@@ -237,6 +233,7 @@ struct normal_kernel {
 // Phi^-1 is AS 241 PPND16 for double and PPND7 for float.
 template <class C>
 struct truncated_normal_kernel {
+  using compute_type = C;
   C mean, stddev, cut_lo, cut_hi, lower, upper, mass;
   void operator()(const philox4x32_counter& w, C* v) const noexcept {
     for (unsigned slot = 0; slot < elements_per_block<C>; ++slot) {
@@ -256,10 +253,10 @@ uniform_kernel<C> prepare(const dist::uniform& d) {
   const C lo = static_cast<C>(d.lo), hi = static_cast<C>(d.hi);
   if (!(static_cast<float>(d.lo) < static_cast<float>(d.hi)))
     reject("uniform", "hi", d.hi,
-           "a value greater than lo = " + number_text(d.lo) + " (also after rounding to float)");
+           "a value greater than lo = " + argument_text(d.lo) + " (also after rounding to float)");
   if (!std::isfinite(d.hi - d.lo) || !std::isfinite(static_cast<float>(d.hi) - static_cast<float>(d.lo)))
-    reject("uniform", "hi", d.hi, "hi - lo finite in float (lo = " + number_text(d.lo) + ")");
-  return {lo, hi - lo, hi};
+    reject("uniform", "hi", d.hi, "hi - lo finite in float (lo = " + argument_text(d.lo) + ")");
+  return {lo, hi - lo, hi, next_below(hi)};
 }
 
 template <class C>
@@ -285,46 +282,30 @@ truncated_normal_kernel<C> prepare(const dist::truncated_normal& d) {
           static_cast<C>(c.mass)};
 }
 
-// The parameters of a float kernel as the vector paths (random/detail/lanes.hpp) take them.
-inline uniform_f32_params lane_params(const uniform_kernel<float>& k) noexcept {
-  return {k.lo, k.width, k.hi, next_below(k.hi)};
-}
-inline symmetric_f32_params lane_params(const symmetric_uniform_kernel<float>& k) noexcept {
-  return {k.bound};
-}
-inline normal_f32_params lane_params(const normal_kernel<float>& k) noexcept {
-  return {k.mean, k.stddev};
-}
-inline truncated_f32_params lane_params(const truncated_normal_kernel<float>& k) noexcept {
-  return {k.mean, k.stddev, k.cut_lo, k.cut_hi, k.lower, k.upper, k.mass};
-}
-
-inline normal_f64_params lane_params_f64(const normal_kernel<double>& k) noexcept {
-  return {k.mean, k.stddev};
-}
-
-// Whether a kernel has vector paths: a float kernel that lane_params takes, a double
-// one that lane_params_f64 takes.
-template <class Kernel, class = void>
-struct has_lane_params : std::false_type {};
+// The kernels the vector paths (random/detail/lanes.hpp) transcribe: every float
+// kernel, and the double normal (AVX-512).
 template <class Kernel>
-struct has_lane_params<Kernel, std::void_t<decltype(lane_params(std::declval<const Kernel&>()))>>
-    : std::true_type {};
-template <class Kernel, class = void>
-struct has_lane_params_f64 : std::false_type {};
-template <class Kernel>
-struct has_lane_params_f64<Kernel, std::void_t<decltype(lane_params_f64(std::declval<const Kernel&>()))>>
-    : std::true_type {};
+struct has_vector_path : std::false_type {};
+template <>
+struct has_vector_path<uniform_kernel<float>> : std::true_type {};
+template <>
+struct has_vector_path<symmetric_uniform_kernel<float>> : std::true_type {};
+template <>
+struct has_vector_path<normal_kernel<float>> : std::true_type {};
+template <>
+struct has_vector_path<truncated_normal_kernel<float>> : std::true_type {};
+template <>
+struct has_vector_path<normal_kernel<double>> : std::true_type {};
 
 // Whole groups of a kernel on a vector path (random/detail/lanes.hpp); false when
 // the path or the compute type has none, and the caller takes the scalar walk.
 template <class C, class Kernel>
 bool vector_groups(instruction_set isa, const Kernel& k, const philox4x32_key& key,
                    std::uint32_t domain, std::uint64_t g0, std::uint64_t count, C* out) noexcept {
-  if constexpr (std::is_same<C, float>::value && has_lane_params<Kernel>::value) {
-    return groups_f32(isa, lane_params(k), key, domain, g0, count, out);
-  } else if constexpr (std::is_same<C, double>::value && has_lane_params_f64<Kernel>::value) {
-    return groups_f64(isa, lane_params_f64(k), key, domain, g0, count, out);
+  if constexpr (std::is_same<C, float>::value && has_vector_path<Kernel>::value) {
+    return groups_f32(isa, k, key, domain, g0, count, out);
+  } else if constexpr (std::is_same<C, double>::value && has_vector_path<Kernel>::value) {
+    return groups_f64(isa, k, key, domain, g0, count, out);
   } else {
     (void)isa, (void)k, (void)key, (void)domain, (void)g0, (void)count, (void)out;
     return false;
@@ -341,15 +322,15 @@ bool vector_elements(instruction_set isa, const Kernel& k, const stream& s, std:
                      float lo_min, bool streaming) noexcept {
   static_assert(std::is_same<Out, float>::value || std::is_same<Out, std::uint16_t>::value,
                 "the direct writers store float or bfloat16 bits");
-  if constexpr (!has_lane_params<Kernel>::value) {
+  if constexpr (!(has_vector_path<Kernel>::value && std::is_same<typename Kernel::compute_type, float>::value)) {
     (void)isa, (void)k, (void)s, (void)domain, (void)g0, (void)count, (void)dst, (void)hi_max,
         (void)lo_min, (void)streaming;
     return false;
   } else if constexpr (std::is_same<Out, float>::value) {
-    return groups_f32_elements(isa, lane_params(k), s.philox_key(), domain, g0, count, dst,
+    return groups_f32_elements(isa, k, s.philox_key(), domain, g0, count, dst,
                                hi_max, lo_min, streaming);
   } else {
-    return groups_bf16_elements(isa, lane_params(k), s.philox_key(), domain, g0, count, dst,
+    return groups_bf16_elements(isa, k, s.philox_key(), domain, g0, count, dst,
                                 hi_max, lo_min, streaming);
   }
 }
@@ -415,12 +396,12 @@ void generate_checked(const D& d, const stream& s, std::uint32_t domain, std::ui
                 "generate writes the compute type: float or double");
   const auto kernel = prepare<C>(d);
   if (n > std::numeric_limits<std::uint64_t>::max() - first)
-    throw std::length_error("kindling::dist::generate: first + n = " + std::to_string(first) +
-                            " + " + std::to_string(n) + "; expected at most 2^64 - 1");
+    reject_argument<std::length_error>("dist::generate", "n", std::to_string(n),
+                                       "first + n at most 2^64 - 1 (first = " + std::to_string(first) + ")");
   if (n == 0) return;
   if (out == nullptr)
-    throw std::invalid_argument("kindling::dist::generate: out = nullptr; expected storage for n = " +
-                                std::to_string(n) + " values");
+    reject_argument<std::invalid_argument>("dist::generate", "out", "nullptr",
+                                           "storage for n = " + std::to_string(n) + " values");
   generate_run(kernel, s, domain, first, n, out);
 }
 

@@ -12,8 +12,8 @@
 //   indexed(n):      k0' = SipHash(K, 01 69 N),  k1' = SipHash(K, 02 69 N)
 //                    N = the 8 little-endian bytes of the 64-bit n
 //   philox key:      h = SipHash(K, 03) (one byte);  key = (h mod 2^32, h >> 32)
-//   block(d, b):     Philox4x32-10(counter = (b mod 2^32, b >> 32, d, 1), key), counter
-//                    words in Random123 order (philox.hpp); the last word is format_version
+//   block(d, b):     Philox4x32-10(counter_of(d, b), key): counter (b mod 2^32, b >> 32,
+//                    d, format_version), words in Random123 order (philox.hpp)
 //
 // The stream of parameter `name` under seed s is root(s).named(name) (make_stream).
 // A stream depends only on its own path from the root, so adding or renaming another
@@ -31,9 +31,6 @@
 #include "kindling/random/siphash.hpp"
 
 namespace kindling {
-
-// Version of the reproducibility format; the last counter word of every block.
-inline constexpr std::uint32_t format_version = 1;
 
 // Counter word 2 of a block: sub-streams inside one scheme.  Schemes may use higher
 // values and document them.
@@ -63,9 +60,7 @@ class stream {
   philox4x32_key philox_key() const noexcept { return philox_key_; }
 
   philox4x32_counter block(std::uint32_t domain, std::uint64_t block_index) const noexcept {
-    return philox4x32_block({static_cast<std::uint32_t>(block_index),
-                             static_cast<std::uint32_t>(block_index >> 32), domain, format_version},
-                            philox_key_);
+    return philox4x32_block(counter_of(domain, block_index), philox_key_);
   }
 
   // The Philox key is a function of (k0, k1), so the SipHash key is the whole identity.

@@ -15,7 +15,6 @@
 #define KINDLING_SCHEMES_SCHEME_HPP
 
 #include <cmath>
-#include <cstdio>
 #include <cstdint>
 #include <stdexcept>
 #include <string>
@@ -23,6 +22,7 @@
 #include <utility>
 #include <vector>
 
+#include "../detail/error.hpp"
 #include "../fan.hpp"
 #include "../fill.hpp"
 #include "../random/stream.hpp"
@@ -43,30 +43,21 @@ inline std::vector<std::uint64_t> shape_vector(const shape& s) {
   return std::vector<std::uint64_t>(s.begin(), s.end());
 }
 
-inline std::string argument_text(double x) {
-  char buffer[64];
-  std::snprintf(buffer, sizeof buffer, "%.17g", x);
-  return buffer;
-}
-
-// Arguments of schemes: one message style for every failure.
+// Arguments of schemes, in the core's message style (detail/error.hpp).
 inline void require_finite_argument(double value, const char* scheme, const char* argument) {
-  if (!std::isfinite(value)) {
-    throw std::domain_error(std::string("kindling::") + scheme + ": argument '" + argument +
-                            "' = " + argument_text(value) + ", expected a finite number");
-  }
+  if (!std::isfinite(value))
+    reject_argument<std::domain_error>(scheme, argument, argument_text(value), "a finite number");
 }
 inline void require_positive_argument(double value, const char* scheme, const char* argument) {
-  if (!std::isfinite(value) || !(value > 0)) {
-    throw std::domain_error(std::string("kindling::") + scheme + ": argument '" + argument +
-                            "' = " + argument_text(value) + ", expected a finite number > 0");
-  }
+  if (!std::isfinite(value) || !(value > 0))
+    reject_argument<std::domain_error>(scheme, argument, argument_text(value), "a finite number > 0");
 }
 inline void require_fans(const fans& f, const char* scheme) {
   if (f.fan_in == 0 || f.fan_out == 0) {
-    throw std::invalid_argument(std::string("kindling::") + scheme + ": argument 'fans' = (fan_in " +
-                                std::to_string(f.fan_in) + ", fan_out " + std::to_string(f.fan_out) +
-                                "), expected both >= 1");
+    reject_argument<std::invalid_argument>(
+        scheme, "fans",
+        "(fan_in " + std::to_string(f.fan_in) + ", fan_out " + std::to_string(f.fan_out) + ")",
+        "both >= 1");
   }
 }
 

@@ -1,487 +1,43 @@
-// Counter groups in SIMD lanes: the 16 Philox4x32-10 blocks of a group computed side by
-// side, and the float transforms of random/sample.hpp on whole vectors, selected at run
-// time for the best instruction set of the CPU.
+// Counter groups in SIMD lanes: the dispatch. The 16 Philox4x32-10 blocks of a group
+// computed side by side, and the float transforms of random/sample.hpp on whole vectors,
+// on the instruction set chosen at run time (random/detail/instruction_set.hpp).
 //
 // Why it keeps every bit: the vector code is a transcription of the scalar code
-// (philox.hpp, dmath.hpp, sample.hpp), operation for operation in the same order.
-// Integer steps are exact; the floating-point steps are +, -, *, /, sqrt and fma, all
-// correctly rounded in IEEE arithmetic, so a vector lane and the scalar path give the
-// same result. Products feed additions only through an explicit fma, as in dmath.hpp,
-// so floating-point contraction has nothing to fuse. Branches of the scalar code become
-// both sides computed and a per-lane select.
+// (philox.hpp, dmath.hpp, sample.hpp, element.hpp), operation for operation in the same
+// order. Integer steps are exact; the floating-point steps are +, -, *, /, sqrt and fma,
+// all correctly rounded in IEEE arithmetic, so a vector lane and the scalar path give
+// the same result. Products feed additions only through an explicit fma, as in
+// dmath.hpp, so floating-point contraction has nothing to fuse. Branches of the scalar
+// code become both sides computed and a per-lane select.
 //
 // Layout: a group is 16 blocks (lanes) x 4 words (slots); element r = 16 slot + lane of
 // a float group is word `slot` of block `lane` (DEVELOPERS.md "Element index and
 // words"), so the vector of word j of the 16 blocks is elements 16 j .. 16 j + 15, stored
 // without a transpose.
 //
-// Instruction sets: scalar (everywhere), avx2 (AVX2 + FMA, 8 lanes, two halves a group)
-// and avx512 (AVX-512F/DQ, 16 lanes). The x86 paths are compiled with per-function
-// target attributes, so a portable -O2 build carries them and uses them only where the
-// CPU has them (__builtin_cpu_supports, asked once).
+// The code per instruction set, the way Eigen splits its arch/ folders:
+//   random/detail/instruction_set.hpp   which sets exist, which one this CPU runs
+//   random/detail/avx512.hpp, avx2.hpp  the lane primitives of each set (+ its extras)
+//   random/detail/lanes_body.hpp        the generic functions, written once against them
+//   random/detail/lanes.hpp (this)      the dispatch, with the scalar fallbacks
 #ifndef KINDLING_RANDOM_DETAIL_LANES_HPP
 #define KINDLING_RANDOM_DETAIL_LANES_HPP
 
 #include <cstddef>
 #include <cstdint>
+#include <type_traits>
 
-#include "kindling/detail/dmath.hpp"
+#include "kindling/random/detail/avx2.hpp"
+#include "kindling/random/detail/avx512.hpp"
+#include "kindling/random/detail/instruction_set.hpp"
 #include "kindling/random/philox.hpp"
 
-#if defined(__x86_64__) && (defined(__GNUC__) || defined(__clang__))
-#define KINDLING_LANES_X86 1
+#if defined(KINDLING_LANES_X86)
 #include <immintrin.h>
 #endif
 
 namespace kindling::detail {
 
-/// The code paths of the group functions; best_instruction_set() picks the widest one
-/// the CPU runs. Every path gives the same bits.
-enum class instruction_set { scalar, avx2, avx512 };
-
-inline const char* instruction_set_name(instruction_set i) noexcept {
-  switch (i) {
-    case instruction_set::avx2: return "avx2";
-    case instruction_set::avx512: return "avx512";
-    default: return "scalar";
-  }
-}
-
-/// Whether this build has the path and this CPU runs it.
-inline bool instruction_set_available(instruction_set i) noexcept {
-#if defined(KINDLING_LANES_X86)
-  switch (i) {
-    case instruction_set::avx2:
-      return __builtin_cpu_supports("avx2") && __builtin_cpu_supports("fma");
-    case instruction_set::avx512:
-      return __builtin_cpu_supports("avx512f") && __builtin_cpu_supports("avx512dq");
-    default: return true;
-  }
-#else
-  return i == instruction_set::scalar;
-#endif
-}
-
-/// The widest available path, decided once (a constant of the process).
-inline instruction_set best_instruction_set() noexcept {
-  static const instruction_set best = instruction_set_available(instruction_set::avx512)
-                                          ? instruction_set::avx512
-                                          : instruction_set_available(instruction_set::avx2)
-                                                ? instruction_set::avx2
-                                                : instruction_set::scalar;
-  return best;
-}
-
-// Parameters of the float transforms, as sample.hpp's kernels hold them.
-struct uniform_f32_params {
-  float lo, width, hi, below_hi;  // below_hi: the largest float below hi
-};
-struct symmetric_f32_params {
-  float bound;
-};
-struct normal_f32_params {
-  float mean, stddev;
-};
-struct truncated_f32_params {
-  float mean, stddev, cut_lo, cut_hi, lower, upper, mass;
-};
-struct normal_f64_params {
-  double mean, stddev;
-};
-
-}  // namespace kindling::detail
-
-#if defined(KINDLING_LANES_X86)
-
-// GCC 12's AVX-512 intrinsics start from _mm512_undefined_*() (a self-initialized
-// variable), which -Wmaybe-uninitialized reports once they are inlined here.
-#if defined(__GNUC__) && !defined(__clang__)
-#pragma GCC diagnostic push
-#pragma GCC diagnostic ignored "-Wmaybe-uninitialized"
-#pragma GCC diagnostic ignored "-Wuninitialized"
-#endif
-
-// ---- AVX-512: 16 lanes ----------------------------------------------------------------
-#if defined(__clang__)
-#pragma clang attribute push(__attribute__((target("avx512f,avx512dq,fma"))), apply_to = function)
-#else
-#pragma GCC push_options
-#pragma GCC target("avx512f,avx512dq,fma")
-#endif
-namespace kindling::detail::lanes_avx512 {
-constexpr unsigned lanes = 16;
-using vu = __m512i;
-using vf = __m512;
-using vm = __mmask16;
-inline vu u_set1(std::uint32_t x) noexcept { return _mm512_set1_epi32(static_cast<int>(x)); }
-inline vu u_iota() noexcept {
-  return _mm512_setr_epi32(0, 1, 2, 3, 4, 5, 6, 7, 8, 9, 10, 11, 12, 13, 14, 15);
-}
-inline vu u_add(vu a, vu b) noexcept { return _mm512_add_epi32(a, b); }
-inline vu u_xor(vu a, vu b) noexcept { return _mm512_xor_si512(a, b); }
-inline vu u_and(vu a, vu b) noexcept { return _mm512_and_si512(a, b); }
-inline vu u_or(vu a, vu b) noexcept { return _mm512_or_si512(a, b); }
-inline vu u_sub(vu a, vu b) noexcept { return _mm512_sub_epi32(a, b); }
-template <int n>
-inline vu u_srl(vu a) noexcept { return _mm512_srli_epi32(a, n); }
-template <int n>
-inline vu u_sll(vu a) noexcept { return _mm512_slli_epi32(a, n); }
-inline vm u_eq(vu a, vu b) noexcept { return _mm512_cmpeq_epi32_mask(a, b); }
-inline vm u_ge(vu a, vu b) noexcept { return _mm512_cmpge_epu32_mask(a, b); }
-inline vu u_select(vm m, vu a, vu b) noexcept { return _mm512_mask_blend_epi32(m, b, a); }
-// (hi, lo) of the 64-bit products a * m, lane by lane: even lanes by _mm512_mul_epu32,
-// odd lanes shifted down into even position.
-inline void u_mulhilo(vu a, std::uint32_t m, vu& hi, vu& lo) noexcept {
-  const vu mv = u_set1(m);
-  const vu even = _mm512_mul_epu32(a, mv);
-  const vu odd = _mm512_mul_epu32(_mm512_srli_epi64(a, 32), mv);
-  // Merge-masked dword shuffles: 0xA0 copies dword 0 of each pair up, 0xF5 dword 1 down.
-  lo = _mm512_mask_shuffle_epi32(even, 0xAAAA, odd, static_cast<_MM_PERM_ENUM>(0xA0));
-  hi = _mm512_mask_shuffle_epi32(odd, 0x5555, even, static_cast<_MM_PERM_ENUM>(0xF5));
-}
-inline vf f_set1(float x) noexcept { return _mm512_set1_ps(x); }
-inline vf f_add(vf a, vf b) noexcept { return _mm512_add_ps(a, b); }
-inline vf f_sub(vf a, vf b) noexcept { return _mm512_sub_ps(a, b); }
-inline vf f_mul(vf a, vf b) noexcept { return _mm512_mul_ps(a, b); }
-inline vf f_div(vf a, vf b) noexcept { return _mm512_div_ps(a, b); }
-inline vf f_sqrt(vf a) noexcept { return _mm512_sqrt_ps(a); }
-inline vf f_fma(vf a, vf b, vf c) noexcept { return _mm512_fmadd_ps(a, b, c); }
-inline vf f_fnma(vf a, vf b, vf c) noexcept { return _mm512_fnmadd_ps(a, b, c); }  // fma(-a, b, c)
-inline vf f_fms(vf a, vf b, vf c) noexcept { return _mm512_fmsub_ps(a, b, c); }    // fma(a, b, -c)
-inline vf f_floor(vf a) noexcept {
-  return _mm512_roundscale_ps(a, _MM_FROUND_TO_NEG_INF | _MM_FROUND_NO_EXC);
-}
-inline vf f_neg(vf a) noexcept {
-  return _mm512_castsi512_ps(_mm512_xor_si512(_mm512_castps_si512(a), u_set1(0x80000000u)));
-}
-inline vf f_abs(vf a) noexcept {
-  return _mm512_castsi512_ps(_mm512_and_si512(_mm512_castps_si512(a), u_set1(0x7fffffffu)));
-}
-// a with its sign flipped where bit 31 of s is set: (s & sign) ^ a in one ternary op.
-inline vf f_flip_sign(vf a, vu s) noexcept {
-  return _mm512_castsi512_ps(
-      _mm512_ternarylogic_epi32(s, _mm512_castps_si512(a), u_set1(0x80000000u), 0x6c));
-}
-inline vf f_from_small_u(vu a) noexcept { return _mm512_cvtepi32_ps(a); }  // a < 2^31: exact
-inline vf f_from_i(vu a) noexcept { return _mm512_cvtepi32_ps(a); }        // |a| < 2^24: exact
-inline vu u_trunc_f(vf a) noexcept { return _mm512_cvttps_epi32(a); }
-// The unbiased exponent of a positive normal float, as a float (exact).
-inline vf f_exponent(vf a) noexcept { return _mm512_getexp_ps(a); }
-inline vu u_bits(vf a) noexcept { return _mm512_castps_si512(a); }
-inline vf f_from_bits(vu a) noexcept { return _mm512_castsi512_ps(a); }
-inline vm f_lt(vf a, vf b) noexcept { return _mm512_cmp_ps_mask(a, b, _CMP_LT_OQ); }
-inline vm f_le(vf a, vf b) noexcept { return _mm512_cmp_ps_mask(a, b, _CMP_LE_OQ); }
-inline vm f_ge(vf a, vf b) noexcept { return _mm512_cmp_ps_mask(a, b, _CMP_GE_OQ); }
-inline vm f_eq(vf a, vf b) noexcept { return _mm512_cmp_ps_mask(a, b, _CMP_EQ_OQ); }
-inline vf f_select(vm m, vf a, vf b) noexcept { return _mm512_mask_blend_ps(m, b, a); }
-inline vm m_or(vm a, vm b) noexcept { return static_cast<vm>(a | b); }
-inline vm m_not(vm a) noexcept { return static_cast<vm>(~a); }
-inline vm m_and(vm a, vm b) noexcept { return static_cast<vm>(a & b); }
-// Whether no lane is set in a or b (one kortest).
-inline bool m_none_of(vm a, vm b) noexcept { return _kortestz_mask16_u8(a, b) != 0; }
-inline void u_store(std::uint32_t* p, vu a) noexcept { _mm512_storeu_si512(p, a); }
-inline void f_store(float* p, vf a) noexcept { _mm512_storeu_ps(p, a); }
-inline vu u_load(const void* p) noexcept { return _mm512_loadu_si512(p); }
-// Stores of finished elements; `stream`: non-temporal (p aligned to the vector size).
-inline void u_store_elements(void* p, vu a, bool stream) noexcept {
-  if (stream) {
-    _mm512_stream_si512(static_cast<__m512i*>(p), a);
-  } else {
-    _mm512_storeu_si512(p, a);
-  }
-}
-// The low 16 bits of each lane, packed (p aligned to lanes * 2 bytes when streaming).
-inline void u16_store_elements(void* p, vu a, bool stream) noexcept {
-  const __m256i packed = _mm512_cvtepi32_epi16(a);
-  if (stream) {
-    _mm256_stream_si256(static_cast<__m256i*>(p), packed);
-  } else {
-    _mm256_storeu_si256(static_cast<__m256i*>(p), packed);
-  }
-}
-#include "kindling/random/detail/lanes_body.hpp"
-
-// Stores consecutive vectors of float elements from dst on (16 k for the k-th vector)
-// with non-temporal stores of the aligned 64-byte lines they cover whole: when dst is
-// not aligned, each line is the end of one vector and the start of the next, put
-// together by one permute; the partial lines at both ends get masked ordinary stores,
-// so nothing outside the range is written.
-class line_writer {
- public:
-  explicit line_writer(float* dst) noexcept
-      : misalign_(static_cast<unsigned>(reinterpret_cast<std::uintptr_t>(dst) % 64 / 4)),
-        line_(dst - misalign_),
-        index_(_mm512_add_epi32(u_iota(), u_set1(16u - misalign_))) {}
-  void put(vu x) noexcept {
-    if (misalign_ == 0) {
-      _mm512_stream_si512(reinterpret_cast<__m512i*>(line_), x);
-    } else {
-      const vu y = _mm512_permutex2var_epi32(previous_, index_, x);
-      if (started_) {
-        _mm512_stream_si512(reinterpret_cast<__m512i*>(line_), y);
-      } else {
-        _mm512_mask_storeu_epi32(line_, static_cast<vm>(0xffffu << misalign_), y);
-      }
-      previous_ = x;
-    }
-    started_ = true;
-    line_ += 16;
-  }
-  // The last partial line (the end of the last vector).
-  void finish() noexcept {
-    if (misalign_ != 0 && started_) {
-      const vu y = _mm512_permutex2var_epi32(previous_, index_, previous_);
-      _mm512_mask_storeu_epi32(line_, static_cast<vm>((1u << misalign_) - 1u), y);
-    }
-  }
-
- private:
-  unsigned misalign_;  // floats from the line start to dst
-  float* line_;
-  vu index_;
-  vu previous_ = _mm512_setzero_si512();
-  bool started_ = false;
-};
-
-// Whole groups of the distribution with parameters p written as float elements to dst
-// (dst[64 k + r] for group g0 + k): each value moved inside [lo_min, hi_max] as
-// round_store_f32 does, then stored, without the pass through a buffer. A unit is a
-// whole group here (16 lanes), so the vectors come in memory order.
-template <class P>
-inline void groups_to_elements(const P& p, const philox4x32_key& key, std::uint32_t domain,
-                               std::uint64_t g0, std::uint64_t count, float* dst, float hi_max,
-                               float lo_min, bool stream) noexcept {
-  const vf hm = f_set1(hi_max), lm = f_set1(lo_min);
-  if (stream) {
-    line_writer out(dst);
-    auto sink = [&](std::uint64_t, const vf (&v)[4]) {
-      for (unsigned j = 0; j < 4; ++j) out.put(inside_f32(u_bits(v[j]), hm, lm));
-    };
-    drive_units(make_unit(p), key, domain, g0, count, sink);
-    out.finish();
-  } else {
-    auto sink = [&](std::uint64_t unit, const vf (&v)[4]) {
-      for (unsigned j = 0; j < 4; ++j)
-        _mm512_storeu_si512(dst + 64 * unit + 16 * j, inside_f32(u_bits(v[j]), hm, lm));
-    };
-    drive_units(make_unit(p), key, domain, g0, count, sink);
-  }
-}
-
-// ---- double normal, 8 lanes a vector (AVX-512F/DQ) ------------------------------------
-// sample.hpp normal_kernel<double> on whole groups: a group is 16 blocks x 2 slots,
-// element r = 16 slot + lane; slot 0 takes words (w0, w1) of each block, slot 1 (w2, w3).
-// dmath.hpp's log, sincos_2pi and Horner's rule transcribed as in the float path.
-using vd = __m512d;
-
-template <std::size_t N>
-inline vd d_horner(vd x, const double (&c)[N]) noexcept {
-  vd p = _mm512_set1_pd(c[N - 1]);
-  for (std::size_t i = N - 1; i-- > 0;) p = _mm512_fmadd_pd(p, x, _mm512_set1_pd(c[i]));
-  return p;
-}
-
-// ((w_a << 32) | w_b) >> 11 of blocks h .. h + 7 (h = 0 or 8), as exact doubles.
-inline vd d_variate_integers(vu a, vu b, unsigned h) noexcept {
-  // Dword 2i of the result from b (lane h + i), dword 2i + 1 from a (index 16 + h + i).
-  const vu index = _mm512_add_epi32(
-      _mm512_setr_epi32(0, 16, 1, 17, 2, 18, 3, 19, 4, 20, 5, 21, 6, 22, 7, 23), u_set1(h));
-  return _mm512_cvtepu64_pd(_mm512_srli_epi64(_mm512_permutex2var_epi32(b, index, a), 11));
-}
-
-// dmath.hpp log<double> for normal x > 0 (here x >= 2^-53): the split as in
-// lanes_body.hpp log_lanes, one 64-bit add carrying into the exponent exactly when the
-// fraction is >= sqrt2_fraction.
-inline vd d_log_normal(vd x) noexcept {
-  using K = kernel_constants<double>;
-  constexpr std::uint64_t half_sqrt2 = 0x3fe0000000000000u | K::sqrt2_fraction;
-  const __m512i shifted =
-      _mm512_add_epi64(_mm512_castpd_si512(x), _mm512_set1_epi64(static_cast<long long>(0x3ff0000000000000u - half_sqrt2)));
-  const __m512i k = _mm512_sub_epi64(_mm512_srli_epi64(shifted, 52), _mm512_set1_epi64(1023));
-  const vd m = _mm512_castsi512_pd(_mm512_add_epi64(
-      _mm512_and_si512(shifted, _mm512_set1_epi64(static_cast<long long>((std::uint64_t{1} << 52) - 1u))),
-      _mm512_set1_epi64(static_cast<long long>(half_sqrt2))));
-  const vd one = _mm512_set1_pd(1.0);
-  const vd f = _mm512_sub_pd(m, one);
-  const vd s = _mm512_div_pd(f, _mm512_add_pd(_mm512_set1_pd(2.0), f));
-  const vd z = _mm512_mul_pd(s, s);
-  const vd f_minus_r = _mm512_fnmadd_pd(z, d_horner(z, K::log_r), f);
-  const vd log1pf = _mm512_fnmadd_pd(s, f_minus_r, f);
-  const vd kt = _mm512_cvtepi64_pd(k);
-  return _mm512_fmadd_pd(kt, _mm512_set1_pd(K::ln2_hi),
-                         _mm512_fmadd_pd(kt, _mm512_set1_pd(K::ln2_lo), log1pf));
-}
-
-// dmath.hpp sincos_2pi<double> of u = kd 2^-53 (4 u = kd 2^-51 exactly).
-inline void d_sincos_2pi_units(vd kd, vd& sin_out, vd& cos_out) noexcept {
-  using K = kernel_constants<double>;
-  const vd scale = _mm512_set1_pd(0x1p-51);
-  const vd q = _mm512_roundscale_pd(_mm512_fmadd_pd(kd, scale, _mm512_set1_pd(0.5)),
-                                    _MM_FROUND_TO_NEG_INF | _MM_FROUND_NO_EXC);
-  const vd t = _mm512_fmsub_pd(kd, scale, q);
-  const vd t2 = _mm512_mul_pd(t, t);
-  const vd s = _mm512_mul_pd(t, d_horner(t2, K::sin_c));
-  const vd c = d_horner(t2, K::cos_c);
-  const __m512i qi = _mm512_cvttpd_epi64(q);
-  const __mmask8 odd = _mm512_test_epi64_mask(qi, _mm512_set1_epi64(1));
-  const __m512i sign = _mm512_set1_epi64(static_cast<long long>(0x8000000000000000u));
-  // Flip the sign where bit 1 of q (sin) or of q + 1 (cos) is set: (a & sign) ^ mag.
-  const __m512i sin_mag = _mm512_castpd_si512(_mm512_mask_blend_pd(odd, s, c));
-  const __m512i cos_mag = _mm512_castpd_si512(_mm512_mask_blend_pd(odd, c, s));
-  sin_out = _mm512_castsi512_pd(_mm512_ternarylogic_epi64(_mm512_slli_epi64(qi, 62), sin_mag, sign, 0x6c));
-  cos_out = _mm512_castsi512_pd(_mm512_ternarylogic_epi64(
-      _mm512_slli_epi64(_mm512_add_epi64(qi, _mm512_set1_epi64(1)), 62), cos_mag, sign, 0x6c));
-}
-
-inline void normal_f64_unit(const vu (&w)[4], vd mean, vd stddev, double* at) noexcept {
-  for (unsigned h = 0; h < 16; h += 8) {
-    const vd k1 = d_variate_integers(w[0], w[1], h), k2 = d_variate_integers(w[2], w[3], h);
-    const vd one_minus_u1 = _mm512_fnmadd_pd(k1, _mm512_set1_pd(0x1p-53), _mm512_set1_pd(1.0));
-    const vd r = _mm512_sqrt_pd(_mm512_mul_pd(_mm512_set1_pd(-2.0), d_log_normal(one_minus_u1)));
-    vd sin_v, cos_v;
-    d_sincos_2pi_units(k2, sin_v, cos_v);
-    _mm512_storeu_pd(at + h, _mm512_fmadd_pd(stddev, _mm512_mul_pd(r, cos_v), mean));
-    _mm512_storeu_pd(at + 16 + h, _mm512_fmadd_pd(stddev, _mm512_mul_pd(r, sin_v), mean));
-  }
-}
-
-// Whole groups of the double normal, out[32 k + r] for group g0 + k.
-inline void normal_groups_f64(const normal_f64_params& p, const philox4x32_key& key,
-                              std::uint32_t domain, std::uint64_t g0, std::uint64_t count,
-                              double* out) noexcept {
-  const vd mean = _mm512_set1_pd(p.mean), stddev = _mm512_set1_pd(p.stddev);
-  constexpr unsigned batch = 4;
-  std::uint64_t u = 0;
-  for (; u + batch <= count; u += batch) {
-    vu x[batch][4];
-    philox_units<batch>(key, domain, 16 * (g0 + u), x);
-    for (unsigned k = 0; k < batch; ++k) normal_f64_unit(x[k], mean, stddev, out + 32 * (u + k));
-  }
-  for (; u < count; ++u) {
-    vu x[1][4];
-    philox_units<1>(key, domain, 16 * (g0 + u), x);
-    normal_f64_unit(x[0], mean, stddev, out + 32 * u);
-  }
-}
-}  // namespace kindling::detail::lanes_avx512
-#if defined(__clang__)
-#pragma clang attribute pop
-#else
-#pragma GCC pop_options
-#endif
-
-// ---- AVX2 + FMA: 8 lanes --------------------------------------------------------------
-#if defined(__clang__)
-#pragma clang attribute push(__attribute__((target("avx2,fma"))), apply_to = function)
-#else
-#pragma GCC push_options
-#pragma GCC target("avx2,fma")
-#endif
-namespace kindling::detail::lanes_avx2 {
-constexpr unsigned lanes = 8;
-using vu = __m256i;
-using vf = __m256;
-using vm = __m256i;  // all-ones / all-zeros lanes
-inline vu u_set1(std::uint32_t x) noexcept { return _mm256_set1_epi32(static_cast<int>(x)); }
-inline vu u_iota() noexcept { return _mm256_setr_epi32(0, 1, 2, 3, 4, 5, 6, 7); }
-inline vu u_add(vu a, vu b) noexcept { return _mm256_add_epi32(a, b); }
-inline vu u_xor(vu a, vu b) noexcept { return _mm256_xor_si256(a, b); }
-inline vu u_and(vu a, vu b) noexcept { return _mm256_and_si256(a, b); }
-inline vu u_or(vu a, vu b) noexcept { return _mm256_or_si256(a, b); }
-inline vu u_sub(vu a, vu b) noexcept { return _mm256_sub_epi32(a, b); }
-template <int n>
-inline vu u_srl(vu a) noexcept { return _mm256_srli_epi32(a, n); }
-template <int n>
-inline vu u_sll(vu a) noexcept { return _mm256_slli_epi32(a, n); }
-inline vm u_eq(vu a, vu b) noexcept { return _mm256_cmpeq_epi32(a, b); }
-// Unsigned a >= b: max(a, b) == a.
-inline vm u_ge(vu a, vu b) noexcept { return _mm256_cmpeq_epi32(_mm256_max_epu32(a, b), a); }
-inline vu u_select(vm m, vu a, vu b) noexcept { return _mm256_blendv_epi8(b, a, m); }
-inline void u_mulhilo(vu a, std::uint32_t m, vu& hi, vu& lo) noexcept {
-  const vu mv = u_set1(m);
-  const vu even = _mm256_mul_epu32(a, mv);
-  const vu odd = _mm256_mul_epu32(_mm256_srli_epi64(a, 32), mv);
-  lo = _mm256_blend_epi32(even, _mm256_slli_epi64(odd, 32), 0xAA);
-  hi = _mm256_blend_epi32(_mm256_srli_epi64(even, 32), odd, 0xAA);
-}
-inline vf f_set1(float x) noexcept { return _mm256_set1_ps(x); }
-inline vf f_add(vf a, vf b) noexcept { return _mm256_add_ps(a, b); }
-inline vf f_sub(vf a, vf b) noexcept { return _mm256_sub_ps(a, b); }
-inline vf f_mul(vf a, vf b) noexcept { return _mm256_mul_ps(a, b); }
-inline vf f_div(vf a, vf b) noexcept { return _mm256_div_ps(a, b); }
-inline vf f_sqrt(vf a) noexcept { return _mm256_sqrt_ps(a); }
-inline vf f_fma(vf a, vf b, vf c) noexcept { return _mm256_fmadd_ps(a, b, c); }
-inline vf f_fnma(vf a, vf b, vf c) noexcept { return _mm256_fnmadd_ps(a, b, c); }  // fma(-a, b, c)
-inline vf f_fms(vf a, vf b, vf c) noexcept { return _mm256_fmsub_ps(a, b, c); }    // fma(a, b, -c)
-inline vf f_floor(vf a) noexcept { return _mm256_floor_ps(a); }
-inline vf f_neg(vf a) noexcept {
-  return _mm256_castsi256_ps(_mm256_xor_si256(_mm256_castps_si256(a), u_set1(0x80000000u)));
-}
-inline vf f_abs(vf a) noexcept {
-  return _mm256_castsi256_ps(_mm256_and_si256(_mm256_castps_si256(a), u_set1(0x7fffffffu)));
-}
-inline vf f_flip_sign(vf a, vu s) noexcept {
-  return _mm256_castsi256_ps(
-      _mm256_xor_si256(_mm256_castps_si256(a), _mm256_and_si256(s, u_set1(0x80000000u))));
-}
-inline vf f_from_small_u(vu a) noexcept { return _mm256_cvtepi32_ps(a); }
-inline vf f_from_i(vu a) noexcept { return _mm256_cvtepi32_ps(a); }
-inline vu u_trunc_f(vf a) noexcept { return _mm256_cvttps_epi32(a); }
-inline vf f_exponent(vf a) noexcept {
-  return _mm256_cvtepi32_ps(
-      _mm256_sub_epi32(_mm256_srli_epi32(_mm256_castps_si256(a), 23), _mm256_set1_epi32(127)));
-}
-inline vu u_bits(vf a) noexcept { return _mm256_castps_si256(a); }
-inline vf f_from_bits(vu a) noexcept { return _mm256_castsi256_ps(a); }
-inline vm f_lt(vf a, vf b) noexcept { return _mm256_castps_si256(_mm256_cmp_ps(a, b, _CMP_LT_OQ)); }
-inline vm f_le(vf a, vf b) noexcept { return _mm256_castps_si256(_mm256_cmp_ps(a, b, _CMP_LE_OQ)); }
-inline vm f_ge(vf a, vf b) noexcept { return _mm256_castps_si256(_mm256_cmp_ps(a, b, _CMP_GE_OQ)); }
-inline vm f_eq(vf a, vf b) noexcept { return _mm256_castps_si256(_mm256_cmp_ps(a, b, _CMP_EQ_OQ)); }
-inline vf f_select(vm m, vf a, vf b) noexcept { return _mm256_blendv_ps(b, a, _mm256_castsi256_ps(m)); }
-inline vm m_or(vm a, vm b) noexcept { return _mm256_or_si256(a, b); }
-inline vm m_not(vm a) noexcept { return _mm256_xor_si256(a, _mm256_set1_epi32(-1)); }
-inline vm m_and(vm a, vm b) noexcept { return _mm256_and_si256(a, b); }
-inline bool m_none_of(vm a, vm b) noexcept {
-  const vm both = _mm256_or_si256(a, b);
-  return _mm256_testz_si256(both, both) != 0;
-}
-inline void u_store(std::uint32_t* p, vu a) noexcept {
-  _mm256_storeu_si256(reinterpret_cast<__m256i*>(p), a);
-}
-inline void f_store(float* p, vf a) noexcept { _mm256_storeu_ps(p, a); }
-inline vu u_load(const void* p) noexcept { return _mm256_loadu_si256(static_cast<const __m256i*>(p)); }
-inline void u_store_elements(void* p, vu a, bool stream) noexcept {
-  if (stream) {
-    _mm256_stream_si256(static_cast<__m256i*>(p), a);
-  } else {
-    _mm256_storeu_si256(static_cast<__m256i*>(p), a);
-  }
-}
-inline void u16_store_elements(void* p, vu a, bool stream) noexcept {
-  // packus works within 128-bit halves: (a0..a3, a0..a3 | a4..a7, a4..a7); gather 0 and 2.
-  const __m256i packed = _mm256_permute4x64_epi64(_mm256_packus_epi32(a, a), 0x08);
-  const __m128i low = _mm256_castsi256_si128(packed);
-  if (stream) {
-    _mm_stream_si128(static_cast<__m128i*>(p), low);
-  } else {
-    _mm_storeu_si128(static_cast<__m128i*>(p), low);
-  }
-}
-#include "kindling/random/detail/lanes_body.hpp"
-}  // namespace kindling::detail::lanes_avx2
-#if defined(__clang__)
-#pragma clang attribute pop
-#else
-#pragma GCC pop_options
-#endif
-
-#if defined(__GNUC__) && !defined(__clang__)
-#pragma GCC diagnostic pop
-#endif
-
-#endif  // KINDLING_LANES_X86
-
-namespace kindling::detail {
 
 // The words of the 16 blocks of group g, slot-major: w[16 j + lane] = word j of block
 // 16 g + lane. Scalar reference of group_words_lanes.
@@ -489,8 +45,7 @@ inline void group_words_scalar(const philox4x32_key& key, std::uint32_t domain, 
                                std::uint32_t* w) noexcept {
   for (unsigned lane = 0; lane < 16; ++lane) {
     const std::uint64_t b = 16 * g + lane;
-    const philox4x32_counter x = philox4x32_block(
-        {static_cast<std::uint32_t>(b), static_cast<std::uint32_t>(b >> 32), domain, 1u}, key);
+    const philox4x32_counter x = philox4x32_block(counter_of(domain, b), key);
     for (unsigned j = 0; j < 4; ++j) w[16 * j + lane] = x[j];
   }
 }
@@ -508,8 +63,8 @@ inline void group_words(instruction_set isa, const philox4x32_key& key, std::uin
 
 // The float transforms on `count` whole groups from g0, out[64 k + r] for group g0 + k.
 // Return false when the path has no vector code (the caller then runs the scalar one).
-template <class P>
-inline bool groups_f32(instruction_set isa, const P& p, const philox4x32_key& key,
+template <class Kernel>
+inline bool groups_f32(instruction_set isa, const Kernel& p, const philox4x32_key& key,
                        std::uint32_t domain, std::uint64_t g0, std::uint64_t count,
                        float* out) noexcept {
 #if defined(KINDLING_LANES_X86)
@@ -520,8 +75,10 @@ inline bool groups_f32(instruction_set isa, const P& p, const philox4x32_key& ke
   return false;
 }
 
-// The double normal on whole groups, out[32 k + r] for group g0 + k (AVX-512 only).
-inline bool groups_f64(instruction_set isa, const normal_f64_params& p, const philox4x32_key& key,
+// The double normal (sample.hpp normal_kernel<double>) on whole groups, out[32 k + r]
+// for group g0 + k (AVX-512 only).
+template <class Kernel>
+inline bool groups_f64(instruction_set isa, const Kernel& p, const philox4x32_key& key,
                        std::uint32_t domain, std::uint64_t g0, std::uint64_t count,
                        double* out) noexcept {
 #if defined(KINDLING_LANES_X86)
@@ -535,8 +92,8 @@ inline bool groups_f64(instruction_set isa, const normal_f64_params& p, const ph
 // The same groups as float elements straight into dst, each moved inside [lo_min,
 // hi_max] as round_store_f32 does; `stream`: non-temporal stores. False when the path
 // has no such writer (the caller then generates into a buffer and rounds from there).
-template <class P>
-inline bool groups_f32_elements(instruction_set isa, const P& p, const philox4x32_key& key,
+template <class Kernel>
+inline bool groups_f32_elements(instruction_set isa, const Kernel& p, const philox4x32_key& key,
                                 std::uint32_t domain, std::uint64_t g0, std::uint64_t count,
                                 float* dst, float hi_max, float lo_min, bool stream) noexcept {
 #if defined(KINDLING_LANES_X86)
@@ -554,8 +111,8 @@ inline bool groups_f32_elements(instruction_set isa, const P& p, const philox4x3
 }
 
 // The same for bfloat16 elements (their bits), rounded as round_store_bf16 does.
-template <class P>
-inline bool groups_bf16_elements(instruction_set isa, const P& p, const philox4x32_key& key,
+template <class Kernel>
+inline bool groups_bf16_elements(instruction_set isa, const Kernel& p, const philox4x32_key& key,
                                  std::uint32_t domain, std::uint64_t g0, std::uint64_t count,
                                  std::uint16_t* dst, float hi_max, float lo_min, bool stream) noexcept {
 #if defined(KINDLING_LANES_X86)
@@ -607,7 +164,6 @@ inline void store_fence() noexcept {
   _mm_sfence();
 #endif
 }
-
 }  // namespace kindling::detail
 
 #endif  // KINDLING_RANDOM_DETAIL_LANES_HPP

@@ -1,37 +1,90 @@
-// The group functions of one instruction set, written once against the lane
-// primitives (u_*, f_*, m_*) that random/detail/lanes.hpp defines for it. lanes.hpp
-// includes this file inside each instruction set's namespace and target region, so it
-// has no include guard and must not be included anywhere else.
+// The group functions of one instruction set, written once against its lane
+// primitives. Each function transcribes its scalar counterpart (named beside it)
+// operation for operation; see lanes.hpp for why the bits agree.
 //
-// Each function transcribes its scalar counterpart (named beside it) operation for
-// operation; see lanes.hpp for why the bits agree.
+// An instruction-set header (random/detail/avx512.hpp, avx2.hpp) includes this file
+// inside its target region, after defining KINDLING_LANES_WIDTH (16 or 8) and, in
+// namespace kindling::detail::lanes_avx512 (16) or lanes_avx2 (8), the primitives it
+// uses, and nothing else of the includer:
+//   lanes                          lanes a vector
+//   vu, vf, vm                     vectors of uint32, float, and a lane mask
+//   u_set1 u_iota u_add u_sub u_xor u_and u_or u_srl<n> u_sll<n> u_eq u_ge u_select
+//   u_mulhilo u_bits u_trunc_f u_load u_store u_store_elements u16_store_elements
+//   f_set1 f_add f_sub f_mul f_div f_sqrt f_fma f_fnma f_fms f_floor f_neg f_abs
+//   f_flip_sign f_from_small_u f_from_i f_exponent f_from_bits f_lt f_le f_ge f_eq
+//   f_select f_store
+//   m_and m_none_of
+// The body is emitted once per instruction set: the guard below is keyed by the width.
+#ifndef KINDLING_LANES_WIDTH
+#error "lanes_body.hpp is included by random/detail/avx512.hpp or avx2.hpp, which define KINDLING_LANES_WIDTH"
+#endif
+
+#include <cstddef>
+#include <cstdint>
+#include <limits>
+#include <type_traits>
+
+#include "kindling/detail/dmath.hpp"
+#include "kindling/random/philox.hpp"
+
+namespace kindling::detail {
+// The prepared transforms of random/sample.hpp, which the vector paths take as they are
+// (one description of each distribution for the scalar and the vector code).
+template <class C>
+struct uniform_kernel;
+template <class C>
+struct symmetric_uniform_kernel;
+template <class C>
+struct normal_kernel;
+template <class C>
+struct truncated_normal_kernel;
+}  // namespace kindling::detail
+
+#if KINDLING_LANES_WIDTH == 16
+#ifndef KINDLING_RANDOM_DETAIL_LANES_BODY_16
+#define KINDLING_RANDOM_DETAIL_LANES_BODY_16
+#define KINDLING_LANES_BODY_EMIT
+#define KINDLING_LANES_NAMESPACE lanes_avx512
+#endif
+#elif KINDLING_LANES_WIDTH == 8
+#ifndef KINDLING_RANDOM_DETAIL_LANES_BODY_8
+#define KINDLING_RANDOM_DETAIL_LANES_BODY_8
+#define KINDLING_LANES_BODY_EMIT
+#define KINDLING_LANES_NAMESPACE lanes_avx2
+#endif
+#else
+#error "KINDLING_LANES_WIDTH is 16 (AVX-512) or 8 (AVX2)"
+#endif
+
+#ifdef KINDLING_LANES_BODY_EMIT
+namespace kindling::detail::KINDLING_LANES_NAMESPACE {
+
+static_assert(lanes == KINDLING_LANES_WIDTH, "the includer's primitives are KINDLING_LANES_WIDTH wide");
 
 // Philox4x32-10 (philox.hpp, philox_rounds) of N units of `lanes` consecutive blocks,
-// unit k starting at block b0 + k lanes, counter (b mod 2^32, b >> 32, domain, 1). A
-// unit starts at a multiple of `lanes`, which divides 2^32, so within a unit the low
-// word is that of its first block plus the lane and the high word is constant. The N
-// units are independent chains, interleaved so that the multiplier latency overlaps.
+// unit k starting at block b0 + k lanes, counters from counter_of (philox.hpp). A unit
+// starts at a multiple of `lanes`, which divides 2^32, so within a unit the low word is
+// that of its first block plus the lane and the other words are constant. The N units
+// are independent chains, interleaved so that the multiplier latency overlaps.
 template <unsigned N>
 inline void philox_units(const philox4x32_key& key, std::uint32_t domain, std::uint64_t b0,
                          vu (&x)[N][4]) noexcept {
   for (unsigned k = 0; k < N; ++k) {
-    const std::uint64_t b = b0 + std::uint64_t{k} * lanes;
-    x[k][0] = u_add(u_set1(static_cast<std::uint32_t>(b)), u_iota());
-    x[k][1] = u_set1(static_cast<std::uint32_t>(b >> 32));
-    x[k][2] = u_set1(domain);
-    x[k][3] = u_set1(1u);  // format_version
+    const philox4x32_counter c = counter_of(domain, b0 + std::uint64_t{k} * lanes);
+    x[k][0] = u_add(u_set1(c[0]), u_iota());
+    for (unsigned j = 1; j < 4; ++j) x[k][j] = u_set1(c[j]);
   }
   std::uint32_t k0 = key[0], k1 = key[1];
-  for (int round = 0; round < 10; ++round) {
+  for (unsigned round = 0; round < philox_rounds_count; ++round) {
     if (round != 0) {
-      k0 += 0x9E3779B9u;
-      k1 += 0xBB67AE85u;
+      k0 += philox4x32_key_increments[0];
+      k1 += philox4x32_key_increments[1];
     }
     const vu kv0 = u_set1(k0), kv1 = u_set1(k1);
     for (unsigned k = 0; k < N; ++k) {
       vu hi0, lo0, hi1, lo1;
-      u_mulhilo(x[k][2], 0xCD9E8D57u, hi0, lo0);
-      u_mulhilo(x[k][0], 0xD2511F53u, hi1, lo1);
+      u_mulhilo(x[k][2], philox4x32_multipliers[0], hi0, lo0);
+      u_mulhilo(x[k][0], philox4x32_multipliers[1], hi1, lo1);
       x[k][0] = u_xor(u_xor(hi0, x[k][1]), kv0);
       x[k][1] = lo0;
       x[k][2] = u_xor(u_xor(hi1, x[k][3]), kv1);
@@ -242,22 +295,34 @@ struct truncated_unit {
   }
 };
 
-// The transform of a distribution's parameters (used by the element writers of lanes.hpp).
-inline uniform_unit make_unit(const uniform_f32_params& p) noexcept {
-  return {f_set1(p.width), f_set1(p.lo), f_set1(p.hi), f_set1(p.below_hi)};
+// The vector transform of a prepared float kernel (random/sample.hpp): its parameters
+// broadcast to every lane. Templates so that the kernels, declared in lanes.hpp and
+// defined in sample.hpp, are complete where these are used.
+template <class C>
+inline uniform_unit make_unit(const uniform_kernel<C>& k) noexcept {
+  static_assert(std::is_same<C, float>::value, "the vector transforms are float");
+  return {f_set1(k.width), f_set1(k.lo), f_set1(k.hi), f_set1(k.below_hi)};
 }
-inline symmetric_unit make_unit(const symmetric_f32_params& p) noexcept { return {f_set1(p.bound)}; }
-inline normal_unit make_unit(const normal_f32_params& p) noexcept {
-  return {f_set1(p.mean), f_set1(p.stddev)};
+template <class C>
+inline symmetric_unit make_unit(const symmetric_uniform_kernel<C>& k) noexcept {
+  static_assert(std::is_same<C, float>::value, "the vector transforms are float");
+  return {f_set1(k.bound)};
 }
-inline truncated_unit make_unit(const truncated_f32_params& p) noexcept {
-  return {f_set1(p.mass),   f_set1(p.lower), f_set1(p.upper), f_set1(p.cut_lo),
-          f_set1(p.cut_hi), f_set1(p.mean),  f_set1(p.stddev)};
+template <class C>
+inline normal_unit make_unit(const normal_kernel<C>& k) noexcept {
+  static_assert(std::is_same<C, float>::value, "the vector transforms are float");
+  return {f_set1(k.mean), f_set1(k.stddev)};
+}
+template <class C>
+inline truncated_unit make_unit(const truncated_normal_kernel<C>& k) noexcept {
+  static_assert(std::is_same<C, float>::value, "the vector transforms are float");
+  return {f_set1(k.mass),   f_set1(k.lower), f_set1(k.upper), f_set1(k.cut_lo),
+          f_set1(k.cut_hi), f_set1(k.mean),  f_set1(k.stddev)};
 }
 
-// Whole groups of the distribution with parameters p, out[64 k + r] for group g0 + k.
-template <class P>
-inline void groups(const P& p, const philox4x32_key& key, std::uint32_t domain,
+// Whole groups of a prepared float kernel, out[64 k + r] for group g0 + k.
+template <class Kernel>
+inline void groups(const Kernel& p, const philox4x32_key& key, std::uint32_t domain,
                    std::uint64_t g0, std::uint64_t count, float* out) noexcept {
   drive_groups(make_unit(p), key, domain, g0, count, out);
 }
@@ -299,7 +364,7 @@ inline vu inside_bf16(vu b, vf hm, vf lm) noexcept {
 }
 
 // One value vector stored as float elements, or as the bits of bfloat16 elements, each
-// moved inside [lo_min, hi_max] as element_rounder does.
+// moved inside [lo_min, hi_max] as element.hpp's element_rounder does.
 inline void store_element_vector(float* at, vf v, vf hm, vf lm, bool nt) noexcept {
   u_store_elements(at, inside_f32(u_bits(v), hm, lm), nt);
 }
@@ -332,8 +397,8 @@ inline std::size_t round_store_bf16(const float* src, std::uint16_t* dst, std::s
 // std::uint16_t (bfloat16 bits). Non-temporal only when dst is aligned to the vector;
 // the values are the same either way. The direct writer of AVX2 for both, and of
 // AVX-512 for bfloat16 (its float writer is lanes.hpp's line writer).
-template <class P, class Out>
-inline void groups_to_elements_by_vector(const P& p, const philox4x32_key& key, std::uint32_t domain,
+template <class Kernel, class Out>
+inline void groups_to_elements_by_vector(const Kernel& p, const philox4x32_key& key, std::uint32_t domain,
                                          std::uint64_t g0, std::uint64_t count, Out* dst, float hi_max,
                                          float lo_min, bool stream) noexcept {
   const vf hm = f_set1(hi_max), lm = f_set1(lo_min);
@@ -345,3 +410,8 @@ inline void groups_to_elements_by_vector(const P& p, const philox4x32_key& key, 
   };
   drive_units(make_unit(p), key, domain, g0, count, sink);
 }
+
+}  // namespace kindling::detail::KINDLING_LANES_NAMESPACE
+#undef KINDLING_LANES_NAMESPACE
+#undef KINDLING_LANES_BODY_EMIT
+#endif  // KINDLING_LANES_BODY_EMIT

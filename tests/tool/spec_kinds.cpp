@@ -1,0 +1,98 @@
+// Tests of the convolution and residual keys of kindling/io/spec.hpp: the stack a spec
+// of feature maps, convolutions and residual blocks gives, and the refusals that only the
+// stack can decide (geometry, groups, branch widths), each under its key.
+//
+// Sources: He et al., ICCV 2015 (Var W = 2 / fan_in, fan_in = in / groups x kernel);
+// Dumoulin & Visin 2016 (output extents); Zhang et al., ICLR 2019 (Fixup).
+#include <doctest/doctest.h>
+
+#include <stdexcept>
+#include <string>
+
+#include "kindling/io/spec.hpp"
+
+#include "../support/errors.hpp"
+
+using namespace kindling;
+
+namespace {
+std::string message_of(const std::string& text) {
+  return kindling_test::message_of<std::invalid_argument>([&] { parse_network_spec(text, "'belt.json'"); });
+}
+}  // namespace
+
+TEST_CASE("a spec of 1-D convolutions, a residual block and a dense head gives the stack it describes") {
+  const network_spec spec = parse_network_spec(R"({
+    "name": "belt fault detector",
+    "input": {"width": 3, "extent": [64]},
+    "layers": [
+      {"width": 16, "activation": "relu", "scheme": "he-normal", "conv": {"kernel": [5], "padding": "same"}},
+      {"width": 32, "activation": "relu", "scheme": "he-normal",
+       "conv": {"kernel": [3], "stride": [2], "padding": [1], "groups": 4}},
+      {"residual": {"layers": [
+          {"width": 32, "activation": "relu", "scheme": "he-normal", "conv": {"kernel": [3], "padding": "same", "dilation": [1]}},
+          {"width": 32, "activation": "identity", "scheme": "he-normal", "conv": {"kernel": [3], "padding": "same"}}],
+        "scaling": "fixup", "blocks": 4}, "label": "block"},
+      {"width": 4, "activation": "identity", "scheme": "glorot-uniform", "label": "head"}
+    ]})");
+  const layer_stack s = build_stack(spec);
+  REQUIRE(s.depth() == 6);
+  CHECK(s.input_extent() == std::vector<std::uint64_t>{64});
+  CHECK(s[0].fans.fan_in == 3 * 5);
+  CHECK(s[0].map->out_extent() == std::vector<std::uint64_t>{64});
+  CHECK(s[1].fans.fan_in == 12);  // in 16 / groups 4 x kernel 3
+  CHECK(s[1].map->out_extent() == std::vector<std::uint64_t>{32});  // (64 + 2 - 3) / 2 + 1
+  CHECK(s[2].label == "block.layer1");
+  // Fixup with m = 2, L = 4: the first branch layer's He variance times 4^(-1) ...
+  CHECK(s[2].weight_variance == doctest::Approx(2.0 / (32 * 3) / 4));
+  CHECK(s[3].weight_variance == 0.0);  // ... and the last at zero
+  CHECK(s[4].residual);
+  CHECK(s[5].fans.fan_in == 32 * 32);  // the flattened map
+  const auto p = predict(s);
+  CHECK(p[4].preactivation_variance == doctest::Approx(p[1].activation_moment).epsilon(1e-12));
+}
+
+TEST_CASE("a spec whose convolution or residual block cannot be built is refused under its key") {
+  struct bad_case {
+    const char* what;
+    std::string layers;
+    const char* expected;
+  };
+  const std::string input = R"({"input": {"width": 4, "extent": [6]}, "layers": [)";
+  const std::vector<bad_case> cases{
+      {"kernel larger than the padded input", R"({"width": 4, "activation": "relu", "scheme": "he-normal", "conv": {"kernel": [9], "padding": [1]}})",
+       "'layers[0].conv.kernel' is refused: kindling::convolution_map: argument 'conv' has kernel [9] spanning 9 positions on axis 0 (dilation 1), larger than the padded input 8"},
+      {"groups not dividing the channels", R"({"width": 6, "activation": "relu", "scheme": "he-normal", "conv": {"kernel": [3], "groups": 4}})",
+       "'layers[0].conv.groups' is refused"},
+      {"branch width not matching its skip", R"({"residual": {"layers": [{"width": 8, "activation": "relu", "scheme": "he-normal", "conv": {"kernel": [1]}}]}})",
+       "'layers[0].residual.layers' is refused: kindling::layer_stack::add_residual: argument 'branch' ends in 8 channels"},
+      {"scaling without blocks", R"({"residual": {"layers": [{"width": 4, "activation": "relu", "scheme": "he-normal", "conv": {"kernel": [1]}}], "scaling": "fixup"}})",
+       "'layers[0].residual' has scaling 'fixup' but no key 'blocks'"},
+      {"unknown scaling", R"({"residual": {"layers": [{"width": 4, "activation": "relu", "scheme": "he-normal"}], "scaling": "half"}})",
+       "'layers[0].residual.scaling' = \"half\", expected one of none, inverse-sqrt, fixup, fixup-keep-last"},
+      {"residual with a width", R"({"residual": {"layers": [{"width": 4, "activation": "relu", "scheme": "he-normal"}]}, "width": 4})",
+       "unknown key 'layers[0].width'"},
+      {"kernel of the wrong rank", R"({"width": 4, "activation": "relu", "scheme": "he-normal", "conv": {"kernel": [3, 3]}})",
+       "'layers[0].conv.kernel' is refused"},
+      {"stride of the wrong length", R"({"width": 4, "activation": "relu", "scheme": "he-normal", "conv": {"kernel": [3], "stride": [1, 1]}})",
+       "'layers[0].conv.stride' = [1,1], expected an array of 1 positive integers (one per kernel axis)"},
+      {"zero kernel", R"({"width": 4, "activation": "relu", "scheme": "he-normal", "conv": {"kernel": [0]}})",
+       "'layers[0].conv.kernel' = [0], expected an array of 1 to 3 positive integers"},
+      {"same padding with an even kernel", R"({"width": 4, "activation": "relu", "scheme": "he-normal", "conv": {"kernel": [2], "padding": "same"}})",
+       "'layers[0].conv.padding' = \"same\", expected odd kernel sizes"},
+      {"unknown conv key", R"({"width": 4, "activation": "relu", "scheme": "he-normal", "conv": {"kernel": [3], "pad": 1}})",
+       "unknown key 'layers[0].conv.pad'"},
+      {"a bad layer inside a branch", R"({"residual": {"layers": [{"width": 0, "activation": "relu", "scheme": "he-normal"}]}})",
+       "'layers[0].residual.layers[0].width' = 0"},
+  };
+  for (const bad_case& c : cases) {
+    CAPTURE(c.what);
+    const std::string m = message_of(input + c.layers + "]}");
+    CHECK_MESSAGE(m.find("kindling network spec 'belt.json': ") == 0, "expected the message to name the file: ", m);
+    CHECK_MESSAGE(m.find(c.expected) != std::string::npos, "expected '", c.expected, "' in: ", m);
+  }
+  CHECK(message_of(R"({"input": {"width": 4}, "layers": [{"width": 4, "activation": "relu", "scheme": "he-normal", "conv": {"kernel": [3]}}]})")
+            .find("'layers[0].conv' is refused: a convolution needs a feature map below it") != std::string::npos);
+  CHECK(message_of(R"({"input": {"width": 4, "extent": [0]}, "layers": [{"width": 4, "activation": "relu", "scheme": "he-normal"}]})")
+            .find("'input.extent' = [0], expected an array of 1 to 3 positive integers") != std::string::npos);
+}
