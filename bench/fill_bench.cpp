@@ -113,23 +113,29 @@ void mt19937_normal(benchmark::State& state) {
   set_bytes(state, sizeof(float));
 }
 
-void orthogonal_512(benchmark::State& state) {
-  Eigen::MatrixXf q(512, 512);
+// Orthogonal n x n against Eigen's Householder QR of an n x n double matrix and its Q
+// alone (what a hand-written orthogonal initializer would run), n = 512 and 2048.
+void orthogonal_n(benchmark::State& state, Eigen::Index n) {
+  Eigen::MatrixXf q(n, n);
   const auto s = kindling::make_stream(1, "bench.q");
+  const auto u = static_cast<std::uint64_t>(n);
   for (auto _ : state) {
-    kindling::initialize(kindling::view_of(q), kindling::dense(512, 512), kindling::orthogonal{}, s);
+    kindling::initialize(kindling::view_of(q), kindling::dense(u, u), kindling::orthogonal{}, s);
     benchmark::DoNotOptimize(q.data());
   }
 }
-
-void eigen_qr_512(benchmark::State& state) {
-  const Eigen::MatrixXd a = Eigen::MatrixXd::Random(512, 512);
+void eigen_qr_n(benchmark::State& state, Eigen::Index n) {
+  const Eigen::MatrixXd a = Eigen::MatrixXd::Random(n, n);
   for (auto _ : state) {
     Eigen::HouseholderQR<Eigen::MatrixXd> qr(a);
     Eigen::MatrixXd q = qr.householderQ();
     benchmark::DoNotOptimize(q.data());
   }
 }
+void orthogonal_512(benchmark::State& state) { orthogonal_n(state, 512); }
+void eigen_qr_512(benchmark::State& state) { eigen_qr_n(state, 512); }
+void orthogonal_2048(benchmark::State& state) { orthogonal_n(state, 2048); }
+void eigen_qr_2048(benchmark::State& state) { eigen_qr_n(state, 2048); }
 
 // One read of the tensor (a sum), the floor for any audit that looks at every value.
 void read_f32(benchmark::State& state) {
@@ -199,6 +205,8 @@ BENCHMARK(mt19937_uniform)->Unit(benchmark::kMillisecond)->UseRealTime();
 BENCHMARK(mt19937_normal)->Unit(benchmark::kMillisecond)->UseRealTime();
 BENCHMARK(orthogonal_512)->Unit(benchmark::kMillisecond)->UseRealTime();
 BENCHMARK(eigen_qr_512)->Unit(benchmark::kMillisecond)->UseRealTime();
+BENCHMARK(orthogonal_2048)->Unit(benchmark::kMillisecond)->UseRealTime();
+BENCHMARK(eigen_qr_2048)->Unit(benchmark::kMillisecond)->UseRealTime();
 BENCHMARK(read_f32)->Unit(benchmark::kMillisecond)->UseRealTime();
 BENCHMARK(duplicate_units_4096)->Unit(benchmark::kMillisecond)->UseRealTime();
 BENCHMARK(eigen_set_random)->Unit(benchmark::kMillisecond)->UseRealTime();
