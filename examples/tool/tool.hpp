@@ -35,6 +35,7 @@ struct draw_options {
   std::string shape;                   // "512x256"
   std::string layout;                  // "" = the default of the shape's rank
   std::optional<std::uint64_t> fan_in, fan_out;
+  std::optional<std::uint64_t> blocks; // --blocks: a packed gate weight of that many blocks
   std::uint64_t seed = 0;
   std::string name = "weight";
   std::string dtype = "f32";
