@@ -40,35 +40,6 @@ std::uint64_t element_bytes(const std::string& dtype) {
   throw std::invalid_argument("--dtype '" + dtype + "': expected f32, f64, f16 or bf16");
 }
 
-// The packed layer --blocks describes, or nothing without --blocks. Checked here, before
-// any work: a rank-2 --shape (a dense weight, layout oi or io) whose output axis the
-// blocks divide, and no --fan-in/--fan-out (each block's fans come from its own shape).
-std::optional<packed_dense> packed_layer(const draw_options& o, const std::vector<std::uint64_t>& global,
-                                         weight_layout layout) {
-  if (!o.blocks) return std::nullopt;
-  const std::string given = "--blocks " + std::to_string(*o.blocks);
-  if (global.size() != 2) {
-    throw std::invalid_argument(given + " describes packed gates, a dense weight, and --shape " + o.shape +
-                                " has rank " + std::to_string(global.size()) +
-                                "; expected a rank-2 --shape such as 144x32 (3 blocks of 48 rows)");
-  }
-  for (const char* option : {"--fan-in", "--fan-out"}) {
-    if (std::string(option) == "--fan-in" ? o.fan_in.has_value() : o.fan_out.has_value()) {
-      throw std::invalid_argument(std::string(option) + " does not apply with " + given +
-                                  ": each gate block takes its fans from its own shape; expected no " + option);
-    }
-  }
-  const std::size_t out_axis = layout == weight_layout::out_in ? 0 : 1;
-  const std::uint64_t rows = global[out_axis];
-  if (rows % *o.blocks != 0) {
-    throw std::invalid_argument(given + " does not divide the output axis of --shape " + o.shape + " (" +
-                                std::to_string(rows) + " outputs, axis " + std::to_string(out_axis) + " of layout " +
-                                (layout == weight_layout::out_in ? "oi" : "io") + "); expected a divisor of " +
-                                std::to_string(rows));
-  }
-  return packed_dense(*o.blocks, global[1 - out_axis], rows / *o.blocks, layout);
-}
-
 template <class E>
 npy_array draw_values(const any_scheme& scheme, const std::vector<std::uint64_t>& global,
                       const std::vector<std::uint64_t>& offset, const std::vector<std::uint64_t>& extent,
@@ -98,7 +69,8 @@ int run_draw(const draw_options& o) {
   std::string layout_name;
   const fans f = resolve_fans(global, o.layout, o.blocks ? std::nullopt : o.fan_in,
                               o.blocks ? std::nullopt : o.fan_out, &layout, &layout_name);
-  const std::optional<packed_dense> packed = packed_layer(o, global, layout);
+  const std::optional<packed_dense> packed =
+      packed_layer(o.blocks, global, "--shape " + o.shape, layout, o.fan_in, o.fan_out);
   if (uses_fans(scheme) && (f.fan_in == 0 || f.fan_out == 0)) {
     throw std::invalid_argument("scheme '" + o.scheme.scheme + "' needs fans, and the rank-1 shape " +
                                 shape_text(global) + " has none: give both --fan-in and --fan-out");

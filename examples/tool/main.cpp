@@ -123,6 +123,7 @@ int main(int argc, char** argv) {
   scheme_flags check_flags;
   integer_option check_fan_in{"--fan-in", 1, max_exact_count, {}, nullptr};
   integer_option check_fan_out{"--fan-out", 1, max_exact_count, {}, nullptr};
+  integer_option check_blocks{"--blocks", 1, std::uint64_t{1} << 32, {}, nullptr};
   CLI::App* check_cmd = app.add_subcommand("check", "Audit a .npy weight file");
   check_cmd->add_option("FILE", check.file, "The .npy file")->required();
   check_cmd->add_option("--expect", check.expect.scheme, "Check conformance with this scheme (as draw --scheme)");
@@ -132,6 +133,8 @@ int main(int argc, char** argv) {
   check_cmd->add_option("--region", check.region, "With --full-shape: where the block sits, as given to draw --region");
   add(check_cmd, check_fan_in, "Override the fan-in the layout gives");
   add(check_cmd, check_fan_out, "Override the fan-out the layout gives");
+  add(check_cmd, check_blocks,
+      "FILE is a packed gate weight of this many blocks (as draw --blocks): --expect checks each block with its own fans");
   check_flags.attach(check_cmd);
   check_cmd->add_flag("--identify", check.identify, "Rank the schemes the values fit, best first");
   check_cmd->add_option("--alpha", check.alpha,
@@ -227,6 +230,7 @@ int main(int argc, char** argv) {
       check_flags.into(check.expect);
       check.fan_in = check_fan_in.get();
       check.fan_out = check_fan_out.get();
+      check.blocks = check_blocks.get();
       if (!(check.alpha > 0 && check.alpha < 1)) {
         throw std::invalid_argument("--alpha " + number_text(check.alpha, 6) +
                                     ": expected a false-alarm rate in (0, 1), e.g. 0.001");

@@ -234,6 +234,25 @@ elif CASE == "packed":
         expect_code(1, "check", f"wrong{b}.npy", "--expect", "glorot-uniform")
     expect_code(1, "check", "gates.npy", "--expect", "glorot-uniform")
     expect(not np.array_equal(gates[:48], gates[48:96]), "gate blocks 0 and 1 are equal")
+    # check --blocks does the same on the whole file: check_scheme of each gate block with
+    # its own fans (the family-wise alpha split over the blocks).
+    out, _ = expect_code(0, "check", "gates.npy", "--blocks", "3", "--expect", "glorot-uniform")
+    expect("3 gate blocks of [48, 32], fan-in 32, fan-out 48 each" in out and "block 2: " in out,
+           f"check --blocks 3: {out!r}")
+    out, _ = expect_code(1, "check", "whole_fans.npy", "--blocks", "3", "--expect", "glorot-uniform")
+    expect("block 0: " in out and "variance FAILED" in out, f"check --blocks 3 of the unpacked draw: {out!r}")
+    out, _ = expect_code(0, "check", "gates.npy", "--blocks", "3", "--expect", "glorot-uniform", "--json")
+    expect(json.loads(out)["blocks"] == 3 and json.loads(out)["fans"]["fan_out"] == 48, f"check --blocks --json: {out!r}")
+    expect_code(0, "draw", "--scheme", "orthogonal", "--shape", "144x48", "--blocks", "3", "-o", "w_hh.npy")
+    expect_code(0, "check", "w_hh.npy", "--blocks", "3", "--expect", "orthogonal")
+    expect_code(1, "check", "w_hh.npy", "--expect", "orthogonal")  # the stack is not one orthogonal matrix
+    for args, words in ((["--blocks", "5"], ["--blocks 5 does not divide the output axis of FILE 'gates.npy'"]),
+                        (["--blocks", "3", "--identify"], ["--identify with --blocks 3", "expected no --identify"]),
+                        (["--blocks", "3", "--expect", "identity"], ["--expect identity with --blocks 3"]),
+                        (["--blocks", "3", "--expect", "he-normal", "--fan-in", "32"], ["--fan-in does not apply"]),
+                        (["--blocks", "3", "--full-shape", "288x32"], ["checks a whole packed weight"])):
+        _, err = expect_code(2, "check", "gates.npy", *args)
+        expect(all(w in err for w in words), f"check {' '.join(args)}: expected {words} in {err!r}")
 
     # Bad values: exit 2 naming --blocks, its value and what was expected; nothing written.
     for args, words in (
@@ -250,13 +269,31 @@ elif CASE == "packed":
         expect(all(w in err for w in words), f"draw {' '.join(args)}: expected {words} in {err!r}")
         expect(not os.path.exists("bad.npy"), f"draw {' '.join(args)} wrote a file")
     _, err = expect_code(2, "draw", "--scheme", "he-normal", "--shape", "48x16x3", "--blocks", "3", "-o", "bad.npy")
-    expect("--blocks 3" in err and "has rank 3" in err and "expected a rank-2 --shape" in err, f"rank 3: {err!r}")
+    expect("--blocks 3" in err and "--shape 48x16x3 has rank 3" in err and "expected a rank-2 shape" in err, f"rank 3: {err!r}")
     # The scheme is checked against each block: 40 nonzero weights a unit do not fit a
     # block's 32 inputs (the whole tensor's fans would not say so either: 32 inputs too).
     _, err = expect_code(2, "draw", "--scheme", "sparse", "--nonzero", "40", "--shape", "96x32", "--blocks", "2",
                          "-o", "bad.npy")
     expect("--blocks 2" in err and "gate blocks of [48, 32]" in err and "'nonzero' = 40" in err,
            f"sparse --nonzero 40 on blocks of 32 inputs: {err!r}")
+
+elif CASE == "rate-packed":
+    # check --blocks on correct packed draws, 200 seeds at --alpha 0.05: each report is a
+    # family of checks at alpha / 3 per block (Bonferroni), so at most 5% of correct
+    # weights may fail; we allow 18 of 200 (P(X >= 18) < 0.002 for Binomial(200, 0.05)).
+    # Power on the bug --blocks is about: the same weights drawn with the whole tensor's
+    # fans (fan-out 144 instead of 48; sd 0.66x) fail in every seed.
+    false_alarms, caught = 0, 0
+    for seed in range(200):
+        for blocks_flag, name in ((["--blocks", "3"], "ok.npy"), ([], "whole.npy")):
+            expect_code(0, "draw", "--scheme", "glorot-uniform", "--shape", "144x32", *blocks_flag, "--seed", str(seed),
+                        "--name", "gru.w_ih", "-o", name)
+        false_alarms += run("check", "ok.npy", "--blocks", "3", "--expect", "glorot-uniform", "--alpha", "0.05")[0] == 1
+        caught += run("check", "whole.npy", "--blocks", "3", "--expect", "glorot-uniform", "--alpha", "0.05")[0] == 1
+    print(f"check --blocks 3 at alpha 0.05: {false_alarms} false alarms in 200 correct draws, "
+          f"{caught} of 200 whole-tensor-fan draws caught")
+    expect(false_alarms <= 18, f"{false_alarms} of 200 correct packed draws failed check --blocks at alpha 0.05")
+    expect(caught == 200, f"only {caught} of 200 draws with the whole tensor's fans failed check --blocks")
 
 elif CASE == "numpy":
     # NumPy reads every element type we write, and the values are what they should be.
