@@ -187,6 +187,13 @@ def check_plan_round_trip(plan_path, stem):
     expect(code == 0 and open(f"{stem}_again.safetensors", "rb").read() == open(st, "rb").read(),
            f"{stem}: the checkpoint regenerated from its manifest differs ({code} {err!r})")
     expect(code == 0 and json.load(open(f"{stem}_again.json")) == manifest, f"{stem}: the regenerated manifest differs")
+    for key, value, words in (("format_version", 99, "'format_version' = 99"),
+                              ("format", "kindling-notes", "expected \"kindling-model-plan\" or \"kindling-manifest\"")):
+        bad = dict(manifest, **{key: value})
+        json.dump(bad, open("bad_manifest.json", "w"))
+        code, _, err = run("assemble", "bad_manifest.json", "-o", "bad.safetensors")
+        expect(code == 2 and words in err and not os.path.exists("bad.safetensors"),
+               f"{stem}: assemble of a manifest with {key} {value!r}: {code} {err!r}")
     # One flipped byte in each tensor in turn fails the exact verification, naming it alone.
     for name in names:
         flipped = dict(t)
