@@ -4,6 +4,7 @@
 #include <cctype>
 #include <cmath>
 #include <cstdio>
+#include <optional>
 #include <stdexcept>
 #include <string>
 #include <vector>
@@ -92,14 +93,16 @@ std::vector<E> as_elements(const npy_array& a) {
 
 template <class Scheme>
 audit_report conformance_in_type(const npy_array& a, const placement& pl, const weight_info& w,
-                                 const Scheme& scheme, const check_options& o) {
+                                 const std::optional<packed_dense>& packed, const Scheme& scheme,
+                                 const check_options& o) {
   audit_options options;
   options.alpha = o.alpha;
   const auto run = [&](auto element) {
     using E = decltype(element);
     const std::vector<E> values = as_elements<E>(a);
-    return check_scheme(strided_view<const E>(values.data(), shape(pl.global.begin(), pl.global.end()), pl.part()), w,
-                        scheme, options);
+    const strided_view<const E> view(values.data(), shape(pl.global.begin(), pl.global.end()), pl.part());
+    // A packed weight: check_scheme of each gate block with its own fans, at alpha / blocks.
+    return packed ? check_scheme(view, *packed, scheme, options) : check_scheme(view, w, scheme, options);
   };
   switch (a.type) {
     case npy_type::f32: return run(float{});
@@ -111,7 +114,7 @@ audit_report conformance_in_type(const npy_array& a, const placement& pl, const 
 }
 
 audit_report expect_report(const npy_array& a, const std::vector<double>& x, const check_options& o,
-                           const placement& pl, const weight_info& w) {
+                           const placement& pl, const weight_info& w, const std::optional<packed_dense>& packed) {
   const any_scheme scheme = make_scheme(o.expect);
   if (uses_fans(scheme) && (w.fans.fan_in == 0 || w.fans.fan_out == 0)) {
     throw std::invalid_argument("--expect '" + o.expect.scheme + "' needs fans, and the rank-1 shape " +
@@ -122,11 +125,19 @@ audit_report expect_report(const npy_array& a, const std::vector<double>& x, con
   if (s == "identity" && !pl.whole() && o.region.empty()) {
     throw std::invalid_argument("--expect identity depends on where the block sits: give --region as draw was given it");
   }
+  if (packed && (s == "identity" || s == "delta-orthogonal" || s == "sparse")) {
+    throw std::invalid_argument("--expect " + s + " with --blocks " + std::to_string(packed->blocks()) +
+                                ": expected a fan-scaled, fixed, zeros, constant or orthogonal scheme with --blocks; "
+                                "check one gate block at a time (cut out of the file) for " + s);
+  }
   if (s == "zeros" || s == "constant" || s == "identity") return exact_values(a, x, scheme, pl, w, s);
   if (!pl.whole() && (s == "orthogonal" || s == "delta-orthogonal" || s == "sparse")) {
     throw std::invalid_argument("--expect '" + s + "' checks the structure of the whole tensor, and FILE holds only a " +
                                 shape_text(a.shape) + " block of --full-shape " + shape_text(pl.global) +
                                 "; expected the whole tensor (draw it without --region)");
+  }
+  if (s == "orthogonal" && packed) {  // each gate block orthogonal on its own
+    return check_orthogonal(v, *packed, o.expect.gain.value_or(1.0), orthogonal_tolerance(a.type));
   }
   if (s == "orthogonal") {
     return check_orthogonal(v, o.expect.gain.value_or(1.0), orthogonal_tolerance(a.type), w.layout);
@@ -143,7 +154,7 @@ audit_report expect_report(const npy_array& a, const std::vector<double>& x, con
                       std::is_same<S, delta_orthogonal>::value || std::is_same<S, sparse>::value) {
           throw std::logic_error("unreachable");
         } else {
-          return conformance_in_type(a, pl, w, sc, o);
+          return conformance_in_type(a, pl, w, packed, sc, o);
         }
       },
       scheme);
@@ -247,8 +258,22 @@ int run_check(const check_options& o) {
   }
   weight_layout layout;
   std::string layout_name;
-  const fans f = resolve_fans(pl.global, o.layout, o.fan_in, o.fan_out, &layout, &layout_name);
-  const weight_info w{f, layout};
+  const fans f = resolve_fans(pl.global, o.layout, o.blocks ? std::nullopt : o.fan_in,
+                              o.blocks ? std::nullopt : o.fan_out, &layout, &layout_name);
+  // --blocks: FILE is a packed gate weight, checked block by block with each block's fans.
+  const std::optional<packed_dense> packed =
+      packed_layer(o.blocks, pl.global, "FILE '" + o.file + "' of shape " + shape_text(pl.global), layout, o.fan_in,
+                   o.fan_out);
+  if (packed && !pl.whole()) {
+    throw std::invalid_argument("--blocks " + std::to_string(*o.blocks) + " checks a whole packed weight, and FILE '" +
+                                o.file + "' is a block of --full-shape " + o.full_shape +
+                                "; expected the whole weight, or no --blocks");
+  }
+  if (packed && o.identify) {
+    throw std::invalid_argument("--identify with --blocks " + std::to_string(*o.blocks) +
+                                ": expected no --identify; identify one gate block at a time (cut out of the file)");
+  }
+  const weight_info w{packed ? packed->layer_fans() : f, layout};
   if (o.identify && (f.fan_in == 0 || f.fan_out == 0)) {
     throw std::invalid_argument("--identify needs fans, and the rank-1 shape " + shape_text(a.shape) +
                                 " has none: give both --fan-in and --fan-out");
@@ -265,14 +290,21 @@ int run_check(const check_options& o) {
   if (!pl.whole()) out["full_shape"] = pl.global;
   if (!o.region.empty()) out["region"] = o.region;
   if (!layout_name.empty()) out["layout"] = layout_name;
-  if (f.fan_in != 0) out["fans"] = {{"fan_in", f.fan_in}, {"fan_out", f.fan_out}, {"receptive_field", f.receptive_field}};
+  if (w.fans.fan_in != 0) {
+    out["fans"] = {{"fan_in", w.fans.fan_in}, {"fan_out", w.fans.fan_out}, {"receptive_field", w.fans.receptive_field}};
+  }
+  if (packed) out["blocks"] = packed->blocks();  // "fans" are then each block's
 
   std::string header = o.file + ": " + npy_type_name(a.type) + " " + shape_text(a.shape);
   if (!pl.whole()) {
     header += ", a block of " + shape_text(pl.global) + (o.region.empty() ? std::string() : " (region " + o.region + ")");
   }
   if (!layout_name.empty()) header += ", layout " + layout_name;
-  if (f.fan_in != 0) header += ", fan-in " + std::to_string(f.fan_in) + ", fan-out " + std::to_string(f.fan_out);
+  if (packed) header += ", " + std::to_string(packed->blocks()) + " gate blocks of " + shape_text(packed->block(0).shape);
+  if (w.fans.fan_in != 0) {
+    header += ", fan-in " + std::to_string(w.fans.fan_in) + ", fan-out " + std::to_string(w.fans.fan_out);
+    if (packed) header += " each";
+  }
   if (!o.json) std::printf("%s\n", header.c_str());
 
   if (a.shape.size() >= 2) {
@@ -287,7 +319,7 @@ int run_check(const check_options& o) {
     std::printf("symmetry: not applicable (a rank-1 tensor has no units)\n");
   }
   if (!o.expect.scheme.empty()) {
-    const audit_report r = expect_report(a, x, o, pl, w);
+    const audit_report r = expect_report(a, x, o, pl, w, packed);
     passed = passed && r.passed();
     out["expect"] = report_json(r);
     out["expect"]["scheme"] = o.expect.scheme;

@@ -1,6 +1,8 @@
 // examples/tool/common.cpp: shapes, layouts, fans and regions from the command line.
 #include <cstdio>
 #include <limits>
+#include <optional>
+#include <utility>
 #include <stdexcept>
 
 #include "tool.hpp"
@@ -155,6 +157,35 @@ fans resolve_fans(const std::vector<std::uint64_t>& shape, const std::string& la
   if (fan_in) f.fan_in = *fan_in;
   if (fan_out) f.fan_out = *fan_out;
   return f;
+}
+
+std::optional<packed_dense> packed_layer(const std::optional<std::uint64_t>& blocks,
+                                         const std::vector<std::uint64_t>& shape, const std::string& shape_source,
+                                         weight_layout layout, const std::optional<std::uint64_t>& fan_in,
+                                         const std::optional<std::uint64_t>& fan_out) {
+  if (!blocks) return std::nullopt;
+  const std::string given = "--blocks " + std::to_string(*blocks);
+  if (shape.size() != 2) {
+    throw std::invalid_argument(given + " describes packed gates, a dense weight, and " + shape_source + " has rank " +
+                                std::to_string(shape.size()) +
+                                "; expected a rank-2 shape such as 144x32 (3 blocks of 48 rows)");
+  }
+  for (const auto& [option, value] : {std::pair<const char*, const std::optional<std::uint64_t>&>{"--fan-in", fan_in},
+                                      {"--fan-out", fan_out}}) {
+    if (value) {
+      throw std::invalid_argument(std::string(option) + " does not apply with " + given +
+                                  ": each gate block takes its fans from its own shape; expected no " + option);
+    }
+  }
+  const std::size_t out_axis = layout == weight_layout::out_in ? 0 : 1;
+  const std::uint64_t rows = shape[out_axis];
+  if (rows % *blocks != 0) {
+    throw std::invalid_argument(given + " does not divide the output axis of " + shape_source + " (" +
+                                std::to_string(rows) + " outputs, axis " + std::to_string(out_axis) + " of layout " +
+                                (layout == weight_layout::out_in ? "oi" : "io") + "); expected a divisor of " +
+                                std::to_string(rows));
+  }
+  return packed_dense(*blocks, shape[1 - out_axis], rows / *blocks, layout);
 }
 
 void parse_region(const std::string& text, const std::vector<std::uint64_t>& shape,

@@ -2,13 +2,17 @@
 // (seed, name, shape, element type) to a .npy file: golden tensors for tests in any
 // language. With --region only that block is computed and written; its values are
 // those it has in the whole tensor (the reproducibility contract, DEVELOPERS.md).
+// With --blocks the weight is packed gates (kindling::packed_dense): each block is drawn
+// with its own fans and sub-stream, the bits a model plan's "packed" layer gets.
 #include <cstdio>
+#include <optional>
 #include <stdexcept>
 #include <string>
 #include <variant>
 #include <vector>
 
 #include <kindling/element.hpp>
+#include <kindling/fan.hpp>
 #include <kindling/fill.hpp>
 #include <kindling/io/npy.hpp>
 #include <kindling/random/stream.hpp>
@@ -39,14 +43,20 @@ std::uint64_t element_bytes(const std::string& dtype) {
 template <class E>
 npy_array draw_values(const any_scheme& scheme, const std::vector<std::uint64_t>& global,
                       const std::vector<std::uint64_t>& offset, const std::vector<std::uint64_t>& extent,
-                      const weight_info& w, const stream& s, std::size_t threads) {
+                      const weight_info& w, const std::optional<packed_dense>& packed, const stream& s,
+                      std::size_t threads) {
   std::uint64_t n = 1;
   for (std::uint64_t e : extent) n *= e;
   std::vector<E> values(static_cast<std::size_t>(n));
   const strided_view<E> view(values.data(), shape(global.begin(), global.end()),
                              region(shape(offset.begin(), offset.end()), shape(extent.begin(), extent.end())));
   const thread_executor exec(threads);
-  std::visit([&](const auto& sc) { initialize(view, w, sc, s, exec); }, scheme);
+  std::visit(
+      [&](const auto& sc) {
+        if (packed) initialize(view, *packed, sc, s, exec);  // block b: its own fans, sub-stream s.indexed(b)
+        else initialize(view, w, sc, s, exec);
+      },
+      scheme);
   return make_npy(extent, values);
 }
 
@@ -57,7 +67,10 @@ int run_draw(const draw_options& o) {
   const std::vector<std::uint64_t> global = parse_shape(o.shape);
   weight_layout layout;
   std::string layout_name;
-  const fans f = resolve_fans(global, o.layout, o.fan_in, o.fan_out, &layout, &layout_name);
+  const fans f = resolve_fans(global, o.layout, o.blocks ? std::nullopt : o.fan_in,
+                              o.blocks ? std::nullopt : o.fan_out, &layout, &layout_name);
+  const std::optional<packed_dense> packed =
+      packed_layer(o.blocks, global, "--shape " + o.shape, layout, o.fan_in, o.fan_out);
   if (uses_fans(scheme) && (f.fan_in == 0 || f.fan_out == 0)) {
     throw std::invalid_argument("scheme '" + o.scheme.scheme + "' needs fans, and the rank-1 shape " +
                                 shape_text(global) + " has none: give both --fan-in and --fan-out");
@@ -97,16 +110,39 @@ int run_draw(const draw_options& o) {
   if (o.output.empty()) throw std::invalid_argument("-o is missing: expected the output .npy file");
   check_output("-o", o.output, {});
   check_fits_element(o.scheme, o.dtype);
-  const weight_info w{f, layout};
+  const weight_info w{packed ? packed->layer_fans() : f, layout};
+  if (packed) {
+    // The scheme against each block's shape and fans (orthogonal, identity and sparse
+    // look at the shape), refused here under the user's options rather than mid-draw.
+    std::visit(
+        [&](const auto& sc) {
+          for (const packed_block& b : packed->all_blocks()) {
+            try {
+              sc.check(shape(b.shape.begin(), b.shape.end()), weight_info{b.block_fans, layout});
+            } catch (const std::exception& e) {
+              throw std::invalid_argument("--scheme " + o.scheme.scheme + " with --blocks " +
+                                          std::to_string(*o.blocks) + " (gate blocks of " + shape_text(b.shape) +
+                                          "): " + e.what());
+            }
+          }
+        },
+        scheme);
+  }
   const stream s = make_stream(o.seed, o.name);
   npy_array out;
-  if (o.dtype == "f32") out = draw_values<float>(scheme, global, offset, extent, w, s, o.threads);
-  else if (o.dtype == "f64") out = draw_values<double>(scheme, global, offset, extent, w, s, o.threads);
-  else if (o.dtype == "f16") out = draw_values<float16>(scheme, global, offset, extent, w, s, o.threads);
-  else out = draw_values<bfloat16>(scheme, global, offset, extent, w, s, o.threads);
+  if (o.dtype == "f32") out = draw_values<float>(scheme, global, offset, extent, w, packed, s, o.threads);
+  else if (o.dtype == "f64") out = draw_values<double>(scheme, global, offset, extent, w, packed, s, o.threads);
+  else if (o.dtype == "f16") out = draw_values<float16>(scheme, global, offset, extent, w, packed, s, o.threads);
+  else out = draw_values<bfloat16>(scheme, global, offset, extent, w, packed, s, o.threads);
   write_output("-o", o.output, encode_npy(out));
   std::string fan_text;
-  if (f.fan_in != 0) fan_text = ", fan-in " + std::to_string(f.fan_in) + ", fan-out " + std::to_string(f.fan_out);
+  if (w.fans.fan_in != 0) {
+    fan_text = ", fan-in " + std::to_string(w.fans.fan_in) + ", fan-out " + std::to_string(w.fans.fan_out);
+  }
+  if (packed) {
+    fan_text = ", " + std::to_string(packed->blocks()) + " gate blocks of " + shape_text(packed->block(0).shape) +
+               fan_text + " each";
+  }
   std::printf("wrote %s: %s %s %s%s%s, seed %llu, name '%s'%s\n", o.output.c_str(), o.scheme.scheme.c_str(),
               o.dtype.c_str(), shape_text(global).c_str(), layout_name.empty() ? "" : (" " + layout_name).c_str(),
               o.region.empty() ? "" : (", region " + o.region + " " + shape_text(extent)).c_str(),

@@ -95,6 +95,7 @@ int main(int argc, char** argv) {
   integer_option draw_fan_out{"--fan-out", 1, max_exact_count, {}, nullptr};
   integer_option draw_seed{"--seed", 0, ~std::uint64_t{0}, {}, nullptr};
   integer_option draw_threads{"--threads", 1, max_threads, {}, nullptr};
+  integer_option draw_blocks{"--blocks", 1, std::uint64_t{1} << 32, {}, nullptr};
   CLI::App* draw_cmd = app.add_subcommand("draw", "Write the values a scheme gives a parameter to a .npy file");
   draw_cmd->add_option("--scheme", draw.scheme.scheme,
                        "zeros, constant, uniform, normal, truncated-normal, glorot-uniform, glorot-normal, "
@@ -106,6 +107,9 @@ int main(int argc, char** argv) {
                        "owi/ohwi/odhwi; transposed: iow/iohw/iodhw, woi/hwoi/dhwoi");
   add(draw_cmd, draw_fan_in, "Override the fan-in the layout gives");
   add(draw_cmd, draw_fan_out, "Override the fan-out the layout gives");
+  add(draw_cmd, draw_blocks,
+      "A packed gate weight (GRU 3, LSTM 4): this many dense blocks stacked along the output axis of a rank-2 "
+      "--shape, each drawn with its own fans and sub-stream, as a model plan's \"packed\" layer");
   draw_flags.attach(draw_cmd);
   add(draw_cmd, draw_seed, "Seed, 0 to 2^64 - 1 (default 0)");
   draw_cmd->add_option("--name", draw.name, "Parameter name, part of the stream (default 'weight')");
@@ -119,6 +123,7 @@ int main(int argc, char** argv) {
   scheme_flags check_flags;
   integer_option check_fan_in{"--fan-in", 1, max_exact_count, {}, nullptr};
   integer_option check_fan_out{"--fan-out", 1, max_exact_count, {}, nullptr};
+  integer_option check_blocks{"--blocks", 1, std::uint64_t{1} << 32, {}, nullptr};
   CLI::App* check_cmd = app.add_subcommand("check", "Audit a .npy weight file");
   check_cmd->add_option("FILE", check.file, "The .npy file")->required();
   check_cmd->add_option("--expect", check.expect.scheme, "Check conformance with this scheme (as draw --scheme)");
@@ -128,6 +133,8 @@ int main(int argc, char** argv) {
   check_cmd->add_option("--region", check.region, "With --full-shape: where the block sits, as given to draw --region");
   add(check_cmd, check_fan_in, "Override the fan-in the layout gives");
   add(check_cmd, check_fan_out, "Override the fan-out the layout gives");
+  add(check_cmd, check_blocks,
+      "FILE is a packed gate weight of this many blocks (as draw --blocks): --expect checks each block with its own fans");
   check_flags.attach(check_cmd);
   check_cmd->add_flag("--identify", check.identify, "Rank the schemes the values fit, best first");
   check_cmd->add_option("--alpha", check.alpha,
@@ -152,7 +159,9 @@ int main(int argc, char** argv) {
   assemble_options assemble;
   integer_option assemble_seed{"--seed", 0, ~std::uint64_t{0}, {}, nullptr};
   CLI::App* assemble_cmd = app.add_subcommand("assemble", "Write a whole model plan into one .safetensors file and a manifest");
-  assemble_cmd->add_option("PLAN", assemble.plan, "Model plan .json (see kindling/io/manifest.hpp)")->required();
+  assemble_cmd->add_option("PLAN", assemble.plan,
+                           "Model plan .json (see kindling/io/manifest.hpp), or a manifest assemble wrote "
+                           "(regenerates its checkpoint)")->required();
   add(assemble_cmd, assemble_seed, "Seed, 0 to 2^64 - 1 (default: the plan's \"seed\", else 0)");
   assemble_cmd->add_option("-o,--output", assemble.output, "Output .safetensors file")->required();
   assemble_cmd->add_option("--manifest", assemble.manifest, "Output manifest .json (default: OUTPUT.manifest.json)");
@@ -208,6 +217,7 @@ int main(int argc, char** argv) {
       draw_flags.into(draw.scheme);
       draw.fan_in = draw_fan_in.get();
       draw.fan_out = draw_fan_out.get();
+      draw.blocks = draw_blocks.get();
       draw.seed = draw_seed.get().value_or(draw.seed);
       draw.threads = static_cast<std::size_t>(draw_threads.get().value_or(draw.threads));
       if (draw_region->count() && draw.region.empty()) {
@@ -220,6 +230,7 @@ int main(int argc, char** argv) {
       check_flags.into(check.expect);
       check.fan_in = check_fan_in.get();
       check.fan_out = check_fan_out.get();
+      check.blocks = check_blocks.get();
       if (!(check.alpha > 0 && check.alpha < 1)) {
         throw std::invalid_argument("--alpha " + number_text(check.alpha, 6) +
                                     ": expected a false-alarm rate in (0, 1), e.g. 0.001");

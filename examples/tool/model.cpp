@@ -1,7 +1,8 @@
 // examples/tool/model.cpp: whole models.
 //   kindling assemble PLAN -o model.safetensors|model.npz   every parameter of a model plan
 //       (kindling/io/manifest.hpp) into one file, streamed, plus a manifest of what each
-//       parameter received; .npz members are stored, or deflated with --compress.
+//       parameter received; .npz members are stored, or deflated with --compress. PLAN
+//       may also be a manifest: the checkpoint it describes is written again.
 //   kindling verify FILE --manifest M   recomputes the digest of each tensor in FILE and
 //       compares it with the manifest's, exit 1 naming every tensor that differs (or is
 //       missing, or extra).
@@ -49,6 +50,18 @@ std::string parameter_label(const model_plan& plan, std::size_t i) {
          plan.parameters[i].name + ")";
 }
 
+// PLAN is a model plan, or a manifest that assemble wrote (its "format" says which): a
+// manifest regenerates the checkpoint it describes, bit for bit, from its records alone.
+model_plan read_assemble_input(const std::string& path, std::uint64_t* seed) {
+  const std::string source = "PLAN '" + path + "'";
+  const json doc = parse_json_once(read_file_bounded(path, plan_max_bytes, "PLAN", "64 MiB"), source);
+  if (doc.is_object() && doc.value("format", json()) == "kindling-manifest") return plan_from_manifest(doc, source, seed);
+  if (doc.is_object() && doc.contains("format") && doc["format"] != "kindling-model-plan") {
+    detail::plan_fail(source, "format", doc["format"], "\"kindling-model-plan\" or \"kindling-manifest\"");
+  }
+  return plan_from_json(doc, source, seed);
+}
+
 }  // namespace
 
 int run_assemble(const assemble_options& o) {
@@ -62,7 +75,7 @@ int run_assemble(const assemble_options& o) {
   }
   const std::string manifest_path = o.manifest.empty() ? o.output + ".manifest.json" : o.manifest;
   std::uint64_t seed = 0;
-  const model_plan plan = read_plan(o.plan, &seed, "PLAN");
+  const model_plan plan = read_assemble_input(o.plan, &seed);
   if (o.seed) seed = *o.seed;
   check_plan(plan);
   check_output("-o", o.output, {{"PLAN", o.plan}});

@@ -35,6 +35,7 @@ struct draw_options {
   std::string shape;                   // "512x256"
   std::string layout;                  // "" = the default of the shape's rank
   std::optional<std::uint64_t> fan_in, fan_out;
+  std::optional<std::uint64_t> blocks; // --blocks: a packed gate weight of that many blocks
   std::uint64_t seed = 0;
   std::string name = "weight";
   std::string dtype = "f32";
@@ -50,6 +51,7 @@ struct check_options {
   std::optional<std::uint64_t> fan_in, fan_out;
   std::string full_shape;              // a --region file: the whole tensor's shape (gives the fans)
   std::string region;                  // and where the block sits (needed by --expect identity)
+  std::optional<std::uint64_t> blocks; // --blocks: FILE is a packed gate weight of that many blocks
   bool identify = false;
   bool json = false;
   double alpha = 1e-3;                 // family-wise false-alarm rate of each report
@@ -133,6 +135,15 @@ std::string default_layout(std::size_t rank);
 fans resolve_fans(const std::vector<std::uint64_t>& shape, const std::string& layout,
                   const std::optional<std::uint64_t>& fan_in, const std::optional<std::uint64_t>& fan_out,
                   weight_layout* layout_out, std::string* layout_name_out);
+
+/// The packed gate layer --blocks describes for a weight of `shape` in `layout` (nothing
+/// without --blocks): a rank-2 shape whose output axis the blocks divide, and no
+/// --fan-in/--fan-out (each block takes its fans from its own shape). `shape_source`
+/// names where the shape came from in messages ("--shape 144x32").
+std::optional<packed_dense> packed_layer(const std::optional<std::uint64_t>& blocks,
+                                         const std::vector<std::uint64_t>& shape, const std::string& shape_source,
+                                         weight_layout layout, const std::optional<std::uint64_t>& fan_in,
+                                         const std::optional<std::uint64_t>& fan_out);
 
 /// "0:128,0:256" -> offsets and extents, checked against the shape.
 void parse_region(const std::string& text, const std::vector<std::uint64_t>& shape,

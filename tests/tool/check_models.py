@@ -1,6 +1,11 @@
 """Whole models through the `kindling` tool, checked from outside with NumPy.
 
-Usage: check_models.py KINDLING SOURCE_DIR WORK_DIR
+Usage: check_models.py KINDLING SOURCE_DIR WORK_DIR [pump]
+
+With "pump", examples/models/pump.json instead goes through check_plan_round_trip: built
+into safetensors and npz with a manifest, read by NumPy, each tensor equal to `kindling
+draw` of it (packed gates with --blocks), audited against plan and manifest, regenerated
+from the manifest bit for bit, and a flipped byte in each tensor caught by name.
 
 - `kindling assemble` writes examples/models/conveyor_belt.json to a safetensors file;
   we read it with struct, json and np.frombuffer only (the safetensors layout as we
@@ -93,6 +98,123 @@ def write_safetensors(path, tensors):
         f.write(struct.pack("<Q", len(text)) + text + b"".join(chunks))
 
 
+def npz_values(path):
+    """np.load's arrays as (dtype name, array), bf16 members as their bit patterns."""
+    out = {}
+    with np.load(path) as z:
+        for k in z.files:
+            a = z[k]
+            if a.dtype.names == ("bf16",):
+                out[k] = ("BF16", a["bf16"])
+            else:
+                out[k] = ({"float16": "F16", "float32": "F32", "float64": "F64"}[a.dtype.name], a)
+    return out
+
+
+
+def finish():
+    if failures:
+        print("\n".join(failures))
+        sys.exit(1)
+    print("ok")
+    sys.exit(0)
+
+
+def draw_args(record):
+    """`kindling draw` options that give the parameter a manifest record describes,
+    packed gate blocks included (--blocks)."""
+    layer = record["layer"]
+    args = ["--scheme", record["scheme_arguments"]["name"], "--shape", "x".join(map(str, record["shape"])),
+            "--dtype", record["dtype"]]
+    flags = {"gain": "--gain", "std": "--std", "value": "--value", "nonzero": "--nonzero"}
+    for key, value in record["scheme_arguments"].items():
+        if key == "slope" and value == 0.0:
+            continue  # He's leaky-ReLU slope: draw has no option for it and uses 0
+        if key != "name":
+            args += [flags[key], repr(value) if key != "nonzero" else str(int(value))]
+    kind = layer["kind"]
+    if layer.get("layout") == "in_out":
+        args += ["--layout", "io"]
+    if kind == "packed":
+        args += ["--blocks", str(layer["blocks"])]
+    elif kind in ("convolution", "transposed_convolution") and layer.get("groups", 1) != 1:
+        args += ["--fan-in", str(record["fans"]["in"]), "--fan-out", str(record["fans"]["out"])]
+    return args
+
+
+def check_plan_round_trip(plan_path, stem):
+    """A plan through the tool and back: assembled into safetensors and npz with a manifest,
+    both read by NumPy with the same values, every tensor equal to `kindling draw` of that
+    parameter (the per-tensor C++ path), audited against the plan and the manifest,
+    regenerated from the manifest alone bit for bit, and a flipped byte caught by name."""
+    plan = json.load(open(plan_path))
+    names = [p["name"] for p in plan["parameters"]]
+    n = len(names)
+    st, npz, manifest_path = f"{stem}.safetensors", f"{stem}.npz", f"{stem}.manifest.json"
+    code, _, err = run("assemble", plan_path, "-o", st, "--manifest", manifest_path)
+    expect(code == 0, f"assemble {stem}: exit {code}, {err!r}")
+    code, _, err = run("assemble", plan_path, "-o", npz, "--manifest", f"{stem}.npz.manifest.json", "--compress")
+    expect(code == 0, f"assemble {stem}.npz: exit {code}, {err!r}")
+    manifest = json.load(open(manifest_path))
+    t, z = read_safetensors(st), npz_values(npz)
+    expect(sorted(t) == sorted(names) and sorted(z) == sorted(names), f"{stem}: tensor names {list(t)}, {sorted(z)}")
+    for r in manifest["parameters"]:
+        name = r["name"]
+        dtype, a = t[name]
+        expect(z[name][0] == dtype and z[name][1].tobytes() == a.tobytes() and list(a.shape) == r["shape"],
+               f"{stem}: np.load of the npz and np.frombuffer of the safetensors differ for {name}")
+        code, _, err = run("draw", *draw_args(r), "--seed", str(manifest["seed"]), "--name", name, "-o", "one.npy")
+        d = np.load("one.npy") if code == 0 else None
+        if d is not None and d.dtype.names == ("bf16",):
+            d = d["bf16"]
+        expect(code == 0 and d.shape == a.shape and d.tobytes() == a.tobytes(),
+               f"{stem}: {name} differs from kindling draw {' '.join(draw_args(r))} ({code} {err!r})")
+        # Per-gate fans: each block of a packed fan-scaled uniform weight stays inside the
+        # bound the manifest records for its block, and comes close to it.
+        if r["layer"]["kind"] == "packed" and r["distribution"]["kind"] == "uniform":
+            blocks, bound = r["layer"]["blocks"], r["distribution"]["bound"]
+            for b, block in enumerate(np.split(as_float(dtype, a), blocks, axis=0)):
+                expect(np.abs(block).max() < bound and np.abs(block).max() > 0.9 * bound,
+                       f"{stem}: {name} block {b} max {np.abs(block).max()} vs its bound {bound}")
+    for flag, path in (("--plan", plan_path), ("--manifest", manifest_path)):
+        for f in (st, npz):
+            code, out, err = run("audit", f, flag, path)
+            expect(code == 0 and f"all {n} tensors passed" in out, f"audit {f} {flag}: {code} {out!r} {err!r}")
+    code, out, err = run("verify", npz, "--manifest", manifest_path)
+    expect(code == 0 and f"all {n} tensors match" in out, f"verify {npz}: {code} {out!r} {err!r}")
+    # Regenerated from the manifest alone: the same file, byte for byte, and the same manifest.
+    code, _, err = run("assemble", manifest_path, "-o", f"{stem}_again.safetensors", "--manifest", f"{stem}_again.json")
+    expect(code == 0 and open(f"{stem}_again.safetensors", "rb").read() == open(st, "rb").read(),
+           f"{stem}: the checkpoint regenerated from its manifest differs ({code} {err!r})")
+    expect(code == 0 and json.load(open(f"{stem}_again.json")) == manifest, f"{stem}: the regenerated manifest differs")
+    for key, value, words in (("format_version", 99, "'format_version' = 99"),
+                              ("format", "kindling-notes", "expected \"kindling-model-plan\" or \"kindling-manifest\"")):
+        bad = dict(manifest, **{key: value})
+        json.dump(bad, open("bad_manifest.json", "w"))
+        code, _, err = run("assemble", "bad_manifest.json", "-o", "bad.safetensors")
+        expect(code == 2 and words in err and not os.path.exists("bad.safetensors"),
+               f"{stem}: assemble of a manifest with {key} {value!r}: {code} {err!r}")
+    # One flipped byte in each tensor in turn fails the exact verification, naming it alone.
+    for name in names:
+        flipped = dict(t)
+        dtype, a = t[name]
+        a = a.copy()
+        a.view(np.uint8).reshape(-1)[a.nbytes // 2] ^= 0x01
+        flipped[name] = (dtype, a)
+        write_safetensors("flipped.safetensors", flipped)
+        code, out, err = run("verify", "flipped.safetensors", "--manifest", manifest_path)
+        failed = [line.split()[1] for line in out.splitlines() if line.startswith("FAILED   ")]
+        expect(code == 1 and failed == [name] and f"1 of {n} tensors differ from the manifest: {name}" in out,
+               f"{stem}: a flipped byte in {name}: exit {code}, {out!r} {err!r}")
+
+
+if len(sys.argv) > 4:
+    if sys.argv[4] != "pump":
+        sys.exit(f"check_models.py: argument 4 = {sys.argv[4]!r}, expected 'pump' or nothing (the belt)")
+    check_plan_round_trip(os.path.join(SOURCE, "examples", "models", "pump.json"), "pump")
+    finish()
+
+
 code, out, err = run("assemble", PLAN, "-o", "belt.safetensors", "--manifest", "belt.json")
 expect(code == 0, f"assemble: exit {code}, {err!r}")
 plan = json.load(open(PLAN))
@@ -183,19 +305,6 @@ expect(code == 2 and "parameter 'tail.scale': no rule matches it" in err, f"an u
 
 
 # ---- .npz ------------------------------------------------------------------------------
-def npz_values(path):
-    """np.load's arrays as (dtype name, array), bf16 members as their bit patterns."""
-    out = {}
-    with np.load(path) as z:
-        for k in z.files:
-            a = z[k]
-            if a.dtype.names == ("bf16",):
-                out[k] = ("BF16", a["bf16"])
-            else:
-                out[k] = ({"float16": "F16", "float32": "F32", "float64": "F64"}[a.dtype.name], a)
-    return out
-
-
 for flag, method in (([], zipfile.ZIP_STORED), (["--compress"], zipfile.ZIP_DEFLATED)):
     code, out, err = run("assemble", PLAN, "-o", "belt.npz", "--manifest", "belt_npz.json", *flag)
     expect(code == 0, f"assemble -o belt.npz {flag}: exit {code}, {err!r}")
@@ -347,7 +456,4 @@ expect(code == 0 and "audit: " in seen and "tensors audited" in seen, f"audit pr
 code, out, err = run("assemble", PLAN, "-o", "pipe.safetensors")
 expect(code == 0 and err == "", f"no progress line when stderr is not a terminal: {err!r}")
 
-if failures:
-    print("\n".join(failures))
-    sys.exit(1)
-print("ok")
+finish()

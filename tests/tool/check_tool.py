@@ -168,6 +168,133 @@ elif CASE == "region":
     expect_code(0, "draw", "--scheme", "he-normal", "--shape", "700x500", "--threads", "2", "-o", "t2.npy")
     expect(np.load("t1.npy").tobytes() == np.load("t2.npy").tobytes(), "values changed with --threads")
 
+elif CASE == "packed":
+    # draw --blocks: a packed gate weight (GRU 3, LSTM 4) drawn block by block, each block
+    # with its own fans and sub-stream. The library's own packed layer is what `kindling
+    # assemble` writes for a plan's "packed" parameter (initialize_model ->
+    # initialize(view, packed_dense, ...)): the draw must equal it byte for byte.
+    def packed_plan(name, scheme, dtype, blocks, n_in, block_out, layout):
+        layer = {"kind": "packed", "blocks": blocks, "in": n_in, "block_out": block_out}
+        if layout == "io":
+            layer["layout"] = "in_out"
+        return {"format": "kindling-model-plan", "seed": 9,
+                "parameters": [{"name": name, "scheme": scheme, "dtype": dtype, "layer": layer}]}
+
+    for name, scheme, flags, dtype, blocks, n_in, block_out, layout in (
+            ("gru.w_ih", "glorot-uniform", [], "f32", 3, 32, 48, "oi"),
+            ("gru.w_hh", "orthogonal", [], "f64", 3, 48, 48, "oi"),
+            ("lstm.w_ih", "he-normal", [], "bf16", 4, 20, 16, "io"),
+            ("lstm.w_hh", "glorot-normal", ["--gain", "1.5"], "f16", 4, 16, 16, "oi"),
+            ("attn.qkv", "truncated-normal", ["--std", "0.02"], "f32", 3, 24, 24, "io")):
+        rows = blocks * block_out
+        shape = f"{rows}x{n_in}" if layout == "oi" else f"{n_in}x{rows}"
+        draw = ["draw", "--scheme", scheme, *flags, "--shape", shape, "--layout", layout, "--blocks", str(blocks),
+                "--dtype", dtype, "--seed", "9", "--name", name]
+        out, _ = expect_code(0, *draw, "-o", "packed.npy")
+        expect(f"{blocks} gate blocks of" in out and f"fan-in {n_in}, fan-out {block_out} each" in out,
+               f"draw --blocks {blocks}: the summary does not give each block's fans: {out!r}")
+        text = scheme + ("(gain=1.5)" if "--gain" in flags else "(std=0.02)" if "--std" in flags else "")
+        json.dump(packed_plan(name, text, dtype, blocks, n_in, block_out, layout), open("packed_plan.json", "w"))
+        expect_code(0, "assemble", "packed_plan.json", "-o", "packed.npz")
+        drawn = np.load("packed.npy")
+        with np.load("packed.npz") as z:
+            library = z[name]
+        expect(drawn.shape == library.shape and drawn.dtype == library.dtype and drawn.tobytes() == library.tobytes(),
+               f"{name}: draw --blocks {blocks} differs from the library's packed layer (assemble)")
+        # Without --blocks the whole tensor is one weight: other values.
+        expect_code(0, *[a for a in draw if a not in ("--blocks", str(blocks))], "-o", "unpacked.npy")
+        expect(np.load("unpacked.npy").tobytes() != drawn.tobytes(), f"{name}: --blocks changed nothing")
+        # A region across a block boundary, on 2 threads, is that block of the whole.
+        half = block_out // 2
+        region = f"{half}:{block_out + half},0:{n_in}" if layout == "oi" else f"0:{n_in},{half}:{block_out + half}"
+        expect_code(0, *draw, "--region", region, "--threads", "2", "-o", "part.npy")
+        cut = tuple(slice(int(a), int(b)) for a, b in (r.split(":") for r in region.split(",")))
+        expect(np.load("part.npy").tobytes() == drawn[cut].tobytes(), f"{name}: --region {region} with --blocks")
+
+    # Per-gate fans: each block of a packed Glorot-uniform weight is Glorot uniform for
+    # fans (in, block_out) = (32, 48), bound sqrt(6 / 80) (Glorot & Bengio 2010, eq. 16),
+    # and `kindling check` of the block alone (its own shape gives those fans) passes;
+    # the whole [144, 32] tensor read as one weight (fans 32, 144: bound sqrt(6 / 176))
+    # fails. The unpacked draw, drawn with the whole tensor's fans, fails the per-gate
+    # check in every block: the bug --blocks is about.
+    expect_code(0, "draw", "--scheme", "glorot-uniform", "--shape", "144x32", "--blocks", "3", "--seed", "9",
+                "--name", "gru.w_ih", "-o", "gates.npy")
+    expect_code(0, "draw", "--scheme", "glorot-uniform", "--shape", "144x32", "--seed", "9", "--name", "gru.w_ih",
+                "-o", "whole_fans.npy")
+    gates, whole_fans = np.load("gates.npy"), np.load("whole_fans.npy")
+    bound = np.sqrt(6 / (32 + 48))
+    for b in range(3):
+        block = gates[48 * b:48 * (b + 1)]
+        expect(np.abs(block).max() < bound and np.abs(block).max() > 0.95 * bound,
+               f"gate block {b}: max |w| {np.abs(block).max()}, expected just under {bound}")
+        np.save(f"gate{b}.npy", block)
+        out, _ = expect_code(0, "check", f"gate{b}.npy", "--expect", "glorot-uniform")
+        expect("fan-in 32, fan-out 48" in out, f"check of gate block {b}: {out!r}")
+        np.save(f"wrong{b}.npy", whole_fans[48 * b:48 * (b + 1)])
+        expect_code(1, "check", f"wrong{b}.npy", "--expect", "glorot-uniform")
+    expect_code(1, "check", "gates.npy", "--expect", "glorot-uniform")
+    expect(not np.array_equal(gates[:48], gates[48:96]), "gate blocks 0 and 1 are equal")
+    # check --blocks does the same on the whole file: check_scheme of each gate block with
+    # its own fans (the family-wise alpha split over the blocks).
+    out, _ = expect_code(0, "check", "gates.npy", "--blocks", "3", "--expect", "glorot-uniform")
+    expect("3 gate blocks of [48, 32], fan-in 32, fan-out 48 each" in out and "block 2: " in out,
+           f"check --blocks 3: {out!r}")
+    out, _ = expect_code(1, "check", "whole_fans.npy", "--blocks", "3", "--expect", "glorot-uniform")
+    expect("block 0: " in out and "variance FAILED" in out, f"check --blocks 3 of the unpacked draw: {out!r}")
+    out, _ = expect_code(0, "check", "gates.npy", "--blocks", "3", "--expect", "glorot-uniform", "--json")
+    expect(json.loads(out)["blocks"] == 3 and json.loads(out)["fans"]["fan_out"] == 48, f"check --blocks --json: {out!r}")
+    expect_code(0, "draw", "--scheme", "orthogonal", "--shape", "144x48", "--blocks", "3", "-o", "w_hh.npy")
+    expect_code(0, "check", "w_hh.npy", "--blocks", "3", "--expect", "orthogonal")
+    expect_code(1, "check", "w_hh.npy", "--expect", "orthogonal")  # the stack is not one orthogonal matrix
+    for args, words in ((["--blocks", "5"], ["--blocks 5 does not divide the output axis of FILE 'gates.npy'"]),
+                        (["--blocks", "3", "--identify"], ["--identify with --blocks 3", "expected no --identify"]),
+                        (["--blocks", "3", "--expect", "identity"], ["--expect identity with --blocks 3"]),
+                        (["--blocks", "3", "--expect", "he-normal", "--fan-in", "32"], ["--fan-in does not apply"]),
+                        (["--blocks", "3", "--full-shape", "288x32"], ["checks a whole packed weight"])):
+        _, err = expect_code(2, "check", "gates.npy", *args)
+        expect(all(w in err for w in words), f"check {' '.join(args)}: expected {words} in {err!r}")
+
+    # Bad values: exit 2 naming --blocks, its value and what was expected; nothing written.
+    for args, words in (
+            (["--blocks", "0"], ["--blocks '0'", "expected a whole number from 1"]),
+            (["--blocks", "three"], ["--blocks 'three'", "expected a whole number"]),
+            (["--blocks", "-3"], ["--blocks '-3'"]),
+            (["--blocks", "5"], ["--blocks 5 does not divide the output axis", "144 outputs", "expected a divisor of 144"]),
+            (["--blocks", "3", "--layout", "io"], ["--blocks 3 does not divide", "32 outputs", "layout io"]),
+            (["--blocks", "3", "--fan-in", "32"], ["--fan-in does not apply with --blocks 3", "expected no --fan-in"]),
+            (["--blocks", "3", "--fan-out", "48"], ["--fan-out does not apply with --blocks 3"])):
+        if os.path.exists("bad.npy"):
+            os.remove("bad.npy")
+        _, err = expect_code(2, "draw", "--scheme", "glorot-uniform", "--shape", "144x32", *args, "-o", "bad.npy")
+        expect(all(w in err for w in words), f"draw {' '.join(args)}: expected {words} in {err!r}")
+        expect(not os.path.exists("bad.npy"), f"draw {' '.join(args)} wrote a file")
+    _, err = expect_code(2, "draw", "--scheme", "he-normal", "--shape", "48x16x3", "--blocks", "3", "-o", "bad.npy")
+    expect("--blocks 3" in err and "--shape 48x16x3 has rank 3" in err and "expected a rank-2 shape" in err, f"rank 3: {err!r}")
+    # The scheme is checked against each block: 40 nonzero weights a unit do not fit a
+    # block's 32 inputs (the whole tensor's fans would not say so either: 32 inputs too).
+    _, err = expect_code(2, "draw", "--scheme", "sparse", "--nonzero", "40", "--shape", "96x32", "--blocks", "2",
+                         "-o", "bad.npy")
+    expect("--blocks 2" in err and "gate blocks of [48, 32]" in err and "'nonzero' = 40" in err,
+           f"sparse --nonzero 40 on blocks of 32 inputs: {err!r}")
+
+elif CASE == "rate-packed":
+    # check --blocks on correct packed draws, 200 seeds at --alpha 0.05: each report is a
+    # family of checks at alpha / 3 per block (Bonferroni), so at most 5% of correct
+    # weights may fail; we allow 18 of 200 (P(X >= 18) < 0.002 for Binomial(200, 0.05)).
+    # Power on the bug --blocks is about: the same weights drawn with the whole tensor's
+    # fans (fan-out 144 instead of 48; sd 0.66x) fail in every seed.
+    false_alarms, caught = 0, 0
+    for seed in range(200):
+        for blocks_flag, name in ((["--blocks", "3"], "ok.npy"), ([], "whole.npy")):
+            expect_code(0, "draw", "--scheme", "glorot-uniform", "--shape", "144x32", *blocks_flag, "--seed", str(seed),
+                        "--name", "gru.w_ih", "-o", name)
+        false_alarms += run("check", "ok.npy", "--blocks", "3", "--expect", "glorot-uniform", "--alpha", "0.05")[0] == 1
+        caught += run("check", "whole.npy", "--blocks", "3", "--expect", "glorot-uniform", "--alpha", "0.05")[0] == 1
+    print(f"check --blocks 3 at alpha 0.05: {false_alarms} false alarms in 200 correct draws, "
+          f"{caught} of 200 whole-tensor-fan draws caught")
+    expect(false_alarms <= 18, f"{false_alarms} of 200 correct packed draws failed check --blocks at alpha 0.05")
+    expect(caught == 200, f"only {caught} of 200 draws with the whole tensor's fans failed check --blocks")
+
 elif CASE == "numpy":
     # NumPy reads every element type we write, and the values are what they should be.
     expect_code(0, "draw", "--scheme", "he-normal", "--shape", "512x256", "--seed", "3", "-o", "a32.npy")

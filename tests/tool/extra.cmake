@@ -16,6 +16,8 @@ if(KINDLING_BUILD_EXAMPLES)
           "exit-codes;exit codes 0, 1 and 2 with one-line errors for every command"
           "untouched;an existing output file is never replaced by a failed run"
           "region;--region writes exactly that block of the whole tensor, whatever the threads, and check --full-shape takes its fans"
+          "packed;draw --blocks equals the library's packed layer byte for byte, check --blocks checks each gate block with its own fans"
+          "rate-packed;rate: check --blocks false-alarm rate over 200 seeds within alpha, and every draw with the whole tensor's fans caught"
           "numpy;numpy.load reads every element type and the values match, and numpy's files read back"
           "json;check --identify --json ranks candidates best first, plan --json and --svg"
           "outputs;outputs go through an exclusive temporary file and a rename, links written through, odd files refused"
@@ -40,4 +42,13 @@ if(KINDLING_BUILD_EXAMPLES)
   add_test(NAME "tool: assemble, verify and audit a whole model (safetensors and npz), checked with numpy"
            COMMAND /usr/bin/python3 ${CMAKE_CURRENT_SOURCE_DIR}/tool/check_models.py
                    $<TARGET_FILE:kindling_tool> ${PROJECT_SOURCE_DIR} ${CMAKE_CURRENT_BINARY_DIR}/tool_models)
+endif()
+# The pump model (examples/models/pump.json: convolutions, a GRU with packed gates, a dense
+# head) through the same script: assembled into safetensors and npz with a manifest, read
+# by NumPy, each tensor equal to `kindling draw` of it, audited, regenerated from the
+# manifest bit for bit, and a flipped byte in any tensor caught by name.
+if(KINDLING_BUILD_EXAMPLES)
+  add_test(NAME "tool: the pump model assembled, read by numpy, audited, regenerated from its manifest, a flipped byte named"
+           COMMAND /usr/bin/python3 ${CMAKE_CURRENT_SOURCE_DIR}/tool/check_models.py
+                   $<TARGET_FILE:kindling_tool> ${PROJECT_SOURCE_DIR} ${CMAKE_CURRENT_BINARY_DIR}/tool_pump pump)
 endif()
