@@ -291,3 +291,16 @@ TEST_CASE("each statistical finding carries the interval it accepted") {
   CHECK(sd->upper > 2);
   CHECK(std::isnan(r.find("bounds")->p_value));
 }
+
+TEST_CASE("an interval of a level below 100% is never printed as 100%") {
+  std::vector<float> w;
+  audit_options o;
+  o.alpha = 1e-4;  // each of the three checks at alpha / 3: a 99.997% interval
+  // A mean 1.5 away from the declared one, so the finding states its interval.
+  const audit_report r =
+      check_distribution(drawn<float>(w, 64, 64, dist::normal{2, 2}, 8), dist::normal{0.5, 2}, o);
+  CHECK_MESSAGE(!r, r.explain());
+  const std::string mean = r.find("mean")->sentence;
+  CHECK_MESSAGE(mentions(mean, "99.997% interval"), mean);
+  CHECK_MESSAGE(!mentions(mean, "(100%"), mean);
+}

@@ -68,8 +68,13 @@ inline void check_alpha(double alpha, const char* audit) {
 inline double two_sided_p(double z) { return 2 * normal_cdf(-std::fabs(z)); }
 inline double two_sided_quantile(double alpha) { return -normal_quantile(alpha / 2); }
 
+// The interval's level, 4 significant digits, or more where 4 would round a level
+// below 100% up to "100%" (alpha = 1e-4 split over three checks is 99.9967%).
 inline std::string percent_text(double alpha) {
-  return short_number(100 * (1 - alpha), 4) + "%";
+  const double level = 100 * (1 - alpha);
+  std::string text = short_number(level, 4);
+  for (int digits = 5; text == "100" && level < 100 && digits <= 17; ++digits) text = short_number(level, digits);
+  return text + "%";
 }
 
 // Human form of a scheme name: "he-normal" -> "He normal".
