@@ -21,6 +21,11 @@ if(TARGET kindling_npz)
   install(TARGETS kindling_npz EXPORT kindlingNpzTargets)
   install(EXPORT kindlingNpzTargets NAMESPACE kindling:: DESTINATION ${KINDLING_CMAKE_DIR})
 endif()
+# The compiled mode's library, when it was built (it is part of `all`; an install of a
+# tree where nothing was built installs the headers alone, like the tool below).
+install(TARGETS kindling_compiled EXPORT kindlingCompiledTargets
+        ARCHIVE DESTINATION ${CMAKE_INSTALL_LIBDIR} OPTIONAL)
+install(EXPORT kindlingCompiledTargets NAMESPACE kindling:: DESTINATION ${KINDLING_CMAKE_DIR})
 if(TARGET kindling_xtensor)
   install(TARGETS kindling_xtensor EXPORT kindlingXtensorTargets)
   install(EXPORT kindlingXtensorTargets NAMESPACE kindling:: DESTINATION ${KINDLING_CMAKE_DIR})

@@ -43,6 +43,7 @@
 #include <utility>
 #include <vector>
 
+#include "kindling/detail/compiled_mode.hpp"
 #include "kindling/element.hpp"
 #include "kindling/executor.hpp"
 #include "kindling/random/sample.hpp"
@@ -266,6 +267,80 @@ void fill_chunk(const strided_view<E>& v, const element_rounder<E>& rounder, boo
   if (streamed) store_fence();
 }
 
+// The chunk fills of fill(): each element type with each kernel of its compute type.
+// In compiled mode (detail/compiled_mode.hpp) they are instantiated once, in the
+// compiled library, and users' files only declare them; PREFIX is `extern template`
+// there and `template` in the library.
+#define KINDLING_FILL_INSTANCE(PREFIX, E, K)                                                          \
+  PREFIX void fill_chunk<E, distribution_runs<const K<compute_type_t<E>>, compute_type_t<E>>>(        \
+      const strided_view<E>&, const element_rounder<E>&, bool,                                        \
+      const distribution_runs<const K<compute_type_t<E>>, compute_type_t<E>>&, std::uint64_t, std::uint64_t);
+#define KINDLING_FILL_INSTANCES_OF(PREFIX, E)                                                         \
+  KINDLING_FILL_INSTANCE(PREFIX, E, uniform_kernel)                                                   \
+  KINDLING_FILL_INSTANCE(PREFIX, E, symmetric_uniform_kernel)                                         \
+  KINDLING_FILL_INSTANCE(PREFIX, E, normal_kernel)                                                    \
+  KINDLING_FILL_INSTANCE(PREFIX, E, truncated_normal_kernel)
+#define KINDLING_FILL_INSTANCES(PREFIX)                                                               \
+  KINDLING_FILL_INSTANCES_OF(PREFIX, float)                                                           \
+  KINDLING_FILL_INSTANCES_OF(PREFIX, double)                                                          \
+  KINDLING_FILL_INSTANCES_OF(PREFIX, float16)                                                         \
+  KINDLING_FILL_INSTANCES_OF(PREFIX, bfloat16)
+#if defined(KINDLING_COMPILED)
+KINDLING_FILL_INSTANCES(extern template)
+#endif
+
+// Runs chunk(k) for k in [0, n_tasks) through an executor (execute(n_tasks, task) calls
+// it), and turns every way the executor can break its promise into fill_incomplete (see
+// the top of this header). Not a template, so that it is compiled once in compiled mode
+// (detail/compiled_mode.hpp) rather than for every element type, generator and executor.
+KINDLING_COMPILED_INLINE void run_fill_tasks(
+    std::size_t n_tasks, const std::function<void(std::size_t)>& chunk,
+    const std::function<void(std::size_t, const std::function<void(std::size_t)>&)>& execute);
+
+#if defined(KINDLING_COMPILED_DEFINITIONS)
+KINDLING_COMPILED_INLINE void run_fill_tasks(
+    std::size_t n_tasks, const std::function<void(std::size_t)>& chunk,
+    const std::function<void(std::size_t, const std::function<void(std::size_t)>&)>& execute) {
+  std::vector<std::atomic<bool>> completed(n_tasks);  // value-initialized: all false
+  const std::function<void(std::size_t)> task = [&](std::size_t k) {
+    if (k >= n_tasks) {
+      throw std::out_of_range("kindling::fill: the executor called task " + std::to_string(k) +
+                              "; expected a task number from 0 to " + std::to_string(n_tasks - 1));
+    }
+    chunk(k);
+    completed[k].store(true, std::memory_order_relaxed);  // the executor's return orders it
+  };
+  const auto done_count = [&]() {
+    return static_cast<std::size_t>(std::count_if(completed.begin(), completed.end(),
+                                                  [](const std::atomic<bool>& c) { return c.load(); }));
+  };
+  const auto tally = [&](std::size_t done) {
+    return std::to_string(done) + " of " + std::to_string(n_tasks) + " tasks (chunks of " +
+           std::to_string(fill_chunk_elements) + " elements) completed; the tensor's contents are "
+           "unspecified (completed chunks written, the rest partly written or as they were)";
+  };
+  try {
+    execute(n_tasks, task);
+  } catch (const std::exception& e) {
+    const std::size_t done = done_count();
+    std::throw_with_nested(fill_incomplete(
+        std::string("kindling::fill: the executor threw (") + e.what() + ") with " + tally(done), done, n_tasks));
+  } catch (...) {
+    const std::size_t done = done_count();
+    std::throw_with_nested(
+        fill_incomplete("kindling::fill: the executor threw a non-standard exception with " + tally(done), done,
+                        n_tasks));
+  }
+  const std::size_t done = done_count();
+  if (done != n_tasks) {
+    throw fill_incomplete("kindling::fill: the executor returned with " + tally(done) +
+                              "; expected an executor that calls task(k) once for every k in [0, " +
+                              std::to_string(n_tasks) + ")",
+                          done, n_tasks);
+  }
+}
+#endif  // KINDLING_COMPILED_DEFINITIONS
+
 }  // namespace detail
 
 /// Fills of at least this many bytes store with non-temporal (cache-bypassing) writes
@@ -286,45 +361,15 @@ void fill_generated(const strided_view<E>& v, const element_bounds& bounds, cons
   const std::uint64_t total = v.size();
   const detail::element_rounder<E> rounder(bounds);
   const bool stream = total * sizeof(E) >= fill_streaming_bytes;
-  const std::size_t n_tasks = detail::fill_task_count(total);
-  std::vector<std::atomic<bool>> completed(n_tasks);  // value-initialized: all false
-  const std::function<void(std::size_t)> task = [&](std::size_t k) {
-    if (k >= n_tasks) {
-      throw std::out_of_range("kindling::fill: the executor called task " + std::to_string(k) +
-                              "; expected a task number from 0 to " + std::to_string(n_tasks - 1));
-    }
+  // The chunk of task k; run_fill_tasks checks k and keeps the tally.
+  const std::function<void(std::size_t)> chunk = [&](std::size_t k) {
     const std::uint64_t first = static_cast<std::uint64_t>(k) * fill_chunk_elements;
     detail::fill_chunk(v, rounder, stream, gen, first, std::min(fill_chunk_elements, total - first));
-    completed[k].store(true, std::memory_order_relaxed);  // the executor's return orders it
   };
-  const auto done_count = [&]() {
-    return static_cast<std::size_t>(std::count_if(completed.begin(), completed.end(),
-                                                  [](const std::atomic<bool>& c) { return c.load(); }));
-  };
-  const auto tally = [&](std::size_t done) {
-    return std::to_string(done) + " of " + std::to_string(n_tasks) + " tasks (chunks of " +
-           std::to_string(fill_chunk_elements) + " elements) completed; the tensor's contents are "
-           "unspecified (completed chunks written, the rest partly written or as they were)";
-  };
-  try {
-    std::forward<Exec>(exec)(n_tasks, task);
-  } catch (const std::exception& e) {
-    const std::size_t done = done_count();
-    std::throw_with_nested(fill_incomplete(
-        std::string("kindling::fill: the executor threw (") + e.what() + ") with " + tally(done), done, n_tasks));
-  } catch (...) {
-    const std::size_t done = done_count();
-    std::throw_with_nested(
-        fill_incomplete("kindling::fill: the executor threw a non-standard exception with " + tally(done), done,
-                        n_tasks));
-  }
-  const std::size_t done = done_count();
-  if (done != n_tasks) {
-    throw fill_incomplete("kindling::fill: the executor returned with " + tally(done) +
-                              "; expected an executor that calls task(k) once for every k in [0, " +
-                              std::to_string(n_tasks) + ")",
-                          done, n_tasks);
-  }
+  detail::run_fill_tasks(detail::fill_task_count(total), chunk,
+                         [&](std::size_t n_tasks, const std::function<void(std::size_t)>& task) {
+                           std::forward<Exec>(exec)(n_tasks, task);
+                         });
 }
 
 /// Fills a view with distribution d drawn from stream s, domain dom. The values are

@@ -5,13 +5,14 @@
 #                                           exits 1 if any line differs (or a build fails)
 #   tests/digest/compare.sh CXX [FLAGS...]  one build; prints its lines
 #
-# The six builds (DESIGN.md, "The reproducibility contract"):
+# The builds (DESIGN.md, "The reproducibility contract"):
 #   g++ -O0
 #   g++ -O3 -march=native
 #   clang++ -O2 -march=native -ffp-contract=fast
 #   aarch64-linux-gnu-g++ -O2 -static, run under qemu-aarch64
 #   riscv64-linux-gnu-g++ -O2 -static, run under qemu-riscv64
 #   s390x-linux-gnu-g++ -O2 -static, run under qemu-s390x (big-endian)
+# and the compiled mode (KINDLING_COMPILED, the kernels from src/compiled.cpp), g++ -O2.
 # A cross compiler ARCH-linux-gnu-g++ (Debian's naming) is run under qemu-ARCH.
 set -euo pipefail
 
@@ -44,11 +45,13 @@ fi
 names=("g++ -O0" "g++ -O3 -march=native" "clang++ -O2 -march=native -ffp-contract=fast"
        "aarch64-linux-gnu-g++ -O2 -static (qemu-aarch64)"
        "riscv64-linux-gnu-g++ -O2 -static (qemu-riscv64)"
-       "s390x-linux-gnu-g++ -O2 -static (qemu-s390x, big-endian)")
+       "s390x-linux-gnu-g++ -O2 -static (qemu-s390x, big-endian)"
+       "g++ -O2, compiled mode (src/compiled.cpp)")
 configs=("g++ -O0" "g++ -O3 -march=native" "clang++ -O2 -march=native -ffp-contract=fast"
          "aarch64-linux-gnu-g++ -O2 -static"
          "riscv64-linux-gnu-g++ -O2 -static"
-         "s390x-linux-gnu-g++ -O2 -static")
+         "s390x-linux-gnu-g++ -O2 -static"
+         "g++ -O2 -DKINDLING_COMPILED $root/src/compiled.cpp")
 
 status=0
 for k in "${!configs[@]}"; do

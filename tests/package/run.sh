@@ -25,9 +25,10 @@ grep -q "kindling tool not built, so not installed" "$work/top-install.log"
 cmake -S "$src" -B "$work/lib" -DCMAKE_BUILD_TYPE=Release \
   -DKINDLING_BUILD_TESTS=OFF -DKINDLING_BUILD_EXAMPLES=ON -DKINDLING_BUILD_BENCHMARKS=OFF \
   -DCMAKE_INSTALL_PREFIX="$work/prefix" >/dev/null
-cmake --build "$work/lib" -j"$jobs" --target kindling_tool >/dev/null
+cmake --build "$work/lib" -j"$jobs" --target kindling_tool kindling_compiled >/dev/null
 cmake --install "$work/lib" >/dev/null
 test -x "$work/prefix/bin/kindling"
+test -f "$work/prefix/lib/libkindling_compiled.a"
 test -f "$work/prefix/share/pkgconfig/kindling.pc"
 test -f "$work/prefix/share/cmake/kindling/kindlingConfigVersion.cmake"
 
@@ -36,6 +37,14 @@ cmake --build "$work/fp" -j"$jobs" >/dev/null
 "$work/fp/consumer"
 "$work/fp/consumer_eigen"
 (cd "$work/fp" && ./consumer_npz)
+# The compiled mode: its users get KINDLING_COMPILED, so they must link the library's
+# kernels (an undefined reference otherwise), and print what the header-only ones print.
+"$work/fp/consumer_compiled"
+"$work/fp/consumer_compiled_eigen"
+test "$("$work/fp/consumer_compiled")" = "$("$work/fp/consumer")"
+if nm -C "$work/fp/CMakeFiles/consumer_compiled.dir/consumer.cpp.o" | grep -q ' [TW] .*lanes_avx512'; then
+  echo "a compiled-mode consumer compiled the vector kernels itself" >&2; exit 1
+fi
 
 # pkg-config: compile the core consumer with the flags the .pc file gives.
 PKG_CONFIG_PATH="$work/prefix/share/pkgconfig" pkg-config --exists kindling
@@ -55,6 +64,7 @@ c++ -std=c++20 "$here/find_package/consumer.cpp" -o "$work/pc_consumer20" \
 cmake -S "$here/subdirectory" -B "$work/sub" -DKINDLING_SOURCE_DIR="$src" >/dev/null
 cmake --build "$work/sub" -j"$jobs" >/dev/null
 "$work/sub/consumer"
+"$work/sub/consumer_compiled"
 # add_subdirectory must not build our tests, examples or benchmarks.
 if find "$work/sub" -name 'kindling_test_*' -o -name 'kindling_demo' -o -name 'kindling_bench*' | grep -q .; then
   echo "add_subdirectory built kindling's own targets" >&2; exit 1
@@ -72,6 +82,7 @@ deb=$(ls "$work/lib"/kindling_*.deb)
 dpkg-deb --contents "$deb" >"$work/deb-contents.txt"
 grep -q './usr/bin/kindling$' "$work/deb-contents.txt"
 grep -q './usr/share/pkgconfig/kindling.pc$' "$work/deb-contents.txt"
+grep -q 'libkindling_compiled.a$' "$work/deb-contents.txt"
 if [ "$(id -u)" != 0 ]; then
   echo "packaging: .deb built ($deb); not root, so the dpkg -i test is skipped" >&2
 else
@@ -85,6 +96,7 @@ else
   cmake --build "$work/deb-fp" -j"$jobs" >/dev/null
   "$work/deb-fp/consumer"
   "$work/deb-fp/consumer_eigen"
+  "$work/deb-fp/consumer_compiled"
   (cd "$work/deb-fp" && ./consumer_npz)
   # shellcheck disable=SC2046
   c++ -std=c++20 "$here/find_package/consumer.cpp" -o "$work/deb_pc_consumer" \

@@ -8,7 +8,7 @@
 #include <array>
 #include <cstddef>
 #include <cstdint>
-#include <ios>
+#include <iosfwd>  // the stream operators are templates: <ios> comes with the user's streams
 #include <limits>
 #include <type_traits>
 
@@ -140,7 +140,8 @@ class philox_engine {
   template <class CharT, class Traits>
   friend std::basic_ostream<CharT, Traits>& operator<<(std::basic_ostream<CharT, Traits>& os,
                                                        const philox_engine& e) {
-    const auto flags = os.flags(std::ios_base::dec | std::ios_base::left);
+    using ios = std::basic_ostream<CharT, Traits>;  // dependent, so <iosfwd> suffices here
+    const auto flags = os.flags(ios::dec | ios::left);
     const CharT space = os.widen(' ');
     const CharT fill = os.fill(space);
     for (word k : e.key_) os << static_cast<std::uint64_t>(k) << space;
@@ -155,7 +156,8 @@ class philox_engine {
   template <class CharT, class Traits>
   friend std::basic_istream<CharT, Traits>& operator>>(std::basic_istream<CharT, Traits>& is,
                                                        philox_engine& e) {
-    const auto flags = is.flags(std::ios_base::dec | std::ios_base::skipws);
+    using ios = std::basic_istream<CharT, Traits>;
+    const auto flags = is.flags(ios::dec | ios::skipws);
     std::array<std::uint64_t, n / 2 + n + 1> v{};
     for (auto& x : v) is >> x;
     bool ok = static_cast<bool>(is) && v[n / 2 + n] < n;
@@ -170,7 +172,7 @@ class philox_engine {
         e.refill();
       }
     } else {
-      is.setstate(std::ios_base::failbit);
+      is.setstate(ios::failbit);
     }
     is.flags(flags);
     return is;

@@ -405,6 +405,24 @@ void generate_checked(const D& d, const stream& s, std::uint32_t domain, std::ui
   generate_run(kernel, s, domain, first, n, out);
 }
 
+// Every prepared kernel, as X(C, K) for K<C>: the closed set of transforms the compiled
+// library (KINDLING_COMPILED, detail/compiled_mode.hpp) instantiates once.
+#define KINDLING_FOR_EACH_KERNEL(X)                                                       \
+  X(float, uniform_kernel) X(float, symmetric_uniform_kernel) X(float, normal_kernel)     \
+  X(float, truncated_normal_kernel) X(double, uniform_kernel)                             \
+  X(double, symmetric_uniform_kernel) X(double, normal_kernel) X(double, truncated_normal_kernel)
+
+// The runs of a kernel, PREFIX = `extern template` (users' files in compiled mode) or
+// `template` (the compiled library).
+#define KINDLING_RUN_INSTANCE(PREFIX, C, K)                                                         \
+  PREFIX void generate_run_on<C, K<C>>(instruction_set, const K<C>&, const stream&, std::uint32_t, \
+                                        std::uint64_t, std::size_t, C*) noexcept;
+#if defined(KINDLING_COMPILED)
+#define KINDLING_EXTERN_RUN(C, K) KINDLING_RUN_INSTANCE(extern template, C, K)
+KINDLING_FOR_EACH_KERNEL(KINDLING_EXTERN_RUN)
+#undef KINDLING_EXTERN_RUN
+#endif
+
 }  // namespace detail
 
 namespace dist {

@@ -88,13 +88,32 @@ struct fan_scaled {
 };
 
 namespace detail {
-// Shared body of the named instances: each says how it maps to fan_scaled.
+// The distribution type fan_scaled::distribution() holds for a draw shape.
+template <draw_shape D>
+struct drawn_distribution {
+  using type = dist::normal;
+};
+template <>
+struct drawn_distribution<draw_shape::uniform> {
+  using type = dist::symmetric_uniform;
+};
+template <>
+struct drawn_distribution<draw_shape::truncated_normal> {
+  using type = dist::truncated_normal;
+};
+
+// Shared body of the named instances: each says how it maps to fan_scaled, and names
+// its draw shape at compile time (Self::drawn), so that a file initializing with
+// he_normal instantiates the fill of the normal only, not of all three shapes that
+// fan_scaled::write must be ready for (the same values: the same distribution).
 template <class Self>
 struct named_scaling {
   void check(const shape& g, const weight_info& w) const { rule().check(g, w); }
   template <class E, class Exec>
   void write(const strided_view<E>& v, const weight_info& w, const stream& s, Exec&& exec) const {
-    rule().write(v, w, s, std::forward<Exec>(exec));
+    const fan_scaled r = rule();
+    using drawn = typename drawn_distribution<Self::drawn>::type;
+    fill(v, std::get<drawn>(r.distribution(w.fans)), s, domain::values, std::forward<Exec>(exec));
   }
   auto distribution(const fans& f) const { return rule().distribution(f); }
   double variance(const fans& f) const { return rule().variance(f); }
@@ -169,20 +188,22 @@ struct he_arguments_of : he_arguments {
 /// uniform on ±gain·sqrt(6 / (fan_in + fan_out)).
 struct glorot_uniform : detail::named_scaling<glorot_uniform>, detail::glorot_arguments {
   using glorot_arguments::glorot_arguments;
+  static constexpr draw_shape drawn = draw_shape::uniform;
   std::string name() const { return "glorot-uniform"; }
   fan_scaled as_fan_scaled() const {
     detail::require_positive_argument(gain, "glorot_uniform", "gain");
-    return {gain * gain, fan_basis::average, draw_shape::uniform, 2};
+    return {gain * gain, fan_basis::average, drawn, 2};
   }
 };
 
 /// Glorot & Bengio 2010 with normal values of the same variance.
 struct glorot_normal : detail::named_scaling<glorot_normal>, detail::glorot_arguments {
   using glorot_arguments::glorot_arguments;
+  static constexpr draw_shape drawn = draw_shape::normal;
   std::string name() const { return "glorot-normal"; }
   fan_scaled as_fan_scaled() const {
     detail::require_positive_argument(gain, "glorot_normal", "gain");
-    return {gain * gain, fan_basis::average, draw_shape::normal, 2};
+    return {gain * gain, fan_basis::average, drawn, 2};
   }
 };
 
@@ -192,31 +213,35 @@ struct glorot_normal : detail::named_scaling<glorot_normal>, detail::glorot_argu
 struct he_uniform : detail::named_scaling<he_uniform>, detail::he_arguments_of<he_uniform> {
   using he_arguments_of::he_arguments_of;
   static constexpr const char* type_name = "he_uniform";
+  static constexpr draw_shape drawn = draw_shape::uniform;
   std::string name() const { return "he-uniform"; }
   fan_scaled as_fan_scaled() const {
-    return {detail::he_scale(slope), basis, draw_shape::uniform, 2};
+    return {detail::he_scale(slope), basis, drawn, 2};
   }
 };
 
 struct he_normal : detail::named_scaling<he_normal>, detail::he_arguments_of<he_normal> {
   using he_arguments_of::he_arguments_of;
   static constexpr const char* type_name = "he_normal";
+  static constexpr draw_shape drawn = draw_shape::normal;
   std::string name() const { return "he-normal"; }
   fan_scaled as_fan_scaled() const {
-    return {detail::he_scale(slope), basis, draw_shape::normal, 2};
+    return {detail::he_scale(slope), basis, drawn, 2};
   }
 };
 
 /// LeCun et al., "Efficient BackProp" (1998): Var W = 1 / fan_in. With SELU units this
 /// is the variance that gives the self-normalizing fixed point (Klambauer et al. 2017).
 struct lecun_uniform : detail::named_scaling<lecun_uniform> {
+  static constexpr draw_shape drawn = draw_shape::uniform;
   std::string name() const { return "lecun-uniform"; }
-  fan_scaled as_fan_scaled() const { return {1, fan_basis::in, draw_shape::uniform, 2}; }
+  fan_scaled as_fan_scaled() const { return {1, fan_basis::in, drawn, 2}; }
 };
 
 struct lecun_normal : detail::named_scaling<lecun_normal> {
+  static constexpr draw_shape drawn = draw_shape::normal;
   std::string name() const { return "lecun-normal"; }
-  fan_scaled as_fan_scaled() const { return {1, fan_basis::in, draw_shape::normal, 2}; }
+  fan_scaled as_fan_scaled() const { return {1, fan_basis::in, drawn, 2}; }
 };
 
 }  // namespace kindling

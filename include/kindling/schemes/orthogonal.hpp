@@ -116,11 +116,26 @@ void require_orthogonal_region(const strided_view<E>& v, std::uint64_t rows, std
 /// A dense double matrix in row-major storage (the order the writers read it in).
 using row_major_matrix = Eigen::Matrix<double, Eigen::Dynamic, Eigen::Dynamic, Eigen::RowMajor>;
 
+// Compiled mode with Eigen (KINDLING_COMPILED_ORTHOGONAL, set by the kindling::compiled
+// target when it was built with Eigen): the QR below, the costliest code of a file that
+// uses this scheme, is compiled once in the library (src/compiled.cpp) and
+// only declared in users' files (detail/compiled_mode.hpp).
+#if defined(KINDLING_COMPILED_ORTHOGONAL)
+#define KINDLING_ORTHOGONAL_INLINE
+#else
+#define KINDLING_ORTHOGONAL_INLINE inline
+#endif
+
 /// gain times a Haar-distributed rows x cols matrix with orthonormal columns (rows >= cols)
 /// or rows (rows < cols), from the Gaussian matrix of domain `gaussian` of s (see the top
 /// of this header for the exact indices). Sizes were checked by require_orthogonal_size.
 /// Row-major, so that writing it out in row-major unit order reads memory in order.
-inline row_major_matrix haar_orthogonal(std::uint64_t rows, std::uint64_t cols, double gain, const stream& s) {
+KINDLING_ORTHOGONAL_INLINE row_major_matrix haar_orthogonal(std::uint64_t rows, std::uint64_t cols, double gain,
+                                                            const stream& s);
+
+#if !defined(KINDLING_COMPILED_ORTHOGONAL) || defined(KINDLING_COMPILED_LIBRARY)
+KINDLING_ORTHOGONAL_INLINE row_major_matrix haar_orthogonal(std::uint64_t rows, std::uint64_t cols, double gain,
+                                                            const stream& s) {
   const bool wide = rows < cols;
   const std::uint64_t m = wide ? cols : rows;
   const std::uint64_t n = wide ? rows : cols;
@@ -149,6 +164,7 @@ inline row_major_matrix haar_orthogonal(std::uint64_t rows, std::uint64_t cols, 
   if (wide) return q.transpose();
   return q;
 }
+#endif
 
 }  // namespace detail
 

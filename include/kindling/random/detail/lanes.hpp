@@ -27,13 +27,19 @@
 #include <cstdint>
 #include <type_traits>
 
-#include "kindling/random/detail/avx2.hpp"
-#include "kindling/random/detail/avx512.hpp"
 #include "kindling/random/detail/instruction_set.hpp"
 #include "kindling/random/philox.hpp"
 
+// Header-only, the dispatch below is inline; in compiled mode (detail/compiled_mode.hpp)
+// it is only declared here, and defined once in the compiled library, so that a user's
+// file parses neither the intrinsics headers nor the kernels.
+#include "kindling/detail/compiled_mode.hpp"
+#if defined(KINDLING_COMPILED_DEFINITIONS)
+#include "kindling/random/detail/avx2.hpp"
+#include "kindling/random/detail/avx512.hpp"
 #if defined(KINDLING_LANES_X86)
 #include <immintrin.h>
+#endif
 #endif
 
 namespace kindling::detail {
@@ -50,9 +56,64 @@ inline void group_words_scalar(const philox4x32_key& key, std::uint32_t domain, 
   }
 }
 
+// ---- the dispatch: what fill.hpp and sample.hpp call ---------------------------------
+// Declared here, defined below (header-only) or in the compiled library (compiled mode).
+
 // Group words on the given path (instruction_set_available(isa) must hold).
-inline void group_words(instruction_set isa, const philox4x32_key& key, std::uint32_t domain,
-                        std::uint64_t g, std::uint32_t* w) noexcept {
+KINDLING_COMPILED_INLINE void group_words(instruction_set isa, const philox4x32_key& key,
+                                       std::uint32_t domain, std::uint64_t g, std::uint32_t* w) noexcept;
+
+// The float transforms on `count` whole groups from g0, out[64 k + r] for group g0 + k.
+// Return false when the path has no vector code (the caller then runs the scalar one).
+template <class Kernel>
+KINDLING_COMPILED_INLINE bool groups_f32(instruction_set isa, const Kernel& p, const philox4x32_key& key,
+                                      std::uint32_t domain, std::uint64_t g0, std::uint64_t count,
+                                      float* out) noexcept;
+
+// The double normal (sample.hpp normal_kernel<double>) on whole groups, out[32 k + r]
+// for group g0 + k (AVX-512 only).
+template <class Kernel>
+KINDLING_COMPILED_INLINE bool groups_f64(instruction_set isa, const Kernel& p, const philox4x32_key& key,
+                                      std::uint32_t domain, std::uint64_t g0, std::uint64_t count,
+                                      double* out) noexcept;
+
+// The same groups as float elements straight into dst, each moved inside [lo_min,
+// hi_max] as round_store_f32 does; `stream`: non-temporal stores. False when the path
+// has no such writer (the caller then generates into a buffer and rounds from there).
+template <class Kernel>
+KINDLING_COMPILED_INLINE bool groups_f32_elements(instruction_set isa, const Kernel& p,
+                                               const philox4x32_key& key, std::uint32_t domain,
+                                               std::uint64_t g0, std::uint64_t count, float* dst,
+                                               float hi_max, float lo_min, bool stream) noexcept;
+
+// The same for bfloat16 elements (their bits), rounded as round_store_bf16 does.
+template <class Kernel>
+KINDLING_COMPILED_INLINE bool groups_bf16_elements(instruction_set isa, const Kernel& p,
+                                                const philox4x32_key& key, std::uint32_t domain,
+                                                std::uint64_t g0, std::uint64_t count,
+                                                std::uint16_t* dst, float hi_max, float lo_min,
+                                                bool stream) noexcept;
+
+// element_traits<float / bfloat16>::from_compute of src[0 .. n) into dst, with the
+// distribution's bounds given as thresholds in float: hi_max (lo_min) is the largest
+// (smallest) float inside them, so "outside above" is t > hi_max and "outside below"
+// t < lo_min for the exact value t of the rounded element. Vector paths handle a
+// multiple of their width and return how many they wrote; the caller does the rest.
+// `stream`: non-temporal stores (used when dst is aligned to the vector size).
+KINDLING_COMPILED_INLINE std::size_t round_store_f32(instruction_set isa, const float* src, float* dst,
+                                                  std::size_t n, float hi_max, float lo_min,
+                                                  bool stream) noexcept;
+KINDLING_COMPILED_INLINE std::size_t round_store_bf16(instruction_set isa, const float* src,
+                                                   std::uint16_t* dst, std::size_t n, float hi_max,
+                                                   float lo_min, bool stream) noexcept;
+
+// Orders the non-temporal stores before what follows (the end of an executor task).
+KINDLING_COMPILED_INLINE void store_fence() noexcept;
+
+#if defined(KINDLING_COMPILED_DEFINITIONS)
+// The definitions (comments on the declarations above).
+KINDLING_COMPILED_INLINE void group_words(instruction_set isa, const philox4x32_key& key, std::uint32_t domain,
+                                       std::uint64_t g, std::uint32_t* w) noexcept {
 #if defined(KINDLING_LANES_X86)
   if (isa == instruction_set::avx512) return lanes_avx512::group_words(key, domain, g, w);
   if (isa == instruction_set::avx2) return lanes_avx2::group_words(key, domain, g, w);
@@ -61,12 +122,10 @@ inline void group_words(instruction_set isa, const philox4x32_key& key, std::uin
   group_words_scalar(key, domain, g, w);
 }
 
-// The float transforms on `count` whole groups from g0, out[64 k + r] for group g0 + k.
-// Return false when the path has no vector code (the caller then runs the scalar one).
 template <class Kernel>
-inline bool groups_f32(instruction_set isa, const Kernel& p, const philox4x32_key& key,
-                       std::uint32_t domain, std::uint64_t g0, std::uint64_t count,
-                       float* out) noexcept {
+KINDLING_COMPILED_INLINE bool groups_f32(instruction_set isa, const Kernel& p, const philox4x32_key& key,
+                                      std::uint32_t domain, std::uint64_t g0, std::uint64_t count,
+                                      float* out) noexcept {
 #if defined(KINDLING_LANES_X86)
   if (isa == instruction_set::avx512) return lanes_avx512::groups(p, key, domain, g0, count, out), true;
   if (isa == instruction_set::avx2) return lanes_avx2::groups(p, key, domain, g0, count, out), true;
@@ -75,12 +134,10 @@ inline bool groups_f32(instruction_set isa, const Kernel& p, const philox4x32_ke
   return false;
 }
 
-// The double normal (sample.hpp normal_kernel<double>) on whole groups, out[32 k + r]
-// for group g0 + k (AVX-512 only).
 template <class Kernel>
-inline bool groups_f64(instruction_set isa, const Kernel& p, const philox4x32_key& key,
-                       std::uint32_t domain, std::uint64_t g0, std::uint64_t count,
-                       double* out) noexcept {
+KINDLING_COMPILED_INLINE bool groups_f64(instruction_set isa, const Kernel& p, const philox4x32_key& key,
+                                      std::uint32_t domain, std::uint64_t g0, std::uint64_t count,
+                                      double* out) noexcept {
 #if defined(KINDLING_LANES_X86)
   if (isa == instruction_set::avx512)
     return lanes_avx512::normal_groups_f64(p, key, domain, g0, count, out), true;
@@ -89,13 +146,10 @@ inline bool groups_f64(instruction_set isa, const Kernel& p, const philox4x32_ke
   return false;
 }
 
-// The same groups as float elements straight into dst, each moved inside [lo_min,
-// hi_max] as round_store_f32 does; `stream`: non-temporal stores. False when the path
-// has no such writer (the caller then generates into a buffer and rounds from there).
 template <class Kernel>
-inline bool groups_f32_elements(instruction_set isa, const Kernel& p, const philox4x32_key& key,
-                                std::uint32_t domain, std::uint64_t g0, std::uint64_t count,
-                                float* dst, float hi_max, float lo_min, bool stream) noexcept {
+KINDLING_COMPILED_INLINE bool groups_f32_elements(instruction_set isa, const Kernel& p, const philox4x32_key& key,
+                                               std::uint32_t domain, std::uint64_t g0, std::uint64_t count,
+                                               float* dst, float hi_max, float lo_min, bool stream) noexcept {
 #if defined(KINDLING_LANES_X86)
   if (isa == instruction_set::avx512)
     return lanes_avx512::groups_to_elements(p, key, domain, g0, count, dst, hi_max, lo_min, stream),
@@ -110,11 +164,10 @@ inline bool groups_f32_elements(instruction_set isa, const Kernel& p, const phil
   return false;
 }
 
-// The same for bfloat16 elements (their bits), rounded as round_store_bf16 does.
 template <class Kernel>
-inline bool groups_bf16_elements(instruction_set isa, const Kernel& p, const philox4x32_key& key,
-                                 std::uint32_t domain, std::uint64_t g0, std::uint64_t count,
-                                 std::uint16_t* dst, float hi_max, float lo_min, bool stream) noexcept {
+KINDLING_COMPILED_INLINE bool groups_bf16_elements(instruction_set isa, const Kernel& p, const philox4x32_key& key,
+                                                std::uint32_t domain, std::uint64_t g0, std::uint64_t count,
+                                                std::uint16_t* dst, float hi_max, float lo_min, bool stream) noexcept {
 #if defined(KINDLING_LANES_X86)
   if (isa == instruction_set::avx512)
     return lanes_avx512::groups_to_elements_by_vector(p, key, domain, g0, count, dst, hi_max, lo_min, stream),
@@ -128,15 +181,9 @@ inline bool groups_bf16_elements(instruction_set isa, const Kernel& p, const phi
   return false;
 }
 
-// element_traits<float / bfloat16>::from_compute of src[0 .. n) into dst, with the
-// distribution's bounds given as thresholds in float: hi_max (lo_min) is the largest
-// (smallest) float inside them, so "outside above" is t > hi_max and "outside below"
-// t < lo_min for the exact value t of the rounded element. Vector paths handle a
-// multiple of their width and return how many they wrote; the caller does the rest.
-// `stream`: non-temporal stores (used when dst is aligned to the vector size).
-inline std::size_t round_store_f32(instruction_set isa, const float* src, float* dst,
-                                   std::size_t n, float hi_max, float lo_min,
-                                   bool stream) noexcept {
+KINDLING_COMPILED_INLINE std::size_t round_store_f32(instruction_set isa, const float* src, float* dst,
+                                                  std::size_t n, float hi_max, float lo_min,
+                                                  bool stream) noexcept {
 #if defined(KINDLING_LANES_X86)
   if (isa == instruction_set::avx512)
     return lanes_avx512::round_store_f32(src, dst, n, hi_max, lo_min, stream);
@@ -146,9 +193,9 @@ inline std::size_t round_store_f32(instruction_set isa, const float* src, float*
   (void)isa, (void)src, (void)dst, (void)n, (void)hi_max, (void)lo_min, (void)stream;
   return 0;
 }
-inline std::size_t round_store_bf16(instruction_set isa, const float* src, std::uint16_t* dst,
-                                    std::size_t n, float hi_max, float lo_min,
-                                    bool stream) noexcept {
+KINDLING_COMPILED_INLINE std::size_t round_store_bf16(instruction_set isa, const float* src, std::uint16_t* dst,
+                                                   std::size_t n, float hi_max, float lo_min,
+                                                   bool stream) noexcept {
 #if defined(KINDLING_LANES_X86)
   if (isa == instruction_set::avx512)
     return lanes_avx512::round_store_bf16(src, dst, n, hi_max, lo_min, stream);
@@ -158,12 +205,12 @@ inline std::size_t round_store_bf16(instruction_set isa, const float* src, std::
   (void)isa, (void)src, (void)dst, (void)n, (void)hi_max, (void)lo_min, (void)stream;
   return 0;
 }
-// Orders the non-temporal stores before what follows (the end of an executor task).
-inline void store_fence() noexcept {
+KINDLING_COMPILED_INLINE void store_fence() noexcept {
 #if defined(KINDLING_LANES_X86)
   _mm_sfence();
 #endif
 }
+#endif  // KINDLING_COMPILED_DEFINITIONS
 }  // namespace kindling::detail
 
 #endif  // KINDLING_RANDOM_DETAIL_LANES_HPP
