@@ -45,6 +45,12 @@
 // Student's t band with the false-alarm rate split (Bonferroni) over the T G gate
 // comparisons (only the gates have a prediction), plus a finite-width allowance of
 // c / hidden.
+// False-alarm rate, measured (tests/propagate/recurrent.cpp, "rate: ..."): 100 LSTM and
+// 100 GRU cells of 16 units over 20 steps, 8 draws of 16 samples, no allowance: nominal
+// 0.2 a table -> observed 0.19 (0.0038 a row against a nominal 0.003); with the defaults
+// no NO in 14000 rows.  Power: at 8 draws of 32 samples a row's band is about x/1.17; a
+// recurrent gain of 2 assumed to be 1 fails 114 of 200 rows of a 64-unit LSTM over 50
+// steps, a gain of 3 fails 195.
 #ifndef KINDLING_PROPAGATE_RECURRENT_HPP
 #define KINDLING_PROPAGATE_RECURRENT_HPP
 
