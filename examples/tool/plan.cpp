@@ -5,6 +5,7 @@
 // independent draws of the stack, --batch samples each, with the library's verdict
 // (kindling/propagate/measure.hpp): the columns and sentences are those of
 // propagation_report::table(). --json for scripts, --svg for a picture.
+#include <algorithm>
 #include <atomic>
 #include <cmath>
 #include <cstdio>
@@ -22,6 +23,7 @@
 #include <kindling/io/spec.hpp>
 #include <kindling/propagate/mean_field.hpp>
 #include <kindling/propagate/measure.hpp>
+#include <kindling/propagate/recurrent.hpp>
 
 #include "output.hpp"
 #include "plot.hpp"
@@ -94,6 +96,20 @@ void check_measure_memory(const layer_stack& stack, std::uint64_t batch) {
   }
 }
 
+// A cell keeps, for a batch, its gates, states and inputs at every step (doubles).
+void check_cell_memory(const recurrent_cell& c, std::uint64_t batch) {
+  const double steps = static_cast<double>(c.steps()), h = static_cast<double>(c.hidden());
+  const double per_sample = steps * (static_cast<double>(c.gates()) * h + 4.0 * h + static_cast<double>(c.input_width()));
+  const double weights = static_cast<double>(c.gates()) * h * (h + static_cast<double>(c.input_width()));
+  const double peak = 8.0 * (weights + static_cast<double>(batch) * per_sample);
+  if (peak > static_cast<double>(memory_budget)) {
+    throw std::length_error("--batch " + std::to_string(batch) + " needs about " + bytes_text(peak) +
+                            " of memory for the recurrent cell '" + c.label() + "' over " + std::to_string(c.steps()) +
+                            " steps; expected at most " + bytes_text(static_cast<double>(memory_budget)) +
+                            " (the tool's memory cap): give a smaller --batch");
+  }
+}
+
 }  // namespace
 
 int run_plan(const plan_options& o) {
@@ -106,20 +122,38 @@ int run_plan(const plan_options& o) {
   if (o.measure && o.trials < 2) {
     throw std::invalid_argument("--trials " + std::to_string(o.trials) + ": expected at least 2 draws");
   }
-  const layer_stack stack = build_stack(spec);
-  if (o.measure) check_measure_memory(stack, o.batch);
-  if (!o.svg.empty()) check_output("--svg", o.svg, {{"SPEC", o.spec}});
-  const std::vector<layer_prediction> predicted = predict(stack);
-  propagation_report measured;
-  if (o.measure) {
-    const bool tty = isatty(STDERR_FILENO) != 0;
-    measure_options mo;
-    mo.trials = o.trials;
-    // Each draw streams the batch in slices of 32 samples: memory does not grow with
-    // --batch (no batch x batch matrix), only the time does.
-    measured = compare_propagation(stack, predicted, o.batch, make_stream(o.seed, "kindling.plan"), mo,
-                                   progress_executor{thread_executor(o.threads), tty});
+  network_sections sections = build_sections(spec);
+  if (!sections.cells.empty() && (o.batch < 1 || o.trials < 2)) {
+    throw std::invalid_argument("--batch " + std::to_string(o.batch) + " --trials " + std::to_string(o.trials) +
+                                ": expected at least 1 sample and 2 draws (a recurrent cell's state is measured)");
   }
+  for (const layer_stack& stack : sections.stacks) {
+    if (o.measure && !stack.empty()) check_measure_memory(stack, o.batch);
+  }
+  for (const recurrent_cell& c : sections.cells) check_cell_memory(c, o.batch);
+  if (!o.svg.empty()) check_output("--svg", o.svg, {{"SPEC", o.spec}});
+  const bool tty = isatty(STDERR_FILENO) != 0;
+  const stream plan_stream = make_stream(o.seed, "kindling.plan");
+  // A cell's state has no closed form (kindling/propagate/recurrent.hpp): each cell is
+  // measured, fed the second moment predicted for the layer below it, and the stack
+  // above it is predicted from the state moment measured at its last step.
+  std::vector<double> state_moments, cell_inputs;
+  std::vector<recurrent_report> cell_reports;
+  for (std::size_t k = 0; k < sections.cells.size(); ++k) {
+    sections = build_sections(spec, state_moments);
+    const layer_stack& below = sections.stacks[k];
+    const double x2 = below.empty() ? below.input_second_moment() : predict(below).back().activation_moment;
+    const recurrent_cell& cell = sections.cells[k];
+    recurrent_options ro;
+    ro.trials = o.trials;
+    ro.input_second_moment = x2;
+    cell_inputs.push_back(x2);
+    cell_reports.push_back(compare_recurrent(cell, o.batch, plan_stream.named(cell.label()), ro,
+                                             progress_executor{thread_executor(o.threads), tty}));
+    state_moments.push_back(cell_reports.back().median(&recurrent_moments::state, cell.steps() - 1));
+  }
+  sections = build_sections(spec, state_moments);
+
   bool agrees = true;
   json layers = json::array();
   json warnings = json::array();
@@ -128,47 +162,162 @@ int run_plan(const plan_options& o) {
   series[1] = {"backward (gradient), predicted", "#c8501e", true, {}};
   series[2] = {"forward, measured", "#1f5fa8", false, {}};
   series[3] = {"backward, measured", "#c8501e", false, {}};
-  for (std::size_t l = 0; l < stack.depth(); ++l) {
-    const stack_layer& L = stack[l];
-    const layer_prediction& p = predicted[l];
-    json row = {{"index", l + 1},
-                {"label", L.label},
-                {"fan_in", L.fans.fan_in},
-                {"fan_out", L.fans.fan_out},
-                {"scheme", L.scheme},
-                {"activation", L.act.name()},
-                {"weight_std", std::sqrt(L.weight_variance)},
-                {"forward_variance", p.preactivation_variance},
-                {"backward_variance", p.gradient_variance},
-                {"measured_forward_variance", nullptr},
-                {"measured_backward_variance", nullptr}};
-    const double x = static_cast<double>(l + 1);
-    series[0].points.push_back({x, p.preactivation_variance});
-    series[1].points.push_back({x, p.gradient_variance});
-    for (const std::string& w : p.warnings) warnings.push_back("layer " + std::to_string(l + 1) + " (" + L.label + "): " + w);
-    if (o.measure) {
-      const layer_comparison& c = measured.layers[l];
-      const auto moment = [](const measured_moment& m) {
-        return json{{"median", m.median},
-                    {"spread_factor", std::exp(m.spread)},  // the table's x/: one draw varies by x/ this
-                    {"mean_over_predicted", std::exp(m.deviation)},
-                    {"band_factor", std::exp(m.tolerance)},  // agrees when mean/predicted is within x/ this
-                    {"agrees", m.agrees},
-                    {"draws", m.draws}};
-      };
-      row["measured_forward_variance"] = c.preactivation.median;
-      row["measured_backward_variance"] = c.gradient.median;
-      row["measured_forward"] = moment(c.preactivation);
-      row["measured_backward"] = moment(c.gradient);
-      row["agrees"] = c.agrees;
-      series[2].points.push_back({x, c.preactivation.median});
-      series[3].points.push_back({x, c.gradient.median});
-      if (!c.agrees) {
-        agrees = false;
-        warnings.push_back("layer " + std::to_string(l + 1) + " (" + L.label + "): disagrees: " + measured.disagreement(l));
+  std::vector<std::string> names, lines;
+  std::vector<bool> warned;
+  std::vector<std::string> methods;
+  std::size_t index = 0;
+  for (std::size_t section = 0; section < sections.stacks.size(); ++section) {
+    const layer_stack& stack = sections.stacks[section];
+    std::vector<layer_prediction> predicted;
+    propagation_report measured;
+    if (!stack.empty()) {
+      predicted = predict(stack);
+      if (o.measure) {
+        measure_options mo;
+        mo.trials = o.trials;
+        // Each draw streams the batch in slices of 32 samples: memory does not grow with
+        // --batch (no batch x batch matrix), only the time does.  (The stack below the
+        // first cell keeps the stream of a spec without cells.)
+        const stream s = section == 0 ? plan_stream : plan_stream.named("above " + sections.cells[section - 1].label());
+        measured = compare_propagation(stack, predicted, o.batch, s, mo, progress_executor{thread_executor(o.threads), tty});
+        if (methods.empty() || methods.back() != measured.method()) methods.push_back(measured.method());
       }
     }
+    for (std::size_t l = 0; l < stack.depth(); ++l) {
+      const stack_layer& L = stack[l];
+      const layer_prediction& p = predicted[l];
+      ++index;
+      json row = {{"index", index},
+                  {"label", L.label},
+                  {"fan_in", L.fans.fan_in},
+                  {"fan_out", L.fans.fan_out},
+                  {"scheme", L.scheme},
+                  {"activation", L.act.name()},
+                  {"weight_std", std::sqrt(L.weight_variance)},
+                  {"forward_variance", p.preactivation_variance},
+                  {"backward_variance", p.gradient_variance},
+                  {"measured_forward_variance", nullptr},
+                  {"measured_backward_variance", nullptr}};
+      const double x = static_cast<double>(index);
+      series[0].points.push_back({x, p.preactivation_variance});
+      series[1].points.push_back({x, p.gradient_variance});
+      for (const std::string& w : p.warnings) warnings.push_back("layer " + std::to_string(index) + " (" + L.label + "): " + w);
+      char line[512];
+      std::snprintf(line, sizeof line, "%-3zu %-9s %6llu %7llu %-10s %-14s %9s %11s %11s", index, L.label.c_str(),
+                    static_cast<unsigned long long>(L.fans.fan_in), static_cast<unsigned long long>(L.fans.fan_out),
+                    std::string(L.act.name()).c_str(), L.scheme.c_str(), std_text(L.weight_variance).c_str(),
+                    number_text(p.preactivation_variance).c_str(), number_text(p.gradient_variance).c_str());
+      std::string text = line;
+      bool row_agrees = true;
+      if (o.measure) {
+        const layer_comparison& c = measured.layers[l];
+        const auto moment = [](const measured_moment& m) {
+          return json{{"median", m.median},
+                      {"spread_factor", std::exp(m.spread)},  // the table's x/: one draw varies by x/ this
+                      {"mean_over_predicted", std::exp(m.deviation)},
+                      {"band_factor", std::exp(m.tolerance)},  // agrees when mean/predicted is within x/ this
+                      {"agrees", m.agrees},
+                      {"draws", m.draws}};
+        };
+        row["measured_forward_variance"] = c.preactivation.median;
+        row["measured_backward_variance"] = c.gradient.median;
+        row["measured_forward"] = moment(c.preactivation);
+        row["measured_backward"] = moment(c.gradient);
+        row["agrees"] = c.agrees;
+        series[2].points.push_back({x, c.preactivation.median});
+        series[3].points.push_back({x, c.gradient.median});
+        std::snprintf(line, sizeof line, " %11s %7s %11s %7s  %s", number_text(c.preactivation.median).c_str(),
+                      number_text(std::exp(c.preactivation.spread), 3).c_str(), number_text(c.gradient.median).c_str(),
+                      number_text(std::exp(c.gradient.spread), 3).c_str(), c.agrees ? "yes" : "NO");
+        text += line;
+        row_agrees = c.agrees;
+        if (!c.agrees) {
+          agrees = false;
+          warnings.push_back("layer " + std::to_string(index) + " (" + L.label + "): disagrees: " + measured.disagreement(l));
+        }
+      }
+      layers.push_back(row);
+      lines.push_back(text);
+      names.push_back(L.label);
+      warned.push_back(!p.warnings.empty() || !row_agrees);
+    }
+    if (section == sections.cells.size()) break;
+    // The cell above this stack: its gates at the last step (predicted from the measured
+    // state, Chen, Pennington & Schoenholz 2018), its state and gradients measured only.
+    const recurrent_cell& cell = sections.cells[section];
+    const recurrent_report& r = cell_reports[section];
+    const std::size_t last = cell.steps() - 1;
+    ++index;
+    std::vector<double> reads, gates;
+    for (const recurrent_moments& d : r.draws) {
+      reads.push_back(d.reads[last][0]);
+      gates.push_back(d.gates[last][0]);
+    }
+    std::sort(reads.begin(), reads.end());
+    std::sort(gates.begin(), gates.end());
+    const double gate_predicted = cell.gate_moment(cell_inputs[section], reads[reads.size() / 2]);
+    const double gate_measured = gates[gates.size() / 2];
+    const double state = state_moments[section];
+    const double memory = r.median(&recurrent_moments::state_gradient, 0) /
+                          r.median(&recurrent_moments::state_gradient, last);
+    const measured_moment& g0 = r.gates[last][0];
+    json row = {{"index", index},
+                {"label", cell.label()},
+                {"kind", "recurrent"},
+                {"cell", cell_kind_name(cell.kind())},
+                {"gates", gate_names(cell.kind())},
+                {"steps", cell.steps()},
+                {"fan_in", cell.input_width()},
+                {"hidden", cell.hidden()},
+                {"forget_bias", cell.forget_bias()},
+                {"scheme", cell.input_scheme()},
+                {"recurrent_scheme", cell.recurrent_scheme()},
+                {"weight_std", std::sqrt(cell.input_weight_variance())},
+                {"recurrent_weight_std", std::sqrt(cell.recurrent_weight_variance())},
+                {"input_variance", cell_inputs[section]},
+                {"forward_variance", gate_predicted},
+                {"backward_variance", nullptr},
+                {"measured_forward_variance", gate_measured},
+                {"measured_backward_variance", r.median(&recurrent_moments::state_gradient, 0)},
+                {"state_variance_measured", state},
+                {"gradient_first_over_last", memory},
+                {"gates_agree", r.gates_agree()},
+                {"measured_only", {"state_variance_measured", "measured_backward_variance", "gradient_first_over_last"}}};
     layers.push_back(row);
+    const double x = static_cast<double>(index);
+    series[0].points.push_back({x, gate_predicted});
+    if (o.measure) series[2].points.push_back({x, gate_measured});
+    char line[512];
+    std::snprintf(line, sizeof line, "%-3zu %-9s %6llu %7llu %-10s %-14s %9s %11s %11s", index, cell.label().c_str(),
+                  static_cast<unsigned long long>(cell.input_width()), static_cast<unsigned long long>(cell.hidden()),
+                  cell_kind_name(cell.kind()), cell.input_scheme().c_str(), std_text(cell.input_weight_variance()).c_str(),
+                  number_text(gate_predicted).c_str(), "-");
+    std::string text = line;
+    if (o.measure) {
+      std::snprintf(line, sizeof line, " %11s %7s %11s %7s  %s", number_text(gate_measured).c_str(),
+                    number_text(std::exp(g0.spread), 3).c_str(),
+                    number_text(r.median(&recurrent_moments::state_gradient, 0)).c_str(), "-",
+                    r.gates_agree() ? "yes" : "NO");
+      text += line;
+    }
+    std::snprintf(line, sizeof line,
+                  "\n    cell: %s over %llu steps, forget bias %s, recurrent %s (sd %s); fwd: the %s gate's "
+                  "pre-activation at the last step; gates %s the mean field at every step; measured only: state "
+                  "E[h^2] at the last step %s, E[(dL/dh)^2] at the first step / at the last %s",
+                  cell_kind_name(cell.kind()), static_cast<unsigned long long>(cell.steps()),
+                  number_text(cell.forget_bias()).c_str(), cell.recurrent_scheme().c_str(),
+                  std_text(cell.recurrent_weight_variance()).c_str(), gate_names(cell.kind())[0].c_str(),
+                  r.gates_agree() ? "agree with" : "DISAGREE with", number_text(state).c_str(),
+                  number_text(memory).c_str());
+    text += line;
+    lines.push_back(text);
+    names.push_back(cell.label());
+    warned.push_back(!r.gates_agree());
+    if (!r.gates_agree()) {
+      warnings.push_back("layer " + std::to_string(index) + " (" + cell.label() +
+                         "): a gate's pre-activation disagrees with the mean field at some step");
+      if (o.measure) agrees = false;
+    }
   }
   if (!o.svg.empty()) {
     if (!o.measure) series.resize(2);
@@ -178,22 +327,20 @@ int run_plan(const plan_options& o) {
                                                   " draws of the weights, " + std::to_string(o.batch) +
                                                   " samples each (seed " + std::to_string(o.seed) + ")"
                                             : std::string(" (add --measure for measured points)"));
-    std::vector<std::string> names;
-    std::vector<bool> warned;
-    for (std::size_t l = 0; l < stack.depth(); ++l) {
-      names.push_back(stack[l].label);
-      warned.push_back(!predicted[l].warnings.empty() || (o.measure && !measured.layers[l].agrees));
-    }
-    write_output("--svg", o.svg, variance_plot_svg(title, subtitle, series, stack.depth(), names, warned));
+    write_output("--svg", o.svg, variance_plot_svg(title, subtitle, series, index, names, warned));
   }
   if (o.json) {
     json out = {{"layers", layers}, {"warnings", warnings}};
     if (!spec.name.empty()) out["name"] = spec.name;
-    if (o.measure) {
+    if (o.measure || !sections.cells.empty()) {
       out["batch"] = o.batch;
       out["trials"] = o.trials;
-      out["false_alarm"] = measured.false_alarm;
-      out["method"] = measured.method();
+    }
+    if (o.measure) {
+      out["false_alarm"] = measure_options{}.false_alarm;
+      std::string method;
+      for (const std::string& m : methods) method += (method.empty() ? "" : "; ") + m;
+      out["method"] = method;
     }
     std::printf("%s\n", out.dump(2).c_str());
   } else {
@@ -207,26 +354,15 @@ int run_plan(const plan_options& o) {
                 "scheme", "weight_sd", "fwd_var", "bwd_var");
     if (o.measure) std::printf(" %11s %7s %11s %7s  %s", "fwd_med", "x/", "bwd_med", "x/", "agrees");
     std::printf("\n");
-    for (std::size_t l = 0; l < stack.depth(); ++l) {
-      const stack_layer& L = stack[l];
-      const layer_prediction& p = predicted[l];
-      std::printf("%-3zu %-9s %6llu %7llu %-10s %-14s %9s %11s %11s", l + 1, L.label.c_str(),
-                  static_cast<unsigned long long>(L.fans.fan_in), static_cast<unsigned long long>(L.fans.fan_out),
-                  std::string(L.act.name()).c_str(), L.scheme.c_str(), std_text(L.weight_variance).c_str(),
-                  number_text(p.preactivation_variance).c_str(), number_text(p.gradient_variance).c_str());
-      if (o.measure) {
-        const layer_comparison& c = measured.layers[l];
-        std::printf(" %11s %7s %11s %7s  %s", number_text(c.preactivation.median).c_str(),
-                    number_text(std::exp(c.preactivation.spread), 3).c_str(), number_text(c.gradient.median).c_str(),
-                    number_text(std::exp(c.gradient.spread), 3).c_str(), c.agrees ? "yes" : "NO");
-      }
-      std::printf("\n");
+    for (const std::string& line : lines) std::printf("%s\n", line.c_str());
+    if (!sections.cells.empty()) {
+      std::printf("recurrent cells: %zu draws of %llu samples; the layers above a cell are predicted from its measured "
+                  "state, and each part's bwd columns start from its own unit loss gradient\n", o.trials, static_cast<unsigned long long>(o.batch));
     }
-    if (o.measure) std::printf("%s\n", measured.method().c_str());
+    for (const std::string& m : methods) std::printf("%s\n", m.c_str());
     for (const auto& w : warnings) std::printf("warning: %s\n", w.get<std::string>().c_str());
     if (!o.svg.empty()) std::printf("wrote %s\n", o.svg.c_str());
   }
   return agrees ? exit_ok : exit_check_failed;
 }
-
 }  // namespace kindling::tool

@@ -2,7 +2,8 @@
 // (io/spec.hpp). Any input is refused with std::invalid_argument or std::domain_error
 // (the header's contract; std::length_error is allowed as the library's size error;
 // any other exception, e.g. one of nlohmann-json's own, escapes and is a finding), or
-// parsed into a spec that builds a layer stack and has a prediction.
+// parsed into a spec that builds its sections (stacks cut at recurrent cells), each
+// stack with layers having a prediction.
 #include <cstddef>
 #include <cstdint>
 #include <stdexcept>
@@ -15,8 +16,10 @@ extern "C" int LLVMFuzzerTestOneInput(const std::uint8_t* data, std::size_t size
   const std::string text(reinterpret_cast<const char*>(data), size);
   try {
     const kindling::network_spec spec = kindling::parse_network_spec(text, "fuzz input");
-    const kindling::layer_stack stack = kindling::build_stack(spec);
-    (void)kindling::predict(stack);
+    const kindling::network_sections sections = kindling::build_sections(spec);
+    for (const kindling::layer_stack& stack : sections.stacks) {
+      if (!stack.empty()) (void)kindling::predict(stack);
+    }
   } catch (const std::invalid_argument&) {
   } catch (const std::domain_error&) {
   } catch (const std::length_error&) {

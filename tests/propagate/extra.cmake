@@ -17,3 +17,13 @@ kindling_reference_check(
   SOURCE reference/print_convolution.cpp SCRIPT check_convolution.py
   NAME "propagate: convolution passes match a NumPy computation from the same weights")
 target_link_libraries(kindling_propagate_print_convolution PRIVATE kindling_eigen)
+
+# Recurrent cells checked against NumPy (Debian python3-numpy, /usr/bin/python3): the
+# printer exports draw 0 of an LSTM and a GRU over 50 steps (weights, bias, inputs, loss
+# gradient as .npy, and kindling's per-step moments), and check_recurrent.py unrolls the
+# same cells with numpy matrix products, forward and back through time.
+kindling_reference_check(
+  AREA propagate PROGRAM kindling_propagate_print_recurrent
+  SOURCE reference/print_recurrent.cpp SCRIPT check_recurrent.py
+  NAME "propagate: recurrent cells over 50 steps match a NumPy unrolling from the same weights")
+target_link_libraries(kindling_propagate_print_recurrent PRIVATE kindling_eigen)

@@ -422,6 +422,30 @@ elif CASE == "json":
     _, err = expect_code(2, "plan", "belt_bad.json")
     expect("layers[0].conv.kernel" in err and "larger than the padded input 4" in err,
            f"expected the kernel's key and reason in the plan error, got {err!r}")
+    # a GRU on the 1-D map (kindling/io/spec.hpp "recurrent"): measured, its gates judged at
+    # every step, the head predicted from the measured state; bad cells are exit 2 by key
+    with open("belt_gru.json", "w") as f:
+        json.dump({"input": {"width": 3, "extent": [40]},
+                   "layers": [{"width": 8, "activation": "relu", "scheme": "he-normal",
+                               "conv": {"kernel": [5], "padding": "same"}},
+                              {"recurrent": {"cell": "gru", "hidden": 16}, "label": "memory"},
+                              {"width": 4, "activation": "identity", "scheme": "glorot-uniform"}]}, f)
+    doc = json.loads(expect_code(0, "plan", "belt_gru.json", "--measure", "--batch", "16", "--trials", "4",
+                                 "--json")[0])
+    cell = [l for l in doc["layers"] if l.get("kind") == "recurrent"]
+    expect(len(doc["layers"]) == 3 and len(cell) == 1 and cell[0]["steps"] == 40 and cell[0]["gates_agree"]
+           and cell[0]["fan_in"] == 8 and 0 < cell[0]["state_variance_measured"] < 1,
+           f"the GRU row: {cell}")
+    for key, value, expected in (("steps", 0, "'layers[1].recurrent.steps' = 0"),
+                                 ("hidden", 0, "'layers[1].recurrent.hidden' = 0"),
+                                 ("cell", "elman", "'layers[1].recurrent.cell' = \"elman\"")):
+        bad = {"input": {"width": 3}, "layers": [{"width": 4, "activation": "relu", "scheme": "he-normal"},
+                                                 {"recurrent": {"cell": "gru", "hidden": 8, "steps": 5}}]}
+        bad["layers"][1]["recurrent"][key] = value
+        with open("bad_cell.json", "w") as f:
+            json.dump(bad, f)
+        _, err = expect_code(2, "plan", "bad_cell.json")
+        expect(expected in err, f"expected {expected!r} in the plan error, got {err!r}")
     svg = ET.parse("net.svg").getroot()
     texts = " ".join(t.text or "" for t in svg.iter("{http://www.w3.org/2000/svg}text"))
     for word in ("layer (depth)", "variance (log scale)", "predicted", "measured"):

@@ -1,13 +1,17 @@
-// Tests of the convolution and residual keys of kindling/io/spec.hpp: the stack a spec
-// of feature maps, convolutions and residual blocks gives, and the refusals that only the
-// stack can decide (geometry, groups, branch widths), each under its key.
+// Tests of the convolution, residual and recurrent keys of kindling/io/spec.hpp: the
+// stack a spec of feature maps, convolutions and residual blocks gives, a spec cut at its
+// recurrent cells (build_sections), and the refusals that only the stack can decide
+// (geometry, groups, branch widths, a cell's steps), each under its key.
 //
 // Sources: He et al., ICCV 2015 (Var W = 2 / fan_in, fan_in = in / groups x kernel);
-// Dumoulin & Visin 2016 (output extents); Zhang et al., ICLR 2019 (Fixup).
+// Dumoulin & Visin 2016 (output extents); Zhang et al., ICLR 2019 (Fixup); Glorot &
+// Bengio 2010 (Var W = 2 / (fan_in + fan_out) for one gate block); Saxe et al. 2014
+// (orthogonal: every entry of an n x n block has variance gain^2 / n).
 #include <doctest/doctest.h>
 
 #include <stdexcept>
 #include <string>
+#include <vector>
 
 #include "kindling/io/spec.hpp"
 
@@ -18,6 +22,22 @@ using namespace kindling;
 namespace {
 std::string message_of(const std::string& text) {
   return kindling_test::message_of<std::invalid_argument>([&] { parse_network_spec(text, "'belt.json'"); });
+}
+
+struct bad_spec {
+  const char* what;
+  std::string text;
+  const char* expected;
+};
+
+// Each spec is refused, the message naming the file and containing `expected`.
+void check_refused(const std::vector<bad_spec>& cases) {
+  for (const bad_spec& c : cases) {
+    CAPTURE(c.what);
+    const std::string m = message_of(c.text);
+    CHECK_MESSAGE(m.find("kindling network spec 'belt.json': ") == 0, "expected the message to name the file: ", m);
+    CHECK_MESSAGE(m.find(c.expected) != std::string::npos, "expected '", c.expected, "' in: ", m);
+  }
 }
 }  // namespace
 
@@ -85,14 +105,79 @@ TEST_CASE("a spec whose convolution or residual block cannot be built is refused
       {"a bad layer inside a branch", R"({"residual": {"layers": [{"width": 0, "activation": "relu", "scheme": "he-normal"}]}})",
        "'layers[0].residual.layers[0].width' = 0"},
   };
-  for (const bad_case& c : cases) {
-    CAPTURE(c.what);
-    const std::string m = message_of(input + c.layers + "]}");
-    CHECK_MESSAGE(m.find("kindling network spec 'belt.json': ") == 0, "expected the message to name the file: ", m);
-    CHECK_MESSAGE(m.find(c.expected) != std::string::npos, "expected '", c.expected, "' in: ", m);
-  }
+  std::vector<bad_spec> whole;
+  for (const bad_case& c : cases) whole.push_back({c.what, input + c.layers + "]}", c.expected});
+  check_refused(whole);
   CHECK(message_of(R"({"input": {"width": 4}, "layers": [{"width": 4, "activation": "relu", "scheme": "he-normal", "conv": {"kernel": [3]}}]})")
             .find("'layers[0].conv' is refused: a convolution needs a feature map below it") != std::string::npos);
   CHECK(message_of(R"({"input": {"width": 4, "extent": [0]}, "layers": [{"width": 4, "activation": "relu", "scheme": "he-normal"}]})")
             .find("'input.extent' = [0], expected an array of 1 to 3 positive integers") != std::string::npos);
+}
+
+TEST_CASE("a spec with 1-D convolutions, a GRU and a dense head is cut at the cell") {
+  const network_spec spec = parse_network_spec(R"({
+    "input": {"width": 3, "extent": [40]},
+    "layers": [
+      {"width": 16, "activation": "relu", "scheme": "he-normal", "conv": {"kernel": [5], "padding": "same"}},
+      {"recurrent": {"cell": "gru", "hidden": 32, "forget_bias": 0.5, "recurrent_gain": 1.5}, "label": "memory"},
+      {"width": 4, "activation": "identity", "scheme": "glorot-uniform", "label": "head"}
+    ]})");
+  CHECK_THROWS_AS(build_stack(spec), std::invalid_argument);
+  const network_sections s = build_sections(spec, {0.25});
+  REQUIRE(s.cells.size() == 1);
+  REQUIRE(s.stacks.size() == 2);
+  const recurrent_cell& c = s.cells[0];
+  CHECK(c.kind() == cell_kind::gru);
+  CHECK(c.input_width() == 16);  // the channels of the map below
+  CHECK(c.steps() == 40);        // its length
+  CHECK(c.hidden() == 32);
+  CHECK(c.forget_bias() == 0.5);
+  CHECK(c.label() == "memory");
+  CHECK(c.input_weight_variance() == doctest::Approx(2.0 / (16 + 32)).epsilon(1e-14));  // Glorot, one block
+  CHECK(c.recurrent_weight_variance() == doctest::Approx(1.5 * 1.5 / 32).epsilon(1e-14));  // orthogonal, gain 1.5
+  CHECK(s.stacks[0].depth() == 1);
+  CHECK(s.stacks[1].input_width() == 32);
+  CHECK(s.stacks[1].input_second_moment() == 0.25);
+  CHECK(s.stacks[1][0].label == "head");
+  // On features, 'steps' is the sequence length; the defaults: forget bias 1, Glorot uniform input, orthogonal recurrent.
+  const network_sections f = build_sections(parse_network_spec(
+      R"({"input": {"width": 8}, "layers": [{"recurrent": {"cell": "lstm", "hidden": 4, "steps": 7}}]})"));
+  CHECK(f.cells[0].steps() == 7);
+  CHECK(f.cells[0].forget_bias() == 1.0);
+  CHECK(f.cells[0].input_scheme() == "glorot-uniform");
+  CHECK(f.cells[0].recurrent_scheme() == "orthogonal");
+  CHECK(f.cells[0].label() == "cell1");
+  CHECK(f.stacks[1].empty());
+}
+
+TEST_CASE("a spec whose recurrent cell cannot be built is refused under its key") {
+  const std::string map = R"({"input": {"width": 4, "extent": [6]}, "layers": [)";
+  const std::string features = R"({"input": {"width": 4}, "layers": [)";
+  check_refused({
+      {"zero steps", features + R"({"recurrent": {"cell": "lstm", "hidden": 8, "steps": 0}}]})",
+       "'layers[0].recurrent.steps' = 0, expected a positive integer"},
+      {"zero hidden", features + R"({"recurrent": {"cell": "gru", "hidden": 0, "steps": 5}}]})",
+       "'layers[0].recurrent.hidden' = 0, expected a positive integer"},
+      {"unknown cell", features + R"({"recurrent": {"cell": "elman", "hidden": 8, "steps": 5}}]})",
+       "'layers[0].recurrent.cell' = \"elman\", expected one of lstm, gru"},
+      {"no cell", features + R"({"recurrent": {"hidden": 8, "steps": 5}}]})", "'layers[0].recurrent' has no key 'cell'"},
+      {"no steps on features", features + R"({"recurrent": {"cell": "gru", "hidden": 8}}]})",
+       "'layers[0].recurrent' has no key 'steps'"},
+      {"steps against the map", map + R"({"recurrent": {"cell": "gru", "hidden": 8, "steps": 5}}]})",
+       "'layers[0].recurrent.steps' = 5, expected the length of the 1-D map below, 6"},
+      {"a 2-D map below", R"({"input": {"width": 4, "extent": [6, 6]}, "layers": [{"recurrent": {"cell": "gru", "hidden": 8}}]})",
+       "'layers[0]' is refused: the map below has extent [6, 6], expected a 1-D map"},
+      {"unknown scheme", features + R"({"recurrent": {"cell": "gru", "hidden": 8, "steps": 5, "recurrent_scheme": "normal"}}]})",
+       "'layers[0].recurrent.recurrent_scheme' = \"normal\", expected one of glorot-uniform"},
+      {"unknown key", features + R"({"recurrent": {"cell": "gru", "hidden": 8, "steps": 5, "bias": 1}}]})",
+       "unknown key 'layers[0].recurrent.bias'"},
+      {"a width beside the cell", features + R"({"recurrent": {"cell": "gru", "hidden": 8, "steps": 5}, "width": 3}]})",
+       "unknown key 'layers[0].width'"},
+      {"a forget bias that is not a number", features + R"({"recurrent": {"cell": "gru", "hidden": 8, "steps": 5, "forget_bias": "x"}}]})",
+       "'layers[0].recurrent.forget_bias' = \"x\", expected a number"},
+      {"a cell inside a residual branch", features + R"({"residual": {"layers": [{"recurrent": {"cell": "gru", "hidden": 4, "steps": 5}}]}}]})",
+       "'layers[0].residual.layers[0].recurrent' is refused: a recurrent cell inside a residual branch"},
+      {"a bad layer above the cell", features + R"({"recurrent": {"cell": "gru", "hidden": 8, "steps": 5}}, {"width": 0, "activation": "relu", "scheme": "he-normal"}]})",
+       "'layers[1].width' = 0"},
+  });
 }

@@ -40,6 +40,19 @@
 // the channels, a branch whose width does not match its skip -- is refused naming the
 // key (layers[2].conv.kernel, layers[0].residual.layers) with the library's reason.
 //
+// Recurrent cells (propagate/recurrent.hpp):
+//
+//   {"recurrent": {"cell": "gru", "hidden": 64, "steps": 50, "forget_bias": 1.0,
+//                  "input_scheme": "glorot-uniform", "recurrent_scheme": "orthogonal",
+//                  "recurrent_gain": 1.0}, "label": "memory"}
+//
+// "cell" (lstm or gru) and "hidden" (its units) are required; "steps" is the number of
+// time steps (required on features, the length of a 1-D map below by default, and equal
+// to it if given); "forget_bias" the bias of the LSTM forget gate or the GRU update gate
+// (default 1); "input_scheme" (default glorot-uniform) and "recurrent_scheme" (default
+// orthogonal) one of glorot-*, he-*, lecun-* or orthogonal, "recurrent_gain" the latter's
+// gain.  A cell is a top-level layer; what follows it reads its last state (build_sections).
+//
 // Needs nlohmann-json (Debian nlohmann-json3-dev) and, for the orthogonal scheme's
 // variance, Eigen; the core of kindling needs neither.
 #ifndef KINDLING_IO_SPEC_HPP
@@ -60,6 +73,7 @@
 
 #include "../gain.hpp"
 #include "../propagate/measure.hpp"
+#include "../propagate/recurrent.hpp"
 #include "../propagate/stack.hpp"
 #include "../schemes/registry.hpp"
 #include "read_file.hpp"
@@ -87,6 +101,15 @@ struct layer_spec {
   std::string scaling = "none";
   std::uint64_t blocks = 1;
   std::string projection;
+  /// A recurrent cell ("recurrent"): its kind, hidden units, steps, forget bias, schemes.
+  bool recurrent = false;
+  std::string cell;                                  // lstm or gru
+  std::uint64_t hidden = 0;
+  std::uint64_t steps = 0;                           // 0: the length of the 1-D map below
+  double forget_bias = 1.0;
+  std::string input_scheme = "glorot-uniform";
+  std::string recurrent_scheme = "orthogonal";
+  std::optional<double> recurrent_gain;
   /// Where the layer sits in the spec (e.g. "layers[2]"), for messages.
   std::string path;
 };
@@ -308,11 +331,47 @@ inline void spec_convolution(const nlohmann::json& c, const std::string& source,
   if (c.contains("groups")) s.groups = spec_width(c["groups"], source, path + ".groups");
 }
 
+/// The schemes a recurrent cell's weights may name (no extra argument needed).
+inline const std::vector<std::string>& spec_cell_scheme_names() {
+  static const std::vector<std::string> names{"glorot-uniform", "glorot-normal", "he-uniform", "he-normal",
+                                              "lecun-uniform",  "lecun-normal",  "orthogonal"};
+  return names;
+}
+
+inline void spec_recurrent(const nlohmann::json& l, const std::string& source, const std::string& path, layer_spec& s) {
+  spec_keys(l, source, path, {"recurrent", "label"});
+  const nlohmann::json& r = l["recurrent"];
+  const std::string rpath = path + ".recurrent";
+  spec_keys(r, source, rpath,
+            {"cell", "hidden", "steps", "forget_bias", "input_scheme", "recurrent_scheme", "recurrent_gain"});
+  s.recurrent = true;
+  s.cell = spec_name(spec_required(r, source, rpath, "cell"), source, rpath + ".cell", {"lstm", "gru"});
+  s.hidden = spec_width(spec_required(r, source, rpath, "hidden"), source, rpath + ".hidden");
+  if (s.hidden > (std::uint64_t{1} << 16)) spec_fail(source, rpath + ".hidden", spec_value_text(r["hidden"]), "at most 65536 units");
+  if (r.contains("steps")) {
+    s.steps = spec_width(r["steps"], source, rpath + ".steps");
+    if (s.steps > (std::uint64_t{1} << 16)) spec_fail(source, rpath + ".steps", spec_value_text(r["steps"]), "at most 65536 steps");
+  }
+  if (r.contains("forget_bias")) s.forget_bias = spec_number(r["forget_bias"], source, rpath + ".forget_bias", false, false);
+  if (r.contains("input_scheme")) {
+    s.input_scheme = spec_name(r["input_scheme"], source, rpath + ".input_scheme", spec_cell_scheme_names());
+  }
+  if (r.contains("recurrent_scheme")) {
+    s.recurrent_scheme = spec_name(r["recurrent_scheme"], source, rpath + ".recurrent_scheme", spec_cell_scheme_names());
+  }
+  if (r.contains("recurrent_gain")) s.recurrent_gain = spec_gain(r["recurrent_gain"], source, rpath + ".recurrent_gain");
+  if (l.contains("label")) s.label = spec_name(l["label"], source, path + ".label", {});
+}
+
 inline layer_spec spec_layer(const nlohmann::json& l, const std::string& source, const std::string& path) {
   layer_spec s;
   s.path = path;
   if (l.is_object() && l.contains("residual")) {
     spec_residual(l, source, path, s);
+    return s;
+  }
+  if (l.is_object() && l.contains("recurrent")) {
+    spec_recurrent(l, source, path, s);
     return s;
   }
   spec_keys(l, source, path, {"width", "activation", "scheme", "gain", "bias_variance", "slope", "std", "label", "conv"});
@@ -347,6 +406,9 @@ inline layer_spec spec_layer(const nlohmann::json& l, const std::string& source,
 }  // namespace detail
 
 inline layer_stack build_stack(const network_spec& spec);
+namespace detail {
+inline void build_all_sections(const network_spec& spec);  // build_sections, for its checks
+}
 
 /// Parses the JSON text of a network spec; `source` names it in messages.
 inline network_spec parse_network_spec(const std::string& text, const std::string& source = "(text)") {
@@ -391,7 +453,7 @@ inline network_spec parse_network_spec(const std::string& text, const std::strin
   spec.layers = spec_layers(spec_required(doc, source, "(top)", "layers"), source, "layers");
   // What only the stack can check (geometry, channels, branch widths), under its key.
   try {
-    build_stack(spec);
+    detail::build_all_sections(spec);
   } catch (const std::invalid_argument& e) {
     const std::string what = e.what(), named = "kindling network spec: ";
     throw std::invalid_argument("kindling network spec " + source + ": " +
@@ -456,6 +518,11 @@ inline std::string spec_key_of(const layer_spec& l, const std::string& what) {
 
 inline void spec_add_layers(layer_stack& stack, const std::vector<layer_spec>& layers) {
   for (const layer_spec& l : layers) {
+    if (l.recurrent) {
+      throw std::invalid_argument("kindling network spec: '" + l.path + ".recurrent' is refused: a recurrent cell "
+                                  "inside a residual branch, expected recurrent cells only in the top-level "
+                                  "'layers'");
+    }
     try {
       if (l.residual) {
         layer_stack branch = stack.top_extent().empty() ? layer_stack(stack.top_width())
@@ -508,12 +575,96 @@ inline void spec_add_layers(layer_stack& stack, const std::vector<layer_spec>& l
 /// He schemes under leaky_relu use its slope (He et al. 2015, eq. 14).  Convolutions are
 /// placed on the map below them, residual branches read the top of the stack.
 inline layer_stack build_stack(const network_spec& spec) {
+  for (const layer_spec& l : spec.layers) {
+    if (l.recurrent) {
+      throw std::invalid_argument("kindling network spec: '" + l.path + "' is a recurrent cell, expected a stack "
+                                  "without cells here (build_sections cuts a spec at its cells)");
+    }
+  }
   layer_stack stack = spec.input_extent.empty()
                           ? layer_stack(spec.input_width, spec.input_variance)
                           : layer_stack::feature_maps(spec.input_width, spec.input_extent, spec.input_variance);
   detail::spec_add_layers(stack, spec.layers);
   return stack;
 }
+
+/// A spec cut at its recurrent cells: stacks[k] is the part below cells[k] (it may have
+/// no layers) and stacks.back() the part above the last cell, which reads the cell's last
+/// state (hidden features).  The state's second moment has no closed form
+/// (propagate/recurrent.hpp): the stack above cell k is built with input second moment
+/// state_moments[k] (1 when not given; `kindling plan` passes the moment it measured).
+/// A cell reads the map below it as a sequence when it is 1-D (channels the features,
+/// the axis the steps: "steps" may be left out, or must equal its length); on features
+/// it reads a fresh input of that width at each of its "steps" steps.
+struct network_sections {
+  std::vector<layer_stack> stacks;
+  std::vector<recurrent_cell> cells;
+  std::vector<std::string> cell_paths;  // e.g. "layers[3]", for messages
+};
+
+inline network_sections build_sections(const network_spec& spec, const std::vector<double>& state_moments = {}) {
+  network_sections out;
+  layer_stack current = spec.input_extent.empty()
+                            ? layer_stack(spec.input_width, spec.input_variance)
+                            : layer_stack::feature_maps(spec.input_width, spec.input_extent, spec.input_variance);
+  std::vector<layer_spec> pending;
+  for (const layer_spec& l : spec.layers) {
+    if (!l.recurrent) {
+      pending.push_back(l);
+      continue;
+    }
+    detail::spec_add_layers(current, pending);
+    pending.clear();
+    const std::vector<std::uint64_t> extent = current.top_extent();
+    const std::string key = l.path + ".recurrent.steps";
+    std::uint64_t steps = l.steps, in = current.top_features();
+    if (extent.size() > 1) {
+      throw std::invalid_argument("kindling network spec: '" + l.path + "' is refused: the map below has extent " +
+                                  detail::shape_text(extent) + ", expected a 1-D map (its axis the time steps) or "
+                                  "features below a recurrent cell");
+    }
+    if (extent.size() == 1) {
+      if (steps != 0 && steps != extent[0]) {
+        throw std::invalid_argument("kindling network spec: '" + key + "' = " + std::to_string(steps) +
+                                    ", expected the length of the 1-D map below, " + std::to_string(extent[0]) +
+                                    " (or no 'steps')");
+      }
+      steps = extent[0];
+      in = current.top_width();
+    } else if (steps == 0) {
+      throw std::invalid_argument("kindling network spec: '" + l.path + ".recurrent' has no key 'steps', expected "
+                                  "the number of time steps (the layer below is not a 1-D map)");
+    }
+    if (steps > (std::uint64_t{1} << 16)) {
+      throw std::invalid_argument("kindling network spec: '" + key + "' = " + std::to_string(steps) +
+                                  " (the map below), expected at most 65536 steps");
+    }
+    const cell_kind kind = l.cell == "lstm" ? cell_kind::lstm : cell_kind::gru;
+    const std::uint64_t g = gate_blocks(kind);
+    packed_scheme input, recurrent;
+    detail::with_spec_scheme(l.input_scheme, {}, [&](const auto& sc) {
+      input = packed_scheme::of(sc, packed_dense(g, in, l.hidden));
+    });
+    scheme_arguments_list given;
+    if (l.recurrent_gain) given.emplace_back("gain", *l.recurrent_gain);
+    detail::with_spec_scheme(l.recurrent_scheme, given, [&](const auto& sc) {
+      recurrent = packed_scheme::of(sc, packed_dense(g, l.hidden, l.hidden));
+    });
+    const std::string label = l.label.empty() ? "cell" + std::to_string(out.cells.size() + 1) : l.label;
+    out.stacks.push_back(std::move(current));
+    out.cells.emplace_back(kind, in, l.hidden, steps, std::move(input), std::move(recurrent), l.forget_bias, label);
+    out.cell_paths.push_back(l.path);
+    const std::size_t k = out.cells.size() - 1;
+    current = layer_stack(l.hidden, k < state_moments.size() ? state_moments[k] : 1.0);
+  }
+  detail::spec_add_layers(current, pending);
+  out.stacks.push_back(std::move(current));
+  return out;
+}
+
+namespace detail {
+inline void build_all_sections(const network_spec& spec) { (void)build_sections(spec); }
+}  // namespace detail
 
 }  // namespace kindling
 
