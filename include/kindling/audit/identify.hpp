@@ -37,7 +37,10 @@
 //   "Glorot <draw>, gain g" on fan-average, g = sqrt(Var (fan_in + fan_out) / 2)
 //     (Glorot & Bengio 2010 with a gain, common practice);
 //   "He <draw>, slope a" on fan-out, when Var fan_out <= 2;
-//   "variance scaling <draw>, scale s" on fan-in, s = Var fan_in, when fan-in has no slope.
+//   "LeCun <draw>, gain g" on fan-in, g = sqrt(Var fan_in), when fan-in has no slope
+//     (Var = g^2 / fan_in, the spelling schemes/registry.hpp takes).
+// A fixed candidate the three names cover only with a parameter is named the same way
+// (scale 2 on fan-average is "Glorot, gain 1.414"; scale 1 on fan-out "He, slope 1").
 // Their KS p-values are optimistic (the variance was fitted to the same data, as in
 // Lilliefors' test); they rank and name, they do not test.
 //
@@ -90,13 +93,26 @@ struct identification {
 
 namespace detail {
 
-inline std::string candidate_name(const fan_scaled& r) {
-  const char* draw = r.draw == draw_shape::uniform ? "uniform" : r.draw == draw_shape::normal ? "normal"
-                                                                                                : "truncated normal";
-  if (r.scale == 2 && r.basis != fan_basis::average) return std::string("He ") + draw;
-  if (r.scale == 1 && r.basis == fan_basis::average) return std::string("Glorot ") + draw;
-  if (r.scale == 1 && r.basis == fan_basis::in) return std::string("LeCun ") + draw;
-  return "variance scaling " + short_number(r.scale) + " " + draw;
+// Names a candidate as the registry would spell it (schemes/registry.hpp), so that a
+// name identify prints is one --expect and parse_scheme take: He with a slope, Glorot
+// or LeCun with a gain (Var W = gain^2 / fan); fan_scaled only for a rule none of them is.
+inline void name_candidate(scheme_candidate& c, const fan_scaled& r, const std::string& draw) {
+  const auto named = [&](const char* family, const char* what, double value) {
+    c.scheme = std::string(family) + " " + draw;
+    c.parameter = what == nullptr ? "" : std::string(what) + " " + short_number(value, 4);
+    c.parameter_value = what == nullptr ? 0 : value;
+  };
+  if (r.scale == 2 && r.basis != fan_basis::average) return named("He", nullptr, 0);
+  if (r.scale == 1 && r.basis == fan_basis::average) return named("Glorot", nullptr, 0);
+  if (r.scale == 1 && r.basis == fan_basis::in) return named("LeCun", nullptr, 0);
+  if (r.basis == fan_basis::average) return named("Glorot", "gain", std::sqrt(r.scale));
+  if (r.basis == fan_basis::in && r.scale > 2) return named("LeCun", "gain", std::sqrt(r.scale));
+  if (r.scale <= 2) return named("He", "slope", std::sqrt(2 / r.scale - 1));  // He et al. 2015
+  return named("fan-scaled", "scale", r.scale);
+}
+
+inline std::string draw_name(draw_shape d) {
+  return d == draw_shape::uniform ? "uniform" : d == draw_shape::normal ? "normal" : "truncated normal";
 }
 
 // Unit roundoff of an element type (half its machine epsilon) and its subnormal spacing
@@ -216,23 +232,19 @@ inline std::string centre_tap_structure(const gathered& g, const centre_tap_geom
 // The fitted-variance candidates of one draw (see the top of the header), best first.
 inline std::vector<scheme_candidate> fitted_candidates(draw_shape d, double variance, const fans& f) {
   std::vector<scheme_candidate> out;
-  const char* draw = d == draw_shape::uniform ? "uniform" : d == draw_shape::normal ? "normal" : "truncated normal";
-  const auto add = [&](const char* family, fan_basis b, const std::string& what, double value) {
+  const auto add = [&](fan_basis b) {
     scheme_candidate c;
     c.rule = fan_scaled{variance * fan_scaled{1, b, d, 2}.fan(f), b, d, 2};
-    c.scheme = std::string(family) + " " + draw;
+    name_candidate(c, c.rule, draw_name(d));
     c.fan = fan_text(b, f);
-    c.parameter = what + " " + short_number(value, 4);
-    c.parameter_value = value;
     out.push_back(c);
   };
   const double s_in = variance * static_cast<double>(f.fan_in);
   const double s_out = variance * static_cast<double>(f.fan_out);
-  const double s_avg = variance * 0.5 * (static_cast<double>(f.fan_in) + static_cast<double>(f.fan_out));
-  if (s_in <= 2) add("He", fan_basis::in, "slope", std::sqrt(2 / s_in - 1));
-  add("Glorot", fan_basis::average, "gain", std::sqrt(s_avg));
-  if (s_out <= 2) add("He", fan_basis::out, "slope", std::sqrt(2 / s_out - 1));
-  if (s_in > 2) add("variance scaling", fan_basis::in, "scale", s_in);
+  if (s_in <= 2) add(fan_basis::in);  // He on fan-in with a slope
+  add(fan_basis::average);            // Glorot with a gain
+  if (s_out <= 2) add(fan_basis::out);
+  if (s_in > 2) add(fan_basis::in);   // LeCun with a gain
   return out;
 }
 
@@ -311,7 +323,7 @@ inline identification identify(const gathered& g, const weight_info& w, const sh
         const fan_scaled rule{scale, b, d, 2};
         const declared dd = visit_distribution(rule.distribution(f), [](const auto& x) { return declare(x); });
         scheme_candidate c;
-        c.scheme = candidate_name(rule);
+        name_candidate(c, rule, draw_name(d));
         c.fan = fan_text(b, f);
         c.rule = rule;
         c.ks_statistic = ks_statistic_sorted(sorted, [&dd](double x) { return dd.cdf(x); });
