@@ -1,4 +1,4 @@
-// Tests of the convolution and residual keys of kindling/io/spec.hpp: the stack a spec
+// Tests of the convolution and residual keys of examples/tool/spec.hpp: the stack a spec
 // of feature maps, convolutions and residual blocks gives, and the refusals that only the
 // stack can decide (geometry, groups, branch widths), each under its key.
 //
@@ -9,7 +9,7 @@
 #include <stdexcept>
 #include <string>
 
-#include "kindling/io/spec.hpp"
+#include "../../examples/tool/spec.hpp"
 
 #include "../support/errors.hpp"
 
