@@ -101,7 +101,7 @@ TEST_CASE("dense layers have fan_in = inputs and fan_out = outputs in either sto
     CHECK_NOTHROW(d.check_shape({300, 100}));
     const std::string e = error_of([&] { d.check_shape({100, 300}); });
     CHECK_MESSAGE(contains(e, "argument 'shape' = [100, 300]"), e);
-    CHECK_MESSAGE(contains(e, "dimension 0 (in_features), expected 300"), e);
+    CHECK_MESSAGE(contains(e, "expected 300 in dimension 0 (in_features)"), e);
   }
 }
 
@@ -186,7 +186,7 @@ TEST_CASE("an embedding table has fan_in = dimension and fan_out = vocabulary") 
   CHECK(e.layer_fans() == fans{256, 50000, 1});
   CHECK(e.layer_fans() == kindling::dense(256, 50000).layer_fans());
   const std::string err = error_of([&] { e.check_shape({256, 50000}); });
-  CHECK_MESSAGE(contains(err, "dimension 0 (vocabulary), expected 50000"), err);
+  CHECK_MESSAGE(contains(err, "expected 50000 in dimension 0 (vocabulary)"), err);
 }
 
 TEST_CASE("packed gate blocks each get the fans of one block, at their own offset") {

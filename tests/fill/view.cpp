@@ -100,7 +100,7 @@ TEST_CASE("sub() narrows a view to a region of it in global coordinates, sharing
   CHECK(inner.data() == memory.data() + 3 * 8 + 5);
   SUBCASE("a region outside the view is refused") {
     const std::string m = message_of<std::invalid_argument>([&] { (void)part.sub(region({1, 3}, {2, 2})); });
-    CHECK_MESSAGE(mentions(m, "'region' (offset [1, 3] extent [2, 2]) of sub() leaves"), m);
+    CHECK_MESSAGE(mentions(m, "argument 'region' = offset [1, 3] extent [2, 2], expected a region inside this view's region"), m);
     CHECK_THROWS_AS((void)part.sub(region({2, 5}, {3, 3})), std::invalid_argument);
   }
 }
@@ -199,7 +199,7 @@ TEST_CASE("a view rejects each bad argument with an exception naming it") {
     const std::string m = message_of<std::length_error>([&] {
       strided_view<float> v(memory.data(), {4, 4}, region::whole({4, 4}), strides{std::int64_t{1} << 62, 1});
     });
-    CHECK_MESSAGE(mentions(m, "spans more than 2^63 - 1 elements"), m);
+    CHECK_MESSAGE(mentions(m, "span more than 2^63 - 1 elements"), m);
   }
   CHECK_MESSAGE(memory == before, "a refused view must leave the memory as it was");
 }
