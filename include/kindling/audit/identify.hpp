@@ -59,7 +59,7 @@
 
 #include "../schemes/detail/centre_tap.hpp"
 #include "conformance.hpp"
-#include "detail/centre_taps.hpp"
+#include "detail/centre_split.hpp"
 #include "kolmogorov.hpp"
 
 namespace kindling {
@@ -366,8 +366,7 @@ identification identify_scheme(const strided_view<E>& v, const weight_info& w) {
 template <class E, class Layer, class = decltype(std::declval<const Layer&>().layer_fans())>
 identification identify_scheme(const strided_view<E>& v, const Layer& layer) {
   static_assert(!detail::is_packed<Layer>::value, "identify the blocks of a packed weight one by one");
-  layer.check_shape(detail::shape_vector(v.global_shape()));
-  return identify_scheme(v, weight_info{layer.layer_fans(), detail::layout_of(layer)});
+  return identify_scheme(v, weight_info_of(layer, v.global_shape()));
 }
 
 }  // namespace kindling
