@@ -97,23 +97,15 @@ namespace detail {
 // The .npy type of an element type, and an element's bits (IEEE 754 binary16, bfloat16,
 // binary32 or binary64) as the file stores them, before the byte order.
 template <class E>
-struct npy_of;
-template <>
-struct npy_of<float16> {
-  static constexpr npy_type type = npy_type::f16;
-};
-template <>
-struct npy_of<bfloat16> {
-  static constexpr npy_type type = npy_type::bf16;
-};
-template <>
-struct npy_of<float> {
-  static constexpr npy_type type = npy_type::f32;
-};
-template <>
-struct npy_of<double> {
-  static constexpr npy_type type = npy_type::f64;
-};
+constexpr npy_type npy_type_of() noexcept {
+  static_assert(std::is_same<E, float16>::value || std::is_same<E, bfloat16>::value ||
+                    std::is_same<E, float>::value || std::is_same<E, double>::value,
+                "a .npy array holds float16, bfloat16, float or double");
+  if constexpr (std::is_same<E, float16>::value) return npy_type::f16;
+  if constexpr (std::is_same<E, bfloat16>::value) return npy_type::bf16;
+  if constexpr (std::is_same<E, float>::value) return npy_type::f32;
+  return npy_type::f64;
+}
 
 template <class E>
 std::uint64_t npy_bits(E x) noexcept {
@@ -490,7 +482,7 @@ template <class E>
 npy_array make_npy(std::vector<std::uint64_t> shape, const std::vector<E>& values) {
   npy_array a;
   a.shape = std::move(shape);
-  a.type = detail::npy_of<E>::type;
+  a.type = detail::npy_type_of<E>();
   if (a.size() != values.size()) {
     throw std::length_error("kindling::make_npy: argument 'values' has " + std::to_string(values.size()) +
                             " elements, expected " + std::to_string(a.size()) + " for shape " +
