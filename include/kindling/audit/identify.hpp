@@ -248,24 +248,26 @@ inline std::vector<scheme_candidate> fitted_candidates(draw_shape d, double vari
   return out;
 }
 
-inline identification identify(const gathered& g, const weight_info& w, const shape& global, const precision& p) {
-  const fans& f = w.fans;
-  identification out;
+// Names g by its structure, in the order of the header comment (non-finite, constant,
+// identity, centre-tap identity or delta-orthogonal, orthogonal, sparse): true, with
+// out->structure (and out->gain) set, when it has one.
+inline bool name_structure(const gathered& g, const weight_info& w, const shape& global, const precision& p,
+                           identification* out) {
   if (g.non_finite != 0) {
-    out.structure = "non-finite: " + non_finite_sentence(g);
-    return out;
+    out->structure = "non-finite: " + non_finite_sentence(g);
+    return true;
   }
   const auto [lo, hi] = std::minmax_element(g.values.begin(), g.values.end());
   if (*lo == *hi) {
-    out.structure = "constant " + short_number(*lo, 6);
-    return out;
+    out->structure = "constant " + short_number(*lo, 6);
+    return true;
   }
   if (g.whole && g.rows > 1 && g.cols > 1) {
     double gain = 0;
     if (is_dense_layout(w.layout) && global.rank() == 2 && dense_identity(g, &gain)) {
-      out.structure = "identity, gain " + short_number(gain, 4);
-      out.gain = gain;
-      return out;
+      out->structure = "identity, gain " + short_number(gain, 4);
+      out->gain = gain;
+      return true;
     }
     if (is_convolution_layout(w.layout) && global.rank() >= 3 && global.rank() <= 5) {
       bool geometry_ok = true;
@@ -278,16 +280,16 @@ inline identification identify(const gathered& g, const weight_info& w, const sh
       if (geometry_ok && geo.taps > 1) {
         const std::string what = centre_tap_structure(g, geo, global, w.layout, p, &gain);
         if (!what.empty()) {
-          out.structure = what + ", gain " + short_number(gain, 4);
-          out.gain = gain;
-          return out;
+          out->structure = what + ", gain " + short_number(gain, 4);
+          out->gain = gain;
+          return true;
         }
       }
     }
     if (orthogonal_units(g, p, &gain)) {
-      out.structure = "orthogonal, gain " + short_number(gain, 4);
-      out.gain = gain;
-      return out;
+      out->structure = "orthogonal, gain " + short_number(gain, 4);
+      out->gain = gain;
+      return true;
     }
   }
   if (g.whole && g.cols > 1) {  // the same number k < cols of nonzeros in every unit: sparse
@@ -300,12 +302,18 @@ inline identification identify(const gathered& g, const weight_info& w, const sh
       same = c == k;
     }
     if (same && k * 2 <= g.cols) {
-      out.structure = "sparse, " + std::to_string(k) + " nonzero a unit";
-      return out;
+      out->structure = "sparse, " + std::to_string(k) + " nonzero a unit";
+      return true;
     }
   }
-  std::vector<double> sorted = g.values;
+  return false;
+}
+
+// Every fan-scaled candidate for the values, best first (see the header comment): the
+// fixed rules of each draw, and the fitted ones for a draw none of them fits.
+inline std::vector<scheme_candidate> rank_candidates(std::vector<double> sorted, const fans& f) {
   std::sort(sorted.begin(), sorted.end());
+  std::vector<scheme_candidate> ranking;
   // Mean square and its relative standard error, for the variance check and the fitted candidates.
   double m2 = 0, m4 = 0;
   for (double x : sorted) {
@@ -329,24 +337,30 @@ inline identification identify(const gathered& g, const weight_info& w, const sh
         c.ks_statistic = ks_statistic_sorted(sorted, [&dd](double x) { return dd.cdf(x); });
         c.variance_fits = std::abs(std::log(m2 / rule.variance(f))) <= 3.89 * rel_se;
         some_fixed_fits = some_fixed_fits || c.variance_fits;
-        out.ranking.push_back(c);
+        ranking.push_back(c);
       }
     }
     if (some_fixed_fits || !(m2 > 0) || rel_se == 0) continue;
     for (scheme_candidate& c : fitted_candidates(d, m2, f)) {
       const declared dd = visit_distribution(c.rule.distribution(f), [](const auto& x) { return declare(x); });
       c.ks_statistic = ks_statistic_sorted(sorted, [&dd](double x) { return dd.cdf(x); });
-      out.ranking.push_back(c);
+      ranking.push_back(c);
     }
   }
   // Candidates whose variance the mean square rejects go last: the variance test is far
   // more powerful against a wrong scale than the KS distance (a 4% variance error is 7
   // standard errors at 65536 values, yet moves the normal CDF by only 0.005).
-  std::stable_sort(out.ranking.begin(), out.ranking.end(), [](const scheme_candidate& a, const scheme_candidate& b) {
+  std::stable_sort(ranking.begin(), ranking.end(), [](const scheme_candidate& a, const scheme_candidate& b) {
     if (a.variance_fits != b.variance_fits) return a.variance_fits;
     return a.ks_statistic < b.ks_statistic;
   });
-  for (scheme_candidate& c : out.ranking) c.score = ks_p_value(sorted.size(), c.ks_statistic).p_value;
+  for (scheme_candidate& c : ranking) c.score = ks_p_value(sorted.size(), c.ks_statistic).p_value;
+  return ranking;
+}
+
+inline identification identify(const gathered& g, const weight_info& w, const shape& global, const precision& p) {
+  identification out;
+  if (!name_structure(g, w, global, p, &out)) out.ranking = rank_candidates(g.values, w.fans);
   return out;
 }
 
