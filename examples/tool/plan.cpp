@@ -94,6 +94,61 @@ void check_measure_memory(const layer_stack& stack, std::uint64_t batch) {
   }
 }
 
+// The SVG of --svg: predicted (and measured) variances per layer, warned layers marked.
+void write_plan_svg(const network_spec& spec, const plan_options& o, const layer_stack& stack,
+                    const std::vector<layer_prediction>& predicted, const propagation_report& measured,
+                    std::vector<plot_series> series) {
+  if (!o.measure) series.resize(2);
+  const std::string title = spec.name.empty() ? o.spec : spec.name;
+  const std::string subtitle = "mean-field prediction" +
+                               (o.measure ? std::string(" and the median of ") + std::to_string(o.trials) +
+                                                " draws of the weights, " + std::to_string(o.batch) +
+                                                " samples each (seed " + std::to_string(o.seed) + ")"
+                                          : std::string(" (add --measure for measured points)"));
+  std::vector<std::string> names;
+  std::vector<bool> warned;
+  for (std::size_t l = 0; l < stack.depth(); ++l) {
+    names.push_back(stack[l].label);
+    warned.push_back(!predicted[l].warnings.empty() || (o.measure && !measured.layers[l].agrees));
+  }
+  write_output("--svg", o.svg, variance_plot_svg(title, subtitle, series, stack.depth(), names, warned));
+}
+
+// The text table of `kindling plan` (without --json): one line a layer, then the
+// method of the measurement and the warnings.
+void print_plan_table(const network_spec& spec, const plan_options& o, const layer_stack& stack,
+                      const std::vector<layer_prediction>& predicted, const propagation_report& measured,
+                      const json& warnings) {
+  std::string extent;  // a feature map: its channels over the extent
+  for (std::size_t d = 0; d < spec.input_extent.size(); ++d) extent += (d ? " x " : "") + std::to_string(spec.input_extent[d]);
+  std::printf("%s: input %llu %s, E[x^2] = %s\n", spec.name.empty() ? o.spec.c_str() : spec.name.c_str(),
+              static_cast<unsigned long long>(spec.input_width),
+              extent.empty() ? "features" : ("channels over " + extent + " positions").c_str(),
+              number_text(spec.input_variance).c_str());
+  std::printf("%-3s %-9s %6s %7s %-10s %-14s %9s %11s %11s", "#", "layer", "fan_in", "fan_out", "activation",
+              "scheme", "weight_sd", "fwd_var", "bwd_var");
+  if (o.measure) std::printf(" %11s %7s %11s %7s  %s", "fwd_med", "x/", "bwd_med", "x/", "agrees");
+  std::printf("\n");
+  for (std::size_t l = 0; l < stack.depth(); ++l) {
+    const stack_layer& L = stack[l];
+    const layer_prediction& p = predicted[l];
+    std::printf("%-3zu %-9s %6llu %7llu %-10s %-14s %9s %11s %11s", l + 1, L.label.c_str(),
+                static_cast<unsigned long long>(L.fans.fan_in), static_cast<unsigned long long>(L.fans.fan_out),
+                std::string(L.act.name()).c_str(), L.scheme.c_str(), std_text(L.weight_variance).c_str(),
+                number_text(p.preactivation_variance).c_str(), number_text(p.gradient_variance).c_str());
+    if (o.measure) {
+      const layer_comparison& c = measured.layers[l];
+      std::printf(" %11s %7s %11s %7s  %s", number_text(c.preactivation.median).c_str(),
+                  number_text(std::exp(c.preactivation.spread), 3).c_str(), number_text(c.gradient.median).c_str(),
+                  number_text(std::exp(c.gradient.spread), 3).c_str(), c.agrees ? "yes" : "NO");
+    }
+    std::printf("\n");
+  }
+  if (o.measure) std::printf("%s\n", measured.method().c_str());
+  for (const auto& w : warnings) std::printf("warning: %s\n", w.get<std::string>().c_str());
+  if (!o.svg.empty()) std::printf("wrote %s\n", o.svg.c_str());
+}
+
 }  // namespace
 
 int run_plan(const plan_options& o) {
@@ -170,22 +225,7 @@ int run_plan(const plan_options& o) {
     }
     layers.push_back(row);
   }
-  if (!o.svg.empty()) {
-    if (!o.measure) series.resize(2);
-    const std::string title = spec.name.empty() ? o.spec : spec.name;
-    const std::string subtitle = "mean-field prediction" +
-                                 (o.measure ? std::string(" and the median of ") + std::to_string(o.trials) +
-                                                  " draws of the weights, " + std::to_string(o.batch) +
-                                                  " samples each (seed " + std::to_string(o.seed) + ")"
-                                            : std::string(" (add --measure for measured points)"));
-    std::vector<std::string> names;
-    std::vector<bool> warned;
-    for (std::size_t l = 0; l < stack.depth(); ++l) {
-      names.push_back(stack[l].label);
-      warned.push_back(!predicted[l].warnings.empty() || (o.measure && !measured.layers[l].agrees));
-    }
-    write_output("--svg", o.svg, variance_plot_svg(title, subtitle, series, stack.depth(), names, warned));
-  }
+  if (!o.svg.empty()) write_plan_svg(spec, o, stack, predicted, measured, series);
   if (o.json) {
     json out = {{"layers", layers}, {"warnings", warnings}};
     if (!spec.name.empty()) out["name"] = spec.name;
@@ -197,34 +237,7 @@ int run_plan(const plan_options& o) {
     }
     std::printf("%s\n", out.dump(2).c_str());
   } else {
-    std::string extent;  // a feature map: its channels over the extent
-    for (std::size_t d = 0; d < spec.input_extent.size(); ++d) extent += (d ? " x " : "") + std::to_string(spec.input_extent[d]);
-    std::printf("%s: input %llu %s, E[x^2] = %s\n", spec.name.empty() ? o.spec.c_str() : spec.name.c_str(),
-                static_cast<unsigned long long>(spec.input_width),
-                extent.empty() ? "features" : ("channels over " + extent + " positions").c_str(),
-                number_text(spec.input_variance).c_str());
-    std::printf("%-3s %-9s %6s %7s %-10s %-14s %9s %11s %11s", "#", "layer", "fan_in", "fan_out", "activation",
-                "scheme", "weight_sd", "fwd_var", "bwd_var");
-    if (o.measure) std::printf(" %11s %7s %11s %7s  %s", "fwd_med", "x/", "bwd_med", "x/", "agrees");
-    std::printf("\n");
-    for (std::size_t l = 0; l < stack.depth(); ++l) {
-      const stack_layer& L = stack[l];
-      const layer_prediction& p = predicted[l];
-      std::printf("%-3zu %-9s %6llu %7llu %-10s %-14s %9s %11s %11s", l + 1, L.label.c_str(),
-                  static_cast<unsigned long long>(L.fans.fan_in), static_cast<unsigned long long>(L.fans.fan_out),
-                  std::string(L.act.name()).c_str(), L.scheme.c_str(), std_text(L.weight_variance).c_str(),
-                  number_text(p.preactivation_variance).c_str(), number_text(p.gradient_variance).c_str());
-      if (o.measure) {
-        const layer_comparison& c = measured.layers[l];
-        std::printf(" %11s %7s %11s %7s  %s", number_text(c.preactivation.median).c_str(),
-                    number_text(std::exp(c.preactivation.spread), 3).c_str(), number_text(c.gradient.median).c_str(),
-                    number_text(std::exp(c.gradient.spread), 3).c_str(), c.agrees ? "yes" : "NO");
-      }
-      std::printf("\n");
-    }
-    if (o.measure) std::printf("%s\n", measured.method().c_str());
-    for (const auto& w : warnings) std::printf("warning: %s\n", w.get<std::string>().c_str());
-    if (!o.svg.empty()) std::printf("wrote %s\n", o.svg.c_str());
+    print_plan_table(spec, o, stack, predicted, measured, warnings);
   }
   return agrees ? exit_ok : exit_check_failed;
 }
