@@ -2,8 +2,8 @@
 // (IEEE 754 round to nearest, ties to even) in every element type, inside the view's
 // region only, whatever the executor; a non-finite value is refused before anything is
 // written. The expected bit patterns: float 0x3dcccccd and binary16 0x2e66 for 0.1 are
-// numpy.float32(0.1) and numpy.float16(0.1) viewed as integers (numpy 1.x, checked when
-// this test was written); bfloat16 0x3dcd is the float's upper half rounded to nearest
+// numpy.float32(0.1) and numpy.float16(0.1) viewed as integers (numpy 1.24 with
+// /usr/bin/python3, REFERENCES.md); bfloat16 0x3dcd is the float's upper half rounded to nearest
 // even (0x3dcc_cccd: the dropped half 0xcccd is above 0x8000, so round up).
 #include "kindling/schemes/constant.hpp"
 
