@@ -177,17 +177,11 @@ json report_json(const audit_report& r) {
   return {{"subject", r.subject()}, {"passed", r.passed()}, {"findings", findings}};
 }
 
-// A candidate's name in the tool's spellings: "He truncated normal" -> he-truncated-normal.
-// identify's general rule on fan-in ("variance scaling normal", scale s) is what --expect
-// calls lecun-normal with --gain sqrt(s) (Var W = gain^2 / fan_in), so it is given that
-// name, which --expect accepts, rather than a name no option takes.
+// A candidate's name in the tool's spellings: "He truncated normal" -> he-truncated-normal
+// (identify names candidates as the registry does, so --expect takes the name back).
 std::string candidate_scheme(const scheme_candidate& c) {
-  const std::string general = "variance scaling ";
-  const std::string family = c.scheme.rfind(general, 0) == 0 && c.rule.basis == fan_basis::in
-                                 ? "lecun " + c.scheme.substr(general.size())
-                                 : c.scheme;
   std::string name;
-  for (char ch : family) name += ch == ' ' ? '-' : static_cast<char>(std::tolower(static_cast<unsigned char>(ch)));
+  for (char ch : c.scheme) name += ch == ' ' ? '-' : static_cast<char>(std::tolower(static_cast<unsigned char>(ch)));
   return name;
 }
 

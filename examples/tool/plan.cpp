@@ -20,13 +20,13 @@
 #include <nlohmann/json.hpp>
 
 #include <kindling/io/npy.hpp>
-#include <kindling/io/spec.hpp>
 #include <kindling/propagate/mean_field.hpp>
 #include <kindling/propagate/measure.hpp>
 #include <kindling/propagate/recurrent.hpp>
 
 #include "output.hpp"
 #include "plot.hpp"
+#include "spec.hpp"
 #include "tool.hpp"
 
 namespace kindling::tool {

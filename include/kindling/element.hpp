@@ -147,22 +147,19 @@ struct element_codec<double> {
   static double make(bits b) noexcept { return double_from_bits(b); }
   static double value(bits b) noexcept { return double_from_bits(b); }
 };
-template <>
-struct element_codec<float16> {
+// The 16-bit types: computed in float, rounded by their own rule.
+template <class H, H (*round_from_float)(float) noexcept>
+struct half_codec {
   using bits = std::uint16_t;
   static constexpr bits sign = 0x8000u;
-  static bits round(float v) noexcept { return round_to_float16(v).bits; }
-  static float16 make(bits b) noexcept { return {b}; }
-  static double value(bits b) noexcept { return static_cast<double>(to_float(float16{b})); }
+  static bits round(float v) noexcept { return round_from_float(v).bits; }
+  static H make(bits b) noexcept { return {b}; }
+  static double value(bits b) noexcept { return static_cast<double>(to_float(H{b})); }
 };
 template <>
-struct element_codec<bfloat16> {
-  using bits = std::uint16_t;
-  static constexpr bits sign = 0x8000u;
-  static bits round(float v) noexcept { return round_to_bfloat16(v).bits; }
-  static bfloat16 make(bits b) noexcept { return {b}; }
-  static double value(bits b) noexcept { return static_cast<double>(to_float(bfloat16{b})); }
-};
+struct element_codec<float16> : half_codec<float16, round_to_float16> {};
+template <>
+struct element_codec<bfloat16> : half_codec<bfloat16, round_to_bfloat16> {};
 
 // The one rounding from the compute type C to the element type E under a
 // distribution's bounds: round to nearest even, then a value outside the bounds (or on

@@ -21,6 +21,8 @@
 #include <utility>
 #include <vector>
 
+#include "detail/error.hpp"
+
 namespace kindling {
 
 // The fans of one weight tensor (or of one packed block of it).
@@ -90,9 +92,8 @@ inline std::string labels_text(const std::vector<std::string>& labels) {
 inline std::uint64_t checked_product(std::uint64_t a, std::uint64_t b, const char* where,
                                      const char* what) {
   if (a != 0 && b > max_exact_count / a) {
-    throw std::length_error(std::string(where) + ": " + what + " = " + std::to_string(a) +
-                            " * " + std::to_string(b) +
-                            " exceeds 2^53, the largest count a double holds exactly");
+    reject_argument<std::length_error>(where, what, std::to_string(a) + " * " + std::to_string(b),
+                                       "at most 2^53, the largest count a double holds exactly");
   }
   return a * b;
 }
@@ -106,39 +107,36 @@ inline std::uint64_t checked_product(const std::vector<std::uint64_t>& values, c
 
 inline void require_positive(std::uint64_t value, const char* where, const char* argument) {
   if (value == 0) {
-    throw std::invalid_argument(std::string(where) + ": argument '" + argument +
-                                "' = 0, expected a positive size");
+    reject_argument<std::invalid_argument>(where, argument, "0", "a positive size");
   }
 }
 
 inline void require_divisible(std::uint64_t value, std::uint64_t groups, const char* where,
                               const char* argument) {
   if (value % groups != 0) {
-    throw std::invalid_argument(std::string(where) + ": argument '" + argument + "' = " +
-                                std::to_string(value) + " is not divisible by groups = " +
-                                std::to_string(groups));
+    reject_argument<std::invalid_argument>(where, argument, std::to_string(value),
+                                           "a multiple of groups = " + std::to_string(groups));
   }
 }
 
 inline void require_kernel(const std::vector<std::uint64_t>& kernel, const char* where) {
   if (kernel.empty() || kernel.size() > 3) {
-    throw std::invalid_argument(std::string(where) + ": argument 'kernel' = " +
-                                shape_text(kernel) + " has " + std::to_string(kernel.size()) +
-                                " spatial dimensions, expected 1, 2 or 3");
+    reject_argument<std::invalid_argument>(where, "kernel", shape_text(kernel),
+                                           "1, 2 or 3 spatial dimensions (it has " +
+                                               std::to_string(kernel.size()) + ")");
   }
   for (std::size_t i = 0; i < kernel.size(); ++i) {
     if (kernel[i] == 0) {
-      throw std::invalid_argument(std::string(where) + ": argument 'kernel' = " +
-                                  shape_text(kernel) + " has size 0 in spatial dimension " +
-                                  std::to_string(i) + ", expected positive sizes");
+      reject_argument<std::invalid_argument>(where, "kernel", shape_text(kernel),
+                                             "positive sizes (size 0 in spatial dimension " +
+                                                 std::to_string(i) + ")");
     }
   }
 }
 
 inline void require_dense_layout(weight_layout layout, const char* where) {
   if (layout != weight_layout::out_in && layout != weight_layout::in_out) {
-    throw std::invalid_argument(std::string(where) + ": argument 'layout' = " +
-                                std::string(layout_name(layout)) + ", expected out_in or in_out");
+    reject_argument<std::invalid_argument>(where, "layout", layout_name(layout), "out_in or in_out");
   }
 }
 
@@ -148,18 +146,19 @@ inline void check_against(const char* where, const std::vector<std::uint64_t>& a
                           const std::vector<std::uint64_t>& expected,
                           const std::vector<std::string>& labels, weight_layout layout) {
   if (actual == expected) return;  // the usual case: no message text to build
-  const std::string head = std::string(where) + ": argument 'shape' = " + shape_text(actual);
   const std::string want = " for layout " + std::string(layout_name(layout)) + " " +
                            labels_text(labels) + " = " + shape_text(expected);
   if (actual.size() != expected.size()) {
-    throw std::invalid_argument(head + " has rank " + std::to_string(actual.size()) +
-                                ", expected rank " + std::to_string(expected.size()) + want);
+    reject_argument<std::invalid_argument>(where, "shape", shape_text(actual),
+                                           "rank " + std::to_string(expected.size()) + want + " (it has rank " +
+                                               std::to_string(actual.size()) + ")");
   }
   for (std::size_t i = 0; i < actual.size(); ++i) {
     if (actual[i] != expected[i]) {
-      throw std::invalid_argument(head + " has " + std::to_string(actual[i]) + " in dimension " +
-                                  std::to_string(i) + " (" + labels[i] + "), expected " +
-                                  std::to_string(expected[i]) + want);
+      reject_argument<std::invalid_argument>(where, "shape", shape_text(actual),
+                                             std::to_string(expected[i]) + " in dimension " + std::to_string(i) +
+                                                 " (" + labels[i] + ")" + want + " (it has " +
+                                                 std::to_string(actual[i]) + ")");
     }
   }
 }
@@ -280,10 +279,9 @@ class channel_kernel {
                                   layout == weight_layout::spatial_in_out ||
                                   layout == weight_layout::out_spatial_in);
     if (!ok) {
-      throw std::invalid_argument(
-          std::string(where) + ": argument 'layout' = " + std::string(layout_name(layout)) +
-          (transposed ? ", expected in_out_spatial or spatial_out_in"
-                      : ", expected out_in_spatial, spatial_in_out or out_spatial_in"));
+      detail::reject_argument<std::invalid_argument>(
+          where, "layout", layout_name(layout),
+          transposed ? "in_out_spatial or spatial_out_in" : "out_in_spatial, spatial_in_out or out_spatial_in");
     }
     // Both store in * out / groups * receptive_field weights.
     const std::uint64_t rf = checked_product(kernel_, where, "receptive field");
@@ -484,9 +482,8 @@ class packed_dense {
 
   packed_block block(std::uint64_t b) const {
     if (b >= blocks_) {
-      throw std::invalid_argument("kindling::packed_dense::block: argument 'b' = " +
-                                  std::to_string(b) + ", expected a block index below " +
-                                  std::to_string(blocks_));
+      detail::reject_argument<std::invalid_argument>("packed_dense::block", "b", std::to_string(b),
+                                                     "a block index below " + std::to_string(blocks_));
     }
     packed_block out;
     out.index = b;
@@ -528,23 +525,21 @@ inline fans fans_from_shape(const std::vector<std::uint64_t>& shape, weight_layo
   detail::require_positive(groups, where, "groups");
   for (std::size_t i = 0; i < shape.size(); ++i) {
     if (shape[i] == 0) {
-      throw std::invalid_argument(std::string(where) + ": argument 'shape' = " +
-                                  detail::shape_text(shape) + " has size 0 in dimension " +
-                                  std::to_string(i) + ", expected positive sizes");
+      detail::reject_argument<std::invalid_argument>(where, "shape", detail::shape_text(shape),
+                                                     "positive sizes (size 0 in dimension " + std::to_string(i) + ")");
     }
   }
   detail::checked_product(shape, where, "weight element count");
   const bool is_dense = layout == weight_layout::out_in || layout == weight_layout::in_out;
   if (is_dense ? shape.size() != 2 : (shape.size() < 3 || shape.size() > 5)) {
-    throw std::invalid_argument(std::string(where) + ": argument 'shape' = " +
-                                detail::shape_text(shape) + " has rank " +
-                                std::to_string(shape.size()) + ", expected rank " +
-                                (is_dense ? "2" : "3 to 5") + " for layout " +
-                                std::string(layout_name(layout)));
+    detail::reject_argument<std::invalid_argument>(
+        where, "shape", detail::shape_text(shape),
+        std::string("rank ") + (is_dense ? "2" : "3 to 5") + " for layout " + std::string(layout_name(layout)) +
+            " (it has rank " + std::to_string(shape.size()) + ")");
   }
   if (is_dense && groups != 1) {
-    throw std::invalid_argument(std::string(where) + ": argument 'groups' = " +
-                                std::to_string(groups) + ", expected 1 for a dense layout");
+    detail::reject_argument<std::invalid_argument>(where, "groups", std::to_string(groups),
+                                                   "1 for a dense layout");
   }
   const std::size_t r = shape.size();
   switch (layout) {
@@ -578,7 +573,9 @@ inline fans fans_from_shape(const std::vector<std::uint64_t>& shape, weight_layo
                  {shape.begin(), shape.end() - 2}, groups, layout)
           .layer_fans();
   }
-  throw std::invalid_argument(std::string(where) + ": argument 'layout' has an unknown value");
+  detail::reject_argument<std::invalid_argument>(where, "layout",
+                                                 std::to_string(static_cast<int>(layout)),
+                                                 "one of the weight_layout enumerators");
 }
 
 }  // namespace kindling

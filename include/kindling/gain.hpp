@@ -25,6 +25,7 @@
 #include <utility>
 #include <vector>
 
+#include "kindling/detail/error.hpp"
 #include "kindling/detail/gauss_hermite.hpp"
 
 namespace kindling {
@@ -44,15 +45,15 @@ class activation {
   static activation relu() noexcept { return activation(activation_kind::relu, 0.0); }
   static activation leaky_relu(double slope) {
     if (!std::isfinite(slope)) {
-      throw std::domain_error("kindling::activation::leaky_relu: argument 'slope' = " +
-                              std::to_string(slope) + ", expected a finite number");
+      detail::reject_argument<std::domain_error>("activation::leaky_relu", "slope", detail::argument_text(slope),
+                                                 "a finite number");
     }
     return activation(activation_kind::leaky_relu, slope);
   }
   static activation elu(double alpha = 1.0) {
     if (!(std::isfinite(alpha) && alpha > 0.0)) {
-      throw std::domain_error("kindling::activation::elu: argument 'alpha' = " +
-                              std::to_string(alpha) + ", expected a finite positive number");
+      detail::reject_argument<std::domain_error>("activation::elu", "alpha", detail::argument_text(alpha),
+                                                 "a finite positive number");
     }
     return activation(activation_kind::elu, alpha);
   }
@@ -158,12 +159,10 @@ namespace detail {
 
 inline void check_normal(double mean, double variance, const char* where) {
   if (!std::isfinite(mean)) {
-    throw std::domain_error(std::string(where) + ": argument 'mean' = " + std::to_string(mean) +
-                            ", expected a finite number");
+    reject_argument<std::domain_error>(where, "mean", argument_text(mean), "a finite number");
   }
   if (!(std::isfinite(variance) && variance >= 0.0)) {
-    throw std::domain_error(std::string(where) + ": argument 'variance' = " +
-                            std::to_string(variance) + ", expected a finite number >= 0");
+    reject_argument<std::domain_error>(where, "variance", argument_text(variance), "a finite number >= 0");
   }
 }
 
@@ -253,8 +252,7 @@ double gaussian_expectation_split(F&& f, double split_at, double mean = 0.0,
   constexpr const char* where = "kindling::gaussian_expectation_split";
   detail::check_normal(mean, variance, where);
   if (!std::isfinite(split_at)) {
-    throw std::domain_error(std::string(where) + ": argument 'split_at' = " +
-                            std::to_string(split_at) + ", expected a finite number");
+    detail::reject_argument<std::domain_error>(where, "split_at", detail::argument_text(split_at), "a finite number");
   }
   if (variance == 0.0) return static_cast<double>(f(mean));
   const double sd = std::sqrt(variance);

@@ -24,6 +24,8 @@
 #include <type_traits>
 #include <utility>
 
+#include "detail/error.hpp"
+
 namespace kindling {
 
 /// Largest rank a shape, region or view can have.
@@ -57,9 +59,8 @@ class small_list {
 
   static void check_count(std::size_t n, const char* argument) {
     if (n > max_rank) {
-      throw std::length_error(std::string("kindling: argument '") + argument + "' has " +
-                              std::to_string(n) + " entries; expected a rank of at most " +
-                              std::to_string(max_rank));
+      reject_argument<std::length_error>(argument, argument, std::to_string(n) + " entries",
+                                         "a rank of at most " + std::to_string(max_rank));
     }
   }
 
@@ -75,23 +76,28 @@ class small_list {
     check_count(size_ + 1, argument);
     if constexpr (std::is_signed<V>::value && std::is_unsigned<T>::value) {
       if (value < 0) {
-        throw std::invalid_argument(std::string("kindling: argument '") + argument +
-                                    "' has entry " + std::to_string(value) + " at position " +
-                                    std::to_string(size_) + "; expected a count >= 0");
+        reject_argument<std::invalid_argument>(argument, entry_name(argument), std::to_string(value),
+                                               "a count >= 0");
       }
     }
     if constexpr (std::is_unsigned<V>::value && std::is_signed<T>::value) {
       if (value > static_cast<std::make_unsigned_t<T>>(std::numeric_limits<T>::max())) {
-        throw std::length_error(std::string("kindling: argument '") + argument +
-                                "' has entry " + std::to_string(value) + " at position " +
-                                std::to_string(size_) + "; expected at most " +
-                                std::to_string(std::numeric_limits<T>::max()));
+        reject_argument<std::length_error>(argument, entry_name(argument), std::to_string(value),
+                                           "at most " + std::to_string(std::numeric_limits<T>::max()));
       }
     }
     values_[size_++] = static_cast<T>(value);
   }
 
   std::string text() const { return list_text(values_.data(), size_); }
+
+ private:
+  // "shape[2]": the entry being added, as the message names it.
+  std::string entry_name(const char* argument) const {
+    return std::string(argument) + "[" + std::to_string(size_) + "]";
+  }
+
+ public:
 
   friend bool operator==(const small_list& a, const small_list& b) noexcept {
     return std::equal(a.begin(), a.end(), b.begin(), b.end());
@@ -136,9 +142,9 @@ class shape {
     std::uint64_t count = 1;
     for (std::uint64_t e : extents_) {
       if (e != 0 && count > std::numeric_limits<std::uint64_t>::max() / e) {
-        throw std::length_error("kindling: shape " + text() +
-                                " has more than 2^64 - 1 elements; expected a count that fits "
-                                "a 64-bit element index");
+        detail::reject_argument<std::length_error>("shape::element_count", "shape", text(),
+                                                   "at most 2^64 - 1 elements, a count that fits a "
+                                                   "64-bit element index");
       }
       count *= e;
     }
@@ -229,9 +235,9 @@ inline strides dense_strides(const shape& s, storage_order order) {
   for (std::size_t k = 0; k < r; ++k) {
     const std::size_t d = order == storage_order::row_major ? r - 1 - k : k;
     if (step > static_cast<std::uint64_t>(std::numeric_limits<std::int64_t>::max())) {
-      throw std::length_error("kindling: shape " + s.text() +
-                              " is too large for dense storage; expected strides that fit a "
-                              "signed 64-bit element distance");
+      reject_argument<std::length_error>("strided_view", "shape", s.text(),
+                                         "a shape small enough for dense storage, its strides "
+                                         "signed 64-bit element distances");
     }
     steps[d] = static_cast<std::int64_t>(step);
     if (s[d] != 0 && step > std::numeric_limits<std::uint64_t>::max() / s[d]) step = ~std::uint64_t{0};
@@ -240,22 +246,23 @@ inline strides dense_strides(const shape& s, storage_order order) {
   return strides(steps.begin(), steps.begin() + static_cast<std::ptrdiff_t>(r));
 }
 
-[[noreturn]] inline void fail_argument(const std::string& message) {
-  throw std::invalid_argument("kindling: " + message);
+// The views' checks report as the constructor the user called.
+[[noreturn]] inline void fail_argument(const std::string& name, const std::string& value,
+                                       const std::string& expected) {
+  reject_argument<std::invalid_argument>("strided_view", name, value, expected);
 }
 
 // Checks a global shape: rank 1..max_rank, no zero extent, element count in 64 bits.
 inline void check_global_shape(const shape& global, const char* argument) {
   if (global.rank() == 0) {
-    fail_argument(std::string("argument '") + argument +
-                  "' has rank 0; expected a rank from 1 to " + std::to_string(max_rank) +
-                  " (a scalar is shape {1})");
+    fail_argument(argument, "[] (rank 0)",
+                  "a rank from 1 to " + std::to_string(max_rank) + " (a scalar is shape {1})");
   }
   for (std::size_t d = 0; d < global.rank(); ++d) {
     if (global[d] == 0) {
-      fail_argument(std::string("argument '") + argument + "' = " + global.text() +
-                    " has extent 0 in dimension " + std::to_string(d) +
-                    "; expected every extent >= 1 (an empty tensor has nothing to fill)");
+      fail_argument(argument, global.text(),
+                    "every extent >= 1 (extent 0 in dimension " + std::to_string(d) +
+                        "; an empty tensor has nothing to fill)");
     }
   }
   (void)global.element_count();  // throws length_error on overflow
@@ -264,22 +271,23 @@ inline void check_global_shape(const shape& global, const char* argument) {
 // Checks that a region lies inside the global shape and is not empty.
 inline void check_region(const shape& global, const region& part) {
   if (part.offset().rank() != part.extent().rank() || part.rank() != global.rank()) {
-    fail_argument("argument 'region' (" + part.text() + ") has rank " +
-                  std::to_string(part.offset().rank()) + "/" + std::to_string(part.extent().rank()) +
-                  " (offset/extent); expected rank " + std::to_string(global.rank()) +
-                  " like the global shape " + global.text());
+    fail_argument("region", part.text(),
+                  "offset and extent of rank " + std::to_string(global.rank()) + " like the global shape " +
+                      global.text() + " (they have rank " + std::to_string(part.offset().rank()) + " and " +
+                      std::to_string(part.extent().rank()) + ")");
   }
   for (std::size_t d = 0; d < global.rank(); ++d) {
     const std::uint64_t at = part.offset()[d];
     const std::uint64_t n = part.extent()[d];
     if (n == 0) {
-      fail_argument("argument 'region' (" + part.text() + ") has extent 0 in dimension " +
-                    std::to_string(d) + "; expected every extent >= 1");
+      fail_argument("region", part.text(),
+                    "every extent >= 1 (extent 0 in dimension " + std::to_string(d) + ")");
     }
     if (at >= global[d] || n > global[d] - at) {
-      fail_argument("argument 'region' (" + part.text() + ") covers indices " + std::to_string(at) +
-                    ".." + std::to_string(at) + "+" + std::to_string(n) + "-1 of dimension " +
-                    std::to_string(d) + "; expected them inside the global shape " + global.text());
+      fail_argument("region", part.text(),
+                    "a region inside the global shape " + global.text() + " (it covers indices " +
+                        std::to_string(at) + ".." + std::to_string(at) + "+" + std::to_string(n) +
+                        "-1 of dimension " + std::to_string(d) + ")");
     }
   }
 }
@@ -292,8 +300,7 @@ inline void check_region(const shape& global, const region& part) {
 inline void check_strides(const region& part, const strides& steps) {
   const std::size_t r = part.rank();
   if (steps.rank() != r) {
-    fail_argument("argument 'strides' = " + steps.text() + " has rank " + std::to_string(steps.rank()) +
-                  "; expected rank " + std::to_string(r) + " like the region " + part.text());
+    fail_argument("strides", steps.text(), "rank " + std::to_string(r) + " like the region " + part.text());
   }
   constexpr std::uint64_t limit = static_cast<std::uint64_t>(std::numeric_limits<std::ptrdiff_t>::max());
   std::array<std::size_t, max_rank> order{};
@@ -315,16 +322,16 @@ inline void check_strides(const region& part, const strides& steps) {
     const std::size_t d = order[k];
     const std::uint64_t step = magnitude(d);
     if (step <= span) {
-      fail_argument("argument 'strides' = " + steps.text() + " makes two elements of the region " +
-                    part.text() + " share memory (stride " + std::to_string(steps[d]) +
-                    " of dimension " + std::to_string(d) +
-                    "); expected strides that give every element its own address");
+      fail_argument("strides", steps.text(),
+                    "strides that give every element of the region " + part.text() +
+                        " its own address (with stride " + std::to_string(steps[d]) + " of dimension " +
+                        std::to_string(d) + " two elements share memory)");
     }
     const std::uint64_t reach = part.extent()[d] - 1;
     if (step > (limit - span) / reach) {
-      throw std::length_error("kindling: argument 'strides' = " + steps.text() + " with region " +
-                              part.text() + " spans more than 2^63 - 1 elements; expected memory "
-                              "distances that fit std::ptrdiff_t");
+      reject_argument<std::length_error>("strided_view", "strides", steps.text(),
+                                         "memory distances that fit std::ptrdiff_t (with region " +
+                                             part.text() + " they span more than 2^63 - 1 elements)");
     }
     span += step * reach;
   }
@@ -334,11 +341,12 @@ inline void check_strides(const region& part, const strides& steps) {
   for (std::size_t d = 0; d < r; ++d) {
     const std::uint64_t step = magnitude(d);
     if (step > (limit - span) / part.extent()[d]) {
-      throw std::length_error("kindling: argument 'strides' = " + steps.text() + " has stride " +
-                              std::to_string(steps[d]) + " in dimension " + std::to_string(d) +
-                              " (extent " + std::to_string(part.extent()[d]) + ") of region " +
-                              part.text() + "; expected |stride| * extent + " + std::to_string(span) +
-                              " (the span of the region) to fit std::ptrdiff_t (2^63 - 1)");
+      reject_argument<std::length_error>(
+          "strided_view", "strides", steps.text(),
+          "|stride| * extent + " + std::to_string(span) + " (the span of the region) to fit std::ptrdiff_t "
+          "(2^63 - 1) in every dimension (dimension " + std::to_string(d) + " has stride " +
+              std::to_string(steps[d]) + " and extent " + std::to_string(part.extent()[d]) + " in region " +
+              part.text() + ")");
     }
   }
 }
@@ -380,8 +388,8 @@ class strided_view {
     detail::check_region(global_, part_);
     detail::check_strides(part_, steps_);
     if (data_ == nullptr) {
-      detail::fail_argument("argument 'data' is a null pointer for a region of " +
-                            std::to_string(size()) + " elements; expected memory to write to");
+      detail::fail_argument("data", "a null pointer",
+                            "memory to write to (the region has " + std::to_string(size()) + " elements)");
     }
   }
 
@@ -416,9 +424,10 @@ class strided_view {
       const std::uint64_t at = inner.offset()[d];
       const std::uint64_t start = part_.offset()[d];
       if (at < start || inner.extent()[d] > part_.extent()[d] - std::min(part_.extent()[d], at - start)) {
-        detail::fail_argument("argument 'region' (" + inner.text() + ") of sub() leaves this view's region (" +
-                              part_.text() + ") in dimension " + std::to_string(d) +
-                              "; expected a region inside it");
+        detail::reject_argument<std::invalid_argument>(
+            "strided_view::sub", "region", inner.text(),
+            "a region inside this view's region " + part_.text() + " (it leaves it in dimension " +
+                std::to_string(d) + ")");
       }
       shift += static_cast<std::ptrdiff_t>(at - start) * static_cast<std::ptrdiff_t>(steps_[d]);
     }

@@ -129,6 +129,30 @@ TEST_CASE("identification estimates the Glorot gain and the He leaky slope") {
       if (c.name() == "He normal" && mentions(c.fan, "fan-in")) CHECK(!c.variance_fits);
     }
   }
+  SUBCASE("LeCun normal with gain sqrt(3): every candidate has a name the registry takes") {
+    // Var = 3 / fan_in (s = 3 on fan-in, more than any He slope gives; no fixed rule has
+    // it, the nearest being 3.2 / 512 on fan-average): the fan-in candidate is LeCun with
+    // gain sqrt(3), as parse_scheme("lecun-normal(gain=1.732)") spells it.
+    const identification l = identify_made<float>(shape(128, 512), layer, fixed_normal{0, std::sqrt(3 / 512.0)}, 14);
+    bool lecun_found = false;
+    for (const scheme_candidate& c : l.ranking) {
+      CAPTURE(c.text());
+      CHECK(!mentions(c.scheme, "variance scaling"));
+      const bool registry_family = c.scheme.rfind("He ", 0) == 0 || c.scheme.rfind("Glorot ", 0) == 0 ||
+                                   c.scheme.rfind("LeCun ", 0) == 0;
+      CHECK(registry_family);
+      if (c.name().rfind("LeCun normal, gain", 0) == 0 && c.variance_fits) {
+        lecun_found = true;
+        CHECK(std::abs(c.parameter_value - std::sqrt(3.0)) < 0.02);  // 4 standard errors of the gain
+        CHECK(mentions(c.fan, "fan-in 512"));
+      }
+      // The fixed rule Var = 2 / fan_avg is Glorot with gain sqrt(2).
+      if (c.rule.scale == 2 && c.rule.basis == fan_basis::average) CHECK(c.parameter == "gain 1.414");
+      // The fixed rule Var = 1 / fan_out is He on fan-out with slope 1: 2 / ((1 + 1) fan_out).
+      if (c.rule.scale == 1 && c.rule.basis == fan_basis::out) CHECK(c.parameter == "slope 1");
+    }
+    CHECK(lecun_found);
+  }
   SUBCASE("a default scheme gets no fitted candidates") {
     const identification d = identify_made<float>(shape(128, 512), layer, glorot_normal{}, 13);
     REQUIRE(d.best() != nullptr);

@@ -101,7 +101,7 @@ TEST_CASE("dense layers have fan_in = inputs and fan_out = outputs in either sto
     CHECK_NOTHROW(d.check_shape({300, 100}));
     const std::string e = error_of([&] { d.check_shape({100, 300}); });
     CHECK_MESSAGE(contains(e, "argument 'shape' = [100, 300]"), e);
-    CHECK_MESSAGE(contains(e, "dimension 0 (in_features), expected 300"), e);
+    CHECK_MESSAGE(contains(e, "expected 300 in dimension 0 (in_features)"), e);
   }
 }
 
@@ -186,7 +186,7 @@ TEST_CASE("an embedding table has fan_in = dimension and fan_out = vocabulary") 
   CHECK(e.layer_fans() == fans{256, 50000, 1});
   CHECK(e.layer_fans() == kindling::dense(256, 50000).layer_fans());
   const std::string err = error_of([&] { e.check_shape({256, 50000}); });
-  CHECK_MESSAGE(contains(err, "dimension 0 (vocabulary), expected 50000"), err);
+  CHECK_MESSAGE(contains(err, "expected 50000 in dimension 0 (vocabulary)"), err);
 }
 
 TEST_CASE("packed gate blocks each get the fans of one block, at their own offset") {
@@ -223,7 +223,7 @@ TEST_CASE("packed gate blocks each get the fans of one block, at their own offse
     CHECK(p.block(2).block_fans == fans{512, 64, 1});
     CHECK_NOTHROW(p.check_shape({192, 512}));
     const std::string e = error_of([&] { p.check_shape({64, 512}); });
-    CHECK_MESSAGE(contains(e, "dimension 0 (blocks*block_out_features), expected 192"), e);
+    CHECK_MESSAGE(contains(e, "expected 192 in dimension 0 (blocks*block_out_features)"), e);
     const std::string eb = error_of([&] { (void)p.block(3); });
     CHECK_MESSAGE(contains(eb, "argument 'b' = 3, expected a block index below 3"), eb);
   }
@@ -248,43 +248,43 @@ TEST_CASE("bad descriptions and shapes are refused with the argument named") {
   SUBCASE("zero sizes") {
     CHECK(contains(error_of([] { kindling::dense(0, 3); }), "argument 'in_features' = 0"));
     CHECK(contains(error_of([] { kindling::convolution(3, 4, {3, 0}); }),
-                   "argument 'kernel' = [3, 0] has size 0 in spatial dimension 1"));
+                   "argument 'kernel' = [3, 0], expected positive sizes (size 0 in spatial dimension 1)"));
     CHECK(contains(error_of([] { kindling::embedding(10, 0); }), "argument 'dimension' = 0"));
     CHECK(contains(error_of([] { kindling::packed_dense(0, 3, 3); }), "argument 'blocks' = 0"));
     CHECK(contains(error_of([] { kindling::convolution::depthwise(4, 0, {3}); }),
                    "argument 'multiplier' = 0"));
     CHECK(contains(error_of([] { (void)kindling::fans_from_shape({3, 0, 3}, weight_layout::out_in_spatial); }),
-                   "argument 'shape' = [3, 0, 3] has size 0 in dimension 1"));
+                   "argument 'shape' = [3, 0, 3], expected positive sizes (size 0 in dimension 1)"));
   }
   SUBCASE("channels not divisible by groups") {
     CHECK(contains(error_of([] { kindling::convolution(6, 8, {3}, 4); }),
-                   "argument 'in_channels' = 6 is not divisible by groups = 4"));
+                   "kindling::convolution: argument 'in_channels' = 6, expected a multiple of groups = 4"));
     CHECK(contains(error_of([] { kindling::transposed_convolution(8, 6, {3}, 4); }),
-                   "argument 'out_channels' = 6 is not divisible by groups = 4"));
+                   "argument 'out_channels' = 6, expected a multiple of groups = 4"));
     CHECK(contains(error_of([] { (void)kindling::fans_from_shape({6, 2, 3}, weight_layout::out_in_spatial, 4); }),
-                   "is not divisible by groups = 4"));
+                   "expected a multiple of groups = 4"));
   }
   SUBCASE("kernel rank and layout") {
     CHECK(contains(error_of([] { kindling::convolution(3, 4, {}); }),
-                   "has 0 spatial dimensions, expected 1, 2 or 3"));
+                   "argument 'kernel' = [], expected 1, 2 or 3 spatial dimensions (it has 0)"));
     CHECK(contains(error_of([] { kindling::convolution(3, 4, {1, 1, 1, 1}); }),
-                   "has 4 spatial dimensions, expected 1, 2 or 3"));
+                   "expected 1, 2 or 3 spatial dimensions (it has 4)"));
     CHECK(contains(error_of([] { kindling::dense(3, 4, weight_layout::out_in_spatial); }),
                    "argument 'layout' = out_in_spatial, expected out_in or in_out"));
     CHECK(contains(error_of([] { kindling::transposed_convolution(3, 4, {3}, 1, weight_layout::out_in_spatial); }),
                    "expected in_out_spatial or spatial_out_in"));
     CHECK(contains(error_of([] { (void)kindling::fans_from_shape({3, 4, 5}, weight_layout::out_in); }),
-                   "has rank 3, expected rank 2 for layout out_in"));
+                   "argument 'shape' = [3, 4, 5], expected rank 2 for layout out_in (it has rank 3)"));
     CHECK(contains(error_of([] { (void)kindling::fans_from_shape({3, 4}, weight_layout::spatial_in_out); }),
-                   "has rank 2, expected rank 3 to 5"));
+                   "expected rank 3 to 5 for layout spatial_in_out (it has rank 2)"));
   }
   SUBCASE("an actual shape that does not fit the layout") {
     const kindling::convolution c(6, 9, {3, 5}, 3);
     const std::string rank = error_of([&] { c.check_shape({9, 2, 15}); });
-    CHECK_MESSAGE(contains(rank, "argument 'shape' = [9, 2, 15] has rank 3, expected rank 4"), rank);
+    CHECK_MESSAGE(contains(rank, "argument 'shape' = [9, 2, 15], expected rank 4"), rank);
     CHECK_MESSAGE(contains(rank, "[out_channels, in_channels/groups, k0, k1] = [9, 2, 3, 5]"), rank);
     const std::string dim = error_of([&] { c.check_shape({9, 6, 3, 5}); });
-    CHECK_MESSAGE(contains(dim, "has 6 in dimension 1 (in_channels/groups), expected 2"), dim);
+    CHECK_MESSAGE(contains(dim, "expected 2 in dimension 1 (in_channels/groups)"), dim);
   }
 }
 

@@ -179,11 +179,11 @@ TEST_CASE("bad arguments to activations and expectations throw and name the argu
   const auto id = [](double x) { return x; };
   CHECK_THROWS_WITH_AS(activation::leaky_relu(nan), doctest::Contains("argument 'slope'"),
                        std::domain_error);
-  CHECK_THROWS_WITH_AS(activation::elu(0.0), doctest::Contains("argument 'alpha' = 0.000000"),
+  CHECK_THROWS_WITH_AS(activation::elu(0.0), doctest::Contains("argument 'alpha' = 0,"),
                        std::domain_error);
   CHECK_THROWS_WITH_AS(activation::elu(inf), doctest::Contains("argument 'alpha'"), std::domain_error);
   CHECK_THROWS_WITH_AS(kindling::gaussian_expectation(id, 0.0, -1.0),
-                       doctest::Contains("argument 'variance' = -1.000000, expected a finite number >= 0"),
+                       doctest::Contains("argument 'variance' = -1, expected a finite number >= 0"),
                        std::domain_error);
   CHECK_THROWS_WITH_AS(kindling::gaussian_expectation(id, inf, 1.0), doctest::Contains("argument 'mean'"),
                        std::domain_error);

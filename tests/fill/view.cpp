@@ -37,7 +37,7 @@ TEST_CASE("a shape holds up to max_rank extents and counts its elements") {
 TEST_CASE("a shape rejects a rank above max_rank, negative extents and overflowing counts") {
   SUBCASE("rank 9 is a length_error naming the argument and the rank") {
     const std::string m = message_of<std::length_error>([] { shape s{1, 1, 1, 1, 1, 1, 1, 1, 1}; });
-    CHECK_MESSAGE(mentions(m, "'shape' has 9 entries"), m);
+    CHECK_MESSAGE(mentions(m, "kindling::shape: argument 'shape' = 9 entries, expected a rank of at most 8"), m);
     CHECK_MESSAGE(mentions(m, "at most 8"), m);
     const std::vector<int> nine(9, 1);
     CHECK_THROWS_AS(shape(nine.begin(), nine.end()), std::length_error);
@@ -45,7 +45,7 @@ TEST_CASE("a shape rejects a rank above max_rank, negative extents and overflowi
   SUBCASE("a negative extent is an invalid_argument naming its value") {
     const int rows = -3;
     const std::string m = message_of<std::invalid_argument>([&] { shape s{rows, 4}; });
-    CHECK_MESSAGE(mentions(m, "'shape' has entry -3 at position 0"), m);
+    CHECK_MESSAGE(mentions(m, "kindling::shape: argument 'shape[0]' = -3, expected a count >= 0"), m);
   }
   SUBCASE("an element count beyond 2^64 - 1 is a length_error") {
     const shape s{std::uint64_t{1} << 32, std::uint64_t{1} << 32};
@@ -100,7 +100,7 @@ TEST_CASE("sub() narrows a view to a region of it in global coordinates, sharing
   CHECK(inner.data() == memory.data() + 3 * 8 + 5);
   SUBCASE("a region outside the view is refused") {
     const std::string m = message_of<std::invalid_argument>([&] { (void)part.sub(region({1, 3}, {2, 2})); });
-    CHECK_MESSAGE(mentions(m, "'region' (offset [1, 3] extent [2, 2]) of sub() leaves"), m);
+    CHECK_MESSAGE(mentions(m, "argument 'region' = offset [1, 3] extent [2, 2], expected a region inside this view's region"), m);
     CHECK_THROWS_AS((void)part.sub(region({2, 5}, {3, 3})), std::invalid_argument);
   }
 }
@@ -146,11 +146,11 @@ TEST_CASE("a view rejects each bad argument with an exception naming it") {
   const std::vector<float> before = memory;
   SUBCASE("rank 0") {
     const std::string m = message_of<std::invalid_argument>([&] { strided_view<float> v(memory.data(), shape{}); });
-    CHECK_MESSAGE(mentions(m, "'shape' has rank 0"), m);
+    CHECK_MESSAGE(mentions(m, "kindling::strided_view: argument 'shape' = [] (rank 0), expected a rank from 1 to 8"), m);
   }
   SUBCASE("a zero extent") {
     const std::string m = message_of<std::invalid_argument>([&] { strided_view<float> v(memory.data(), {4, 0}); });
-    CHECK_MESSAGE(mentions(m, "'shape' = [4, 0] has extent 0 in dimension 1"), m);
+    CHECK_MESSAGE(mentions(m, "kindling::strided_view: argument 'shape' = [4, 0], expected every extent >= 1 (extent 0 in dimension 1"), m);
   }
   SUBCASE("an element count that overflows") {
     const std::string m = message_of<std::length_error>(
@@ -159,12 +159,12 @@ TEST_CASE("a view rejects each bad argument with an exception naming it") {
   }
   SUBCASE("a null pointer") {
     const std::string m = message_of<std::invalid_argument>([&] { strided_view<float> v(nullptr, {4, 4}); });
-    CHECK_MESSAGE(mentions(m, "'data' is a null pointer for a region of 16 elements"), m);
+    CHECK_MESSAGE(mentions(m, "argument 'data' = a null pointer, expected memory to write to (the region has 16 elements)"), m);
   }
   SUBCASE("a region that leaves the global shape") {
     const std::string m = message_of<std::invalid_argument>(
         [&] { strided_view<float> v(memory.data(), {8, 8}, region({6, 0}, {3, 8})); });
-    CHECK_MESSAGE(mentions(m, "'region' (offset [6, 0] extent [3, 8]) covers indices 6..6+3-1 of dimension 0"), m);
+    CHECK_MESSAGE(mentions(m, "argument 'region' = offset [6, 0] extent [3, 8], expected a region inside the global shape [8, 8] (it covers indices 6..6+3-1 of dimension 0)"), m);
     CHECK_THROWS_AS(strided_view<float>(memory.data(), {8, 8}, region({8, 0}, {1, 1})), std::invalid_argument);
     // An offset near 2^64 must not wrap around into the shape.
     CHECK_THROWS_AS(strided_view<float>(memory.data(), {8, 8}, region({~std::uint64_t{0}, 0}, {2, 1})),
@@ -178,18 +178,18 @@ TEST_CASE("a view rejects each bad argument with an exception naming it") {
   SUBCASE("a region of another rank") {
     const std::string m = message_of<std::invalid_argument>(
         [&] { strided_view<float> v(memory.data(), {8, 8}, region({0}, {8})); });
-    CHECK_MESSAGE(mentions(m, "expected rank 2 like the global shape [8, 8]"), m);
+    CHECK_MESSAGE(mentions(m, "expected offset and extent of rank 2 like the global shape [8, 8]"), m);
   }
   SUBCASE("strides of another rank") {
     const std::string m = message_of<std::invalid_argument>(
         [&] { strided_view<float> v(memory.data(), {8, 8}, region::whole({8, 8}), strides{1}); });
-    CHECK_MESSAGE(mentions(m, "'strides' = [1] has rank 1; expected rank 2"), m);
+    CHECK_MESSAGE(mentions(m, "argument 'strides' = [1], expected rank 2 like the region"), m);
   }
   SUBCASE("strides that alias two elements") {
     // (0, 2) and (1, 0) both land 2 elements from the start.
     const std::string m = message_of<std::invalid_argument>(
         [&] { strided_view<float> v(memory.data(), {4, 4}, region::whole({4, 4}), strides{2, 1}); });
-    CHECK_MESSAGE(mentions(m, "'strides' = [2, 1] makes two elements"), m);
+    CHECK_MESSAGE(mentions(m, "argument 'strides' = [2, 1], expected strides that give every element"), m);
     CHECK_THROWS_AS(strided_view<float>(memory.data(), {4, 4}, region::whole({4, 4}), strides{0, 1}),
                     std::invalid_argument);
     CHECK_THROWS_AS(strided_view<float>(memory.data(), {4, 4}, region::whole({4, 4}), strides{-1, 1}),
@@ -199,7 +199,7 @@ TEST_CASE("a view rejects each bad argument with an exception naming it") {
     const std::string m = message_of<std::length_error>([&] {
       strided_view<float> v(memory.data(), {4, 4}, region::whole({4, 4}), strides{std::int64_t{1} << 62, 1});
     });
-    CHECK_MESSAGE(mentions(m, "spans more than 2^63 - 1 elements"), m);
+    CHECK_MESSAGE(mentions(m, "span more than 2^63 - 1 elements"), m);
   }
   CHECK_MESSAGE(memory == before, "a refused view must leave the memory as it was");
 }

@@ -1,5 +1,5 @@
 // tests/fuzz/fuzz_spec.cpp: libFuzzer target for the JSON layer-stack spec reader
-// (io/spec.hpp). Any input is refused with std::invalid_argument or std::domain_error
+// (examples/tool/spec.hpp). Any input is refused with std::invalid_argument or std::domain_error
 // (the header's contract; std::length_error is allowed as the library's size error;
 // any other exception, e.g. one of nlohmann-json's own, escapes and is a finding), or
 // parsed into a spec that builds its sections (stacks cut at recurrent cells), each
@@ -9,7 +9,7 @@
 #include <stdexcept>
 #include <string>
 
-#include <kindling/io/spec.hpp>
+#include "../../examples/tool/spec.hpp"
 #include <kindling/propagate/mean_field.hpp>
 
 extern "C" int LLVMFuzzerTestOneInput(const std::uint8_t* data, std::size_t size) {

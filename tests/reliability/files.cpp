@@ -15,11 +15,11 @@
 #include <sys/stat.h>
 #include <unistd.h>
 
+#include "../../examples/tool/spec.hpp"
 #include "../support/errors.hpp"
 #include "kindling/io/npy.hpp"
 #include "kindling/io/read_file.hpp"
 #include "kindling/io/replace_file.hpp"
-#include "kindling/io/spec.hpp"
 
 using namespace kindling;
 using kindling_test::mentions;

@@ -1,4 +1,4 @@
-// Tests of schemes/bias.hpp and schemes/constant.hpp.
+// Tests of schemes/bias.hpp (constant.hpp alone: tests/schemes/constant.cpp).
 #include <doctest/doctest.h>
 
 #include <cstring>

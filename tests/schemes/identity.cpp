@@ -206,7 +206,7 @@ TEST_CASE("identity: bad input throws a clear error before anything is written")
       kindling::initialize(strided_view<float>(memory.data(), shape{6, 4, 2, 2}), kindling::convolution(4, 6, {2, 2}),
                            kindling::identity{}, st);
     });
-    CHECK_MESSAGE(mentions(m, "argument 'shape' = [6, 4, 2, 2] has 6 output channels and 4 input channels"), m);
+    CHECK_MESSAGE(mentions(m, "argument 'shape' = [6, 4, 2, 2], expected out_channels == in_channels"), m);
     CHECK(mentions(m, "expected out_channels == in_channels"));
   }
   SUBCASE("a grouped convolution whose groups are not square") {
@@ -221,11 +221,11 @@ TEST_CASE("identity: bad input throws a clear error before anything is written")
     const std::string r1 = message_of<std::invalid_argument>([&] {
       kindling::initialize(strided_view<float>(memory.data(), shape{96}), weight_info{}, kindling::identity{}, st);
     });
-    CHECK_MESSAGE(mentions(r1, "argument 'shape' = [96] has rank 1, expected rank 2 for layout out_in"), r1);
+    CHECK_MESSAGE(mentions(r1, "argument 'shape' = [96], expected rank 2 for layout out_in"), r1);
     const std::string r3 = message_of<std::invalid_argument>([&] {
       kindling::initialize(strided_view<float>(memory.data(), shape{4, 4, 6}), weight_info{}, kindling::identity{}, st);
     });
-    CHECK_MESSAGE(mentions(r3, "has rank 3, expected rank 2"), r3);
+    CHECK_MESSAGE(mentions(r3, "expected rank 2"), r3);
     const std::string t = message_of<std::invalid_argument>([&] {
       kindling::initialize(strided_view<float>(memory.data(), shape{4, 4, 6}),
                            weight_info{kindling::fans{24, 24, 6}, weight_layout::in_out_spatial}, kindling::identity{}, st);

@@ -141,3 +141,35 @@ TEST_CASE("initialize takes Eigen objects directly, as fill does, with the value
     CHECK(memory == plain);
   }
 }
+
+TEST_CASE("weight_info_of reads a layer's fans and layout after checking the shape") {
+  const convolution conv(6, 9, {3, 5}, 3, weight_layout::spatial_in_out);
+  const weight_info w = weight_info_of(conv, shape(3, 5, 2, 9));  // [k0, k1, in/groups, out]
+  CHECK(w.fans == conv.layer_fans());
+  CHECK(w.layout == weight_layout::spatial_in_out);
+  const std::string m = kindling_test::message_of<std::invalid_argument>([&] { (void)weight_info_of(conv, shape(9, 2, 3, 5)); });
+  CHECK_MESSAGE(kindling_test::mentions(m, "argument 'shape' = [9, 2, 3, 5], expected"), m);
+  CHECK(weight_info_of(embedding(1000, 16), shape(1000, 16)).layout == weight_layout::out_in);
+}
+
+TEST_CASE("packed_block_view gives the part of a view inside one block, as a weight of its own") {
+  const packed_dense gru = packed_dense::gru(4, 5);  // [15, 4]: three 5 x 4 blocks along axis 0
+  std::vector<float> memory(15 * 4);
+  const strided_view<float> whole(memory.data(), shape(15, 4));
+  const packed_block b1 = gru.block(1);
+  strided_view<float> part = whole;
+  REQUIRE(packed_block_view(whole, b1, &part));
+  CHECK(part.global_shape() == shape(5, 4));
+  CHECK(part.is_whole());
+  CHECK(part.data() == memory.data() + 5 * 4);
+  // Rows 7..12 of the stack: rows 2..4 of block 1.
+  const strided_view<float> rows = whole.sub(region(shape(7, 0), shape(6, 4)));
+  REQUIRE(packed_block_view(rows, b1, &part));
+  CHECK(part.part() == region(shape(2, 0), shape(3, 4)));
+  CHECK(part.data() == memory.data() + 7 * 4);
+  // A region inside block 0 holds nothing of block 2.
+  const strided_view<float> top = whole.sub(region(shape(0, 0), shape(2, 4)));
+  strided_view<float> untouched = top;
+  CHECK_FALSE(packed_block_view(top, gru.block(2), &untouched));
+  CHECK(untouched.data() == top.data());
+}

@@ -399,7 +399,7 @@ elif CASE == "json":
                    and len(m["draws"]) == 16, f"layer {l['index']} {side}: {m}")
     expect(all(l["agrees"] for l in doc["layers"]), "a Glorot tanh stack should agree at every layer")
     # a belt-fault detector: 1-D convolutions on a 3-channel map, a residual block, a dense
-    # head (kindling/io/spec.hpp "conv" and "residual"), measured layer by layer
+    # head (examples/tool/spec.hpp "conv" and "residual"), measured layer by layer
     with open("belt.json", "w") as f:
         json.dump({"input": {"width": 3, "extent": [48]},
                    "layers": [{"width": 16, "activation": "relu", "scheme": "he-normal",

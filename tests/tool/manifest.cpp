@@ -13,9 +13,11 @@
 #include <string>
 #include <vector>
 
+#include "../support/plan_error.hpp"
 #include "kindling/io/manifest.hpp"
 
 using namespace kindling;
+using kindling_test::plan_error;
 
 namespace {
 
@@ -33,16 +35,6 @@ model_plan belt_plan() {
   const model_plan plan = plan_from_json(parse_json_once(text, "belt"), "belt", &seed);
   CHECK(seed == 42);
   return plan;
-}
-
-std::string plan_error(const std::string& text) {
-  std::uint64_t seed = 0;
-  try {
-    plan_from_json(parse_json_once(text, "P"), "P", &seed);
-  } catch (const std::invalid_argument& e) {
-    return e.what();
-  }
-  return "";
 }
 
 bool has(const std::string& text, const std::string& part) { return text.find(part) != std::string::npos; }

@@ -10,22 +10,19 @@
 #include <string>
 #include <vector>
 
+#include "../support/plan_error.hpp"
 #include "kindling/io/manifest.hpp"
 #include "kindling/model/rules.hpp"
 
 using namespace kindling;
+using kindling_test::plan_error;
 
 namespace {
 
 bool has(const std::string& text, const std::string& part) { return text.find(part) != std::string::npos; }
 
 std::string rules_error(const std::vector<parameter_request>& requests, const std::vector<plan_rule>& rules) {
-  try {
-    apply_rules(requests, rules);
-  } catch (const std::invalid_argument& e) {
-    return e.what();
-  }
-  return "";
+  return kindling_test::message_of<std::invalid_argument>([&] { (void)apply_rules(requests, rules); });
 }
 
 plan_rule rule(const std::string& pattern, const char* scheme, std::optional<layer_kind> kind = std::nullopt) {
@@ -34,16 +31,6 @@ plan_rule rule(const std::string& pattern, const char* scheme, std::optional<lay
   if (scheme != nullptr) r.scheme = parse_scheme(scheme);
   if (kind) r.layer = layer_template{*kind};
   return r;
-}
-
-std::string plan_error(const std::string& text) {
-  std::uint64_t seed = 0;
-  try {
-    plan_from_json(parse_json_once(text, "P"), "P", &seed);
-  } catch (const std::invalid_argument& e) {
-    return e.what();
-  }
-  return "";
 }
 
 }  // namespace

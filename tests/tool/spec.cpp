@@ -1,11 +1,11 @@
-// Tests of kindling/io/spec.hpp: the JSON network spec of `kindling plan`.
+// Tests of examples/tool/spec.hpp: the JSON network spec of `kindling plan`.
 #include <doctest/doctest.h>
 
 #include <cmath>
 #include <stdexcept>
 #include <string>
 
-#include "kindling/io/spec.hpp"
+#include "../../examples/tool/spec.hpp"
 
 using namespace kindling;
 

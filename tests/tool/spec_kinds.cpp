@@ -1,4 +1,4 @@
-// Tests of the convolution, residual and recurrent keys of kindling/io/spec.hpp: the
+// Tests of the convolution, residual and recurrent keys of examples/tool/spec.hpp: the
 // stack a spec of feature maps, convolutions and residual blocks gives, a spec cut at its
 // recurrent cells (build_sections), and the refusals that only the stack can decide
 // (geometry, groups, branch widths, a cell's steps), each under its key.
@@ -13,7 +13,7 @@
 #include <string>
 #include <vector>
 
-#include "kindling/io/spec.hpp"
+#include "../../examples/tool/spec.hpp"
 
 #include "../support/errors.hpp"
 

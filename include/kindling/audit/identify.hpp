@@ -37,7 +37,10 @@
 //   "Glorot <draw>, gain g" on fan-average, g = sqrt(Var (fan_in + fan_out) / 2)
 //     (Glorot & Bengio 2010 with a gain, common practice);
 //   "He <draw>, slope a" on fan-out, when Var fan_out <= 2;
-//   "variance scaling <draw>, scale s" on fan-in, s = Var fan_in, when fan-in has no slope.
+//   "LeCun <draw>, gain g" on fan-in, g = sqrt(Var fan_in), when fan-in has no slope
+//     (Var = g^2 / fan_in, the spelling schemes/registry.hpp takes).
+// A fixed candidate the three names cover only with a parameter is named the same way
+// (scale 2 on fan-average is "Glorot, gain 1.414"; scale 1 on fan-out "He, slope 1").
 // Their KS p-values are optimistic (the variance was fitted to the same data, as in
 // Lilliefors' test); they rank and name, they do not test.
 //
@@ -56,7 +59,7 @@
 
 #include "../schemes/detail/centre_tap.hpp"
 #include "conformance.hpp"
-#include "detail/centre_taps.hpp"
+#include "detail/centre_split.hpp"
 #include "kolmogorov.hpp"
 
 namespace kindling {
@@ -90,13 +93,26 @@ struct identification {
 
 namespace detail {
 
-inline std::string candidate_name(const fan_scaled& r) {
-  const char* draw = r.draw == draw_shape::uniform ? "uniform" : r.draw == draw_shape::normal ? "normal"
-                                                                                                : "truncated normal";
-  if (r.scale == 2 && r.basis != fan_basis::average) return std::string("He ") + draw;
-  if (r.scale == 1 && r.basis == fan_basis::average) return std::string("Glorot ") + draw;
-  if (r.scale == 1 && r.basis == fan_basis::in) return std::string("LeCun ") + draw;
-  return "variance scaling " + short_number(r.scale) + " " + draw;
+// Names a candidate as the registry would spell it (schemes/registry.hpp), so that a
+// name identify prints is one --expect and parse_scheme take: He with a slope, Glorot
+// or LeCun with a gain (Var W = gain^2 / fan); fan_scaled only for a rule none of them is.
+inline void name_candidate(scheme_candidate& c, const fan_scaled& r, const std::string& draw) {
+  const auto named = [&](const char* family, const char* what, double value) {
+    c.scheme = std::string(family) + " " + draw;
+    c.parameter = what == nullptr ? "" : std::string(what) + " " + short_number(value, 4);
+    c.parameter_value = what == nullptr ? 0 : value;
+  };
+  if (r.scale == 2 && r.basis != fan_basis::average) return named("He", nullptr, 0);
+  if (r.scale == 1 && r.basis == fan_basis::average) return named("Glorot", nullptr, 0);
+  if (r.scale == 1 && r.basis == fan_basis::in) return named("LeCun", nullptr, 0);
+  if (r.basis == fan_basis::average) return named("Glorot", "gain", std::sqrt(r.scale));
+  if (r.basis == fan_basis::in && r.scale > 2) return named("LeCun", "gain", std::sqrt(r.scale));
+  if (r.scale <= 2) return named("He", "slope", std::sqrt(2 / r.scale - 1));  // He et al. 2015
+  return named("fan-scaled", "scale", r.scale);
+}
+
+inline std::string draw_name(draw_shape d) {
+  return d == draw_shape::uniform ? "uniform" : d == draw_shape::normal ? "normal" : "truncated normal";
 }
 
 // Unit roundoff of an element type (half its machine epsilon) and its subnormal spacing
@@ -216,44 +232,42 @@ inline std::string centre_tap_structure(const gathered& g, const centre_tap_geom
 // The fitted-variance candidates of one draw (see the top of the header), best first.
 inline std::vector<scheme_candidate> fitted_candidates(draw_shape d, double variance, const fans& f) {
   std::vector<scheme_candidate> out;
-  const char* draw = d == draw_shape::uniform ? "uniform" : d == draw_shape::normal ? "normal" : "truncated normal";
-  const auto add = [&](const char* family, fan_basis b, const std::string& what, double value) {
+  const auto add = [&](fan_basis b) {
     scheme_candidate c;
     c.rule = fan_scaled{variance * fan_scaled{1, b, d, 2}.fan(f), b, d, 2};
-    c.scheme = std::string(family) + " " + draw;
+    name_candidate(c, c.rule, draw_name(d));
     c.fan = fan_text(b, f);
-    c.parameter = what + " " + short_number(value, 4);
-    c.parameter_value = value;
     out.push_back(c);
   };
   const double s_in = variance * static_cast<double>(f.fan_in);
   const double s_out = variance * static_cast<double>(f.fan_out);
-  const double s_avg = variance * 0.5 * (static_cast<double>(f.fan_in) + static_cast<double>(f.fan_out));
-  if (s_in <= 2) add("He", fan_basis::in, "slope", std::sqrt(2 / s_in - 1));
-  add("Glorot", fan_basis::average, "gain", std::sqrt(s_avg));
-  if (s_out <= 2) add("He", fan_basis::out, "slope", std::sqrt(2 / s_out - 1));
-  if (s_in > 2) add("variance scaling", fan_basis::in, "scale", s_in);
+  if (s_in <= 2) add(fan_basis::in);  // He on fan-in with a slope
+  add(fan_basis::average);            // Glorot with a gain
+  if (s_out <= 2) add(fan_basis::out);
+  if (s_in > 2) add(fan_basis::in);   // LeCun with a gain
   return out;
 }
 
-inline identification identify(const gathered& g, const weight_info& w, const shape& global, const precision& p) {
-  const fans& f = w.fans;
-  identification out;
+// Names g by its structure, in the order of the header comment (non-finite, constant,
+// identity, centre-tap identity or delta-orthogonal, orthogonal, sparse): true, with
+// out->structure (and out->gain) set, when it has one.
+inline bool name_structure(const gathered& g, const weight_info& w, const shape& global, const precision& p,
+                           identification* out) {
   if (g.non_finite != 0) {
-    out.structure = "non-finite: " + non_finite_sentence(g);
-    return out;
+    out->structure = "non-finite: " + non_finite_sentence(g);
+    return true;
   }
   const auto [lo, hi] = std::minmax_element(g.values.begin(), g.values.end());
   if (*lo == *hi) {
-    out.structure = "constant " + short_number(*lo, 6);
-    return out;
+    out->structure = "constant " + short_number(*lo, 6);
+    return true;
   }
   if (g.whole && g.rows > 1 && g.cols > 1) {
     double gain = 0;
     if (is_dense_layout(w.layout) && global.rank() == 2 && dense_identity(g, &gain)) {
-      out.structure = "identity, gain " + short_number(gain, 4);
-      out.gain = gain;
-      return out;
+      out->structure = "identity, gain " + short_number(gain, 4);
+      out->gain = gain;
+      return true;
     }
     if (is_convolution_layout(w.layout) && global.rank() >= 3 && global.rank() <= 5) {
       bool geometry_ok = true;
@@ -266,16 +280,16 @@ inline identification identify(const gathered& g, const weight_info& w, const sh
       if (geometry_ok && geo.taps > 1) {
         const std::string what = centre_tap_structure(g, geo, global, w.layout, p, &gain);
         if (!what.empty()) {
-          out.structure = what + ", gain " + short_number(gain, 4);
-          out.gain = gain;
-          return out;
+          out->structure = what + ", gain " + short_number(gain, 4);
+          out->gain = gain;
+          return true;
         }
       }
     }
     if (orthogonal_units(g, p, &gain)) {
-      out.structure = "orthogonal, gain " + short_number(gain, 4);
-      out.gain = gain;
-      return out;
+      out->structure = "orthogonal, gain " + short_number(gain, 4);
+      out->gain = gain;
+      return true;
     }
   }
   if (g.whole && g.cols > 1) {  // the same number k < cols of nonzeros in every unit: sparse
@@ -288,12 +302,18 @@ inline identification identify(const gathered& g, const weight_info& w, const sh
       same = c == k;
     }
     if (same && k * 2 <= g.cols) {
-      out.structure = "sparse, " + std::to_string(k) + " nonzero a unit";
-      return out;
+      out->structure = "sparse, " + std::to_string(k) + " nonzero a unit";
+      return true;
     }
   }
-  std::vector<double> sorted = g.values;
+  return false;
+}
+
+// Every fan-scaled candidate for the values, best first (see the header comment): the
+// fixed rules of each draw, and the fitted ones for a draw none of them fits.
+inline std::vector<scheme_candidate> rank_candidates(std::vector<double> sorted, const fans& f) {
   std::sort(sorted.begin(), sorted.end());
+  std::vector<scheme_candidate> ranking;
   // Mean square and its relative standard error, for the variance check and the fitted candidates.
   double m2 = 0, m4 = 0;
   for (double x : sorted) {
@@ -311,30 +331,36 @@ inline identification identify(const gathered& g, const weight_info& w, const sh
         const fan_scaled rule{scale, b, d, 2};
         const declared dd = visit_distribution(rule.distribution(f), [](const auto& x) { return declare(x); });
         scheme_candidate c;
-        c.scheme = candidate_name(rule);
+        name_candidate(c, rule, draw_name(d));
         c.fan = fan_text(b, f);
         c.rule = rule;
         c.ks_statistic = ks_statistic_sorted(sorted, [&dd](double x) { return dd.cdf(x); });
         c.variance_fits = std::abs(std::log(m2 / rule.variance(f))) <= 3.89 * rel_se;
         some_fixed_fits = some_fixed_fits || c.variance_fits;
-        out.ranking.push_back(c);
+        ranking.push_back(c);
       }
     }
     if (some_fixed_fits || !(m2 > 0) || rel_se == 0) continue;
     for (scheme_candidate& c : fitted_candidates(d, m2, f)) {
       const declared dd = visit_distribution(c.rule.distribution(f), [](const auto& x) { return declare(x); });
       c.ks_statistic = ks_statistic_sorted(sorted, [&dd](double x) { return dd.cdf(x); });
-      out.ranking.push_back(c);
+      ranking.push_back(c);
     }
   }
   // Candidates whose variance the mean square rejects go last: the variance test is far
   // more powerful against a wrong scale than the KS distance (a 4% variance error is 7
   // standard errors at 65536 values, yet moves the normal CDF by only 0.005).
-  std::stable_sort(out.ranking.begin(), out.ranking.end(), [](const scheme_candidate& a, const scheme_candidate& b) {
+  std::stable_sort(ranking.begin(), ranking.end(), [](const scheme_candidate& a, const scheme_candidate& b) {
     if (a.variance_fits != b.variance_fits) return a.variance_fits;
     return a.ks_statistic < b.ks_statistic;
   });
-  for (scheme_candidate& c : out.ranking) c.score = ks_p_value(sorted.size(), c.ks_statistic).p_value;
+  for (scheme_candidate& c : ranking) c.score = ks_p_value(sorted.size(), c.ks_statistic).p_value;
+  return ranking;
+}
+
+inline identification identify(const gathered& g, const weight_info& w, const shape& global, const precision& p) {
+  identification out;
+  if (!name_structure(g, w, global, p, &out)) out.ranking = rank_candidates(g.values, w.fans);
   return out;
 }
 
@@ -354,8 +380,7 @@ identification identify_scheme(const strided_view<E>& v, const weight_info& w) {
 template <class E, class Layer, class = decltype(std::declval<const Layer&>().layer_fans())>
 identification identify_scheme(const strided_view<E>& v, const Layer& layer) {
   static_assert(!detail::is_packed<Layer>::value, "identify the blocks of a packed weight one by one");
-  layer.check_shape(detail::shape_vector(v.global_shape()));
-  return identify_scheme(v, weight_info{layer.layer_fans(), detail::layout_of(layer)});
+  return identify_scheme(v, weight_info_of(layer, v.global_shape()));
 }
 
 }  // namespace kindling

@@ -36,10 +36,6 @@ class audit_report {
   explicit audit_report(std::string subject) : subject_(std::move(subject)) {}
 
   void add(audit_finding f) { findings_.push_back(std::move(f)); }
-  /// Appends every finding of another report (its subject is dropped).
-  void merge(const audit_report& other) {
-    findings_.insert(findings_.end(), other.findings_.begin(), other.findings_.end());
-  }
 
   bool passed() const noexcept {
     for (const audit_finding& f : findings_) {

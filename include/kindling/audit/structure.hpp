@@ -21,7 +21,7 @@
 #include <vector>
 
 #include "../schemes/detail/centre_tap.hpp"
-#include "detail/centre_taps.hpp"
+#include "detail/centre_split.hpp"
 #include "detail/gather.hpp"
 #include "result.hpp"
 
@@ -114,7 +114,7 @@ template <class E, class Layer, std::enable_if_t<detail::is_packed<Layer>::value
 audit_report check_orthogonal(const strided_view<E>& v, const Layer& layer, double gain = 1,
                               double tolerance = 1e-5) {
   detail::check_gain_and_tolerance("check_orthogonal", gain, tolerance);
-  layer.check_shape(detail::shape_vector(v.global_shape()));
+  const weight_layout layout = weight_info_of(layer, v.global_shape()).layout;
   if (!v.is_whole()) {
     throw std::invalid_argument("kindling::check_orthogonal: argument 'view' holds only the region " +
                                 v.part().text() + " of the packed weight " + v.global_shape().text() +
@@ -125,8 +125,8 @@ audit_report check_orthogonal(const strided_view<E>& v, const Layer& layer, doub
                       detail::short_number(gain, 6));
   for (const packed_block& b : blocks) {
     strided_view<E> part = v;
-    detail::block_part(v, b, &part);
-    const audit_report one = check_orthogonal(part, gain, tolerance, detail::layout_of(layer));
+    packed_block_view(v, b, &part);
+    const audit_report one = check_orthogonal(part, gain, tolerance, layout);
     for (audit_finding f : one.findings()) {
       f.sentence = "block " + std::to_string(b.index) + ": " + f.sentence;
       report.add(f);
@@ -187,7 +187,7 @@ audit_report check_delta_orthogonal(const strided_view<E>& v, const weight_info&
 template <class E, class Layer, class = decltype(std::declval<const Layer&>().layer_fans())>
 audit_report check_delta_orthogonal(const strided_view<E>& v, const Layer& layer, double gain = 1,
                                     double tolerance = 1e-5) {
-  return check_delta_orthogonal(v, weight_info{layer.layer_fans(), detail::layout_of(layer)}, gain, tolerance);
+  return check_delta_orthogonal(v, weight_info_of(layer, v.global_shape()), gain, tolerance);
 }
 
 /// Exactly k nonzero incoming weights in every unit.

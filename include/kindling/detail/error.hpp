@@ -21,10 +21,13 @@ inline std::string argument_text(double x) {
   return buffer;
 }
 
-// "kindling::<function>: argument '<name>' = <value>, expected <what>".
+// "kindling::<function>: argument '<name>' = <value>, expected <what>". `function` may
+// carry the "kindling::" prefix already (many checks pass their caller's full name on).
 inline std::string argument_message(std::string_view function, std::string_view name,
                                     std::string_view value, std::string_view expected) {
-  std::string m = "kindling::";
+  constexpr std::string_view prefix = "kindling::";
+  if (function.substr(0, prefix.size()) == prefix) function.remove_prefix(prefix.size());
+  std::string m(prefix);
   m.append(function).append(": argument '").append(name).append("' = ").append(value);
   m.append(", expected ").append(expected);
   return m;

@@ -64,6 +64,7 @@
 #include "../model/plan.hpp"
 #include "../model/rules.hpp"
 #include "../random/siphash.hpp"
+#include "json_keys.hpp"
 #include "read_file.hpp"
 #include "replace_file.hpp"
 #include "safetensors.hpp"
@@ -373,31 +374,6 @@ inline model_plan plan_from_json(const nlohmann::json& doc, const std::string& s
     if (m.rfind(source, 0) == 0) throw;
     throw std::invalid_argument(source + ": " + m);
   }
-}
-
-/// Parses JSON text, refusing repeated keys (nlohmann would keep the last one silently).
-inline nlohmann::json parse_json_once(const std::string& text, const std::string& source) {
-  std::vector<std::set<std::string>> open;
-  std::string repeated;
-  const nlohmann::json::parser_callback_t note = [&](int, nlohmann::json::parse_event_t e, nlohmann::json& v) {
-    if (e == nlohmann::json::parse_event_t::object_start) open.emplace_back();
-    if (e == nlohmann::json::parse_event_t::object_end && !open.empty()) open.pop_back();
-    if (e == nlohmann::json::parse_event_t::key && !open.empty() && !open.back().insert(v.get<std::string>()).second &&
-        repeated.empty()) {
-      repeated = v.get<std::string>();
-    }
-    return true;
-  };
-  nlohmann::json doc;
-  try {
-    doc = nlohmann::json::parse(text, note);
-  } catch (const nlohmann::json::exception& e) {
-    throw std::invalid_argument(source + ": not valid JSON (" + std::string(e.what()) + ")");
-  }
-  if (!repeated.empty()) {
-    throw std::invalid_argument(source + ": key '" + repeated + "' appears twice in one object, expected each key once");
-  }
-  return doc;
 }
 
 /// Reads a plan file (at most plan_max_bytes).

@@ -31,6 +31,7 @@
 #include <limits>
 #include <stdexcept>
 #include <string>
+#include <type_traits>
 #include <vector>
 
 #include "../element.hpp"
@@ -93,36 +94,27 @@ struct npy_array {
 
 namespace detail {
 
+// The .npy type of an element type, and an element's bits (IEEE 754 binary16, bfloat16,
+// binary32 or binary64) as the file stores them, before the byte order.
 template <class E>
-struct npy_of;
-template <>
-struct npy_of<float16> {
-  static constexpr npy_type type = npy_type::f16;
-  static std::uint64_t bits(float16 x) noexcept { return x.bits; }
-};
-template <>
-struct npy_of<bfloat16> {
-  static constexpr npy_type type = npy_type::bf16;
-  static std::uint64_t bits(bfloat16 x) noexcept { return x.bits; }
-};
-template <>
-struct npy_of<float> {
-  static constexpr npy_type type = npy_type::f32;
-  static std::uint64_t bits(float x) noexcept {
-    std::uint32_t u;
-    std::memcpy(&u, &x, sizeof u);
-    return u;
+constexpr npy_type npy_type_of() noexcept {
+  static_assert(std::is_same<E, float16>::value || std::is_same<E, bfloat16>::value ||
+                    std::is_same<E, float>::value || std::is_same<E, double>::value,
+                "a .npy array holds float16, bfloat16, float or double");
+  if constexpr (std::is_same<E, float16>::value) return npy_type::f16;
+  if constexpr (std::is_same<E, bfloat16>::value) return npy_type::bf16;
+  if constexpr (std::is_same<E, float>::value) return npy_type::f32;
+  return npy_type::f64;
+}
+
+template <class E>
+std::uint64_t npy_bits(E x) noexcept {
+  if constexpr (std::is_same<E, float16>::value || std::is_same<E, bfloat16>::value) {
+    return x.bits;
+  } else {
+    return bits_of(x);  // detail/dmath.hpp
   }
-};
-template <>
-struct npy_of<double> {
-  static constexpr npy_type type = npy_type::f64;
-  static std::uint64_t bits(double x) noexcept {
-    std::uint64_t u;
-    std::memcpy(&u, &x, sizeof u);
-    return u;
-  }
-};
+}
 
 inline std::string npy_shape_text(const std::vector<std::uint64_t>& shape) {
   std::string s = "(";
@@ -490,7 +482,7 @@ template <class E>
 npy_array make_npy(std::vector<std::uint64_t> shape, const std::vector<E>& values) {
   npy_array a;
   a.shape = std::move(shape);
-  a.type = detail::npy_of<E>::type;
+  a.type = detail::npy_type_of<E>();
   if (a.size() != values.size()) {
     throw std::length_error("kindling::make_npy: argument 'values' has " + std::to_string(values.size()) +
                             " elements, expected " + std::to_string(a.size()) + " for shape " +
@@ -499,7 +491,7 @@ npy_array make_npy(std::vector<std::uint64_t> shape, const std::vector<E>& value
   const std::size_t item = npy_type_size(a.type);
   a.bytes.resize(values.size() * item);
   for (std::size_t i = 0; i < values.size(); ++i) {
-    const std::uint64_t b = detail::npy_of<E>::bits(values[i]);
+    const std::uint64_t b = detail::npy_bits(values[i]);
     for (std::size_t k = 0; k < item; ++k) a.bytes[i * item + k] = static_cast<unsigned char>((b >> (8 * k)) & 0xffu);
   }
   return a;

@@ -461,13 +461,9 @@ class npz_reader {
       fail("needs bytes [" + std::to_string(at) + ", " + std::to_string(at + size) + ") beyond its " +
            std::to_string(size_) + " bytes (truncated?)");
     }
-    while (size > 0) {
-      const ssize_t n = ::pread(fd_, out, size, static_cast<off_t>(at));
-      if (n < 0 && errno == EINTR) continue;
-      if (n <= 0) fail("cannot be read at byte " + std::to_string(at) + " (file shrank?)");
-      out += n;
-      at += static_cast<std::uint64_t>(n);
-      size -= static_cast<std::size_t>(n);
+    std::uint64_t reached = at;
+    if (!detail::read_exactly_at(fd_, at, out, size, &reached)) {
+      fail("cannot be read at byte " + std::to_string(reached) + " (file shrank?)");
     }
   }
 

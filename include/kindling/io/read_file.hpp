@@ -23,6 +23,29 @@
 
 namespace kindling {
 
+namespace detail {
+
+// Reads exactly `size` bytes from byte `at` of the open file `fd` (pread: retried when a
+// signal interrupts it or it returns fewer bytes). Returns false if the file ends or a
+// read fails first (a file that shrank while read), with *reached the byte it got to.
+// The readers of .npz and safetensors files, which seek within one open file, share it.
+inline bool read_exactly_at(int fd, std::uint64_t at, char* out, std::size_t size, std::uint64_t* reached) {
+  while (size > 0) {
+    const ssize_t n = ::pread(fd, out, size, static_cast<off_t>(at));
+    if (n < 0 && errno == EINTR) continue;
+    if (n <= 0) {
+      *reached = at;
+      return false;
+    }
+    out += n;
+    at += static_cast<std::uint64_t>(n);
+    size -= static_cast<std::size_t>(n);
+  }
+  return true;
+}
+
+}  // namespace detail
+
 /// An input file opened for bounded reading (move-only; closes on destruction).
 class bounded_reader {
  public:

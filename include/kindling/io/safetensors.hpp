@@ -41,6 +41,8 @@
 #include <nlohmann/json.hpp>
 
 #include "../element.hpp"
+#include "json_keys.hpp"
+#include "read_file.hpp"
 #include "replace_file.hpp"
 
 namespace kindling {
@@ -120,24 +122,20 @@ inline safetensors_index parse_safetensors_header(const std::string& text, std::
                                                   const std::string& source) {
   using detail::st_fail;
   using detail::st_value;
-  // nlohmann keeps the last of repeated keys; a repeated tensor name is refused.
-  std::set<std::string> names;
-  std::string repeated;
-  const nlohmann::json::parser_callback_t note = [&](int d, nlohmann::json::parse_event_t e, nlohmann::json& parsed) {
-    if (e == nlohmann::json::parse_event_t::key && d == 1 && !names.insert(parsed.get<std::string>()).second &&
-        repeated.empty()) {
-      repeated = parsed.get<std::string>();
-    }
-    return true;
-  };
+  repeated_json_key repeated;  // io/json_keys.hpp: a repeated tensor name, or key of one
   nlohmann::json doc;
   try {
-    doc = nlohmann::json::parse(text, note);
+    doc = detail::parse_json_noting_repeats(text, &repeated);
   } catch (const nlohmann::json::exception& e) {
     st_fail(source, "the header is not valid JSON (" + std::string(e.what()) + "), expected a JSON object");
   }
   if (!doc.is_object()) st_fail(source, "the header is " + st_value(doc) + ", expected a JSON object");
-  if (!repeated.empty()) st_fail(source, "tensor '" + repeated + "' appears twice in the header, expected each name once");
+  if (repeated.depth == 1) {
+    st_fail(source, "tensor '" + repeated.key + "' appears twice in the header, expected each name once");
+  }
+  if (!repeated.key.empty()) {
+    st_fail(source, "key '" + repeated.key + "' appears twice in one object of the header, expected each key once");
+  }
   safetensors_index index;
   for (auto it = doc.begin(); it != doc.end(); ++it) {
     const std::string& name = it.key();
@@ -272,13 +270,9 @@ class safetensors_reader {
 
  private:
   void read_at(std::uint64_t at, char* out, std::size_t size) const {
-    while (size > 0) {
-      const ssize_t n = ::pread(fd_, out, size, static_cast<off_t>(at));
-      if (n < 0 && errno == EINTR) continue;
-      if (n <= 0) detail::st_fail(source_, "cannot be read at byte " + std::to_string(at) + " (file shrank?)");
-      out += n;
-      at += static_cast<std::uint64_t>(n);
-      size -= static_cast<std::size_t>(n);
+    std::uint64_t reached = at;
+    if (!detail::read_exactly_at(fd_, at, out, size, &reached)) {
+      detail::st_fail(source_, "cannot be read at byte " + std::to_string(reached) + " (file shrank?)");
     }
   }
 

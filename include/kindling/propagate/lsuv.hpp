@@ -103,8 +103,7 @@ class lsuv_layer {
   static weight_info info_of(const Layer& layer, const strided_view<E>& weight) {
     static_assert(!detail::is_packed<Layer>::value,
                   "LSUV rescales a weight as one block; give each block of a packed layer its own lsuv_layer");
-    layer.check_shape(detail::shape_vector(weight.global_shape()));
-    return weight_info{layer.layer_fans(), detail::layout_of(layer)};
+    return weight_info_of(layer, weight.global_shape());
   }
 
   template <class Forward>

@@ -86,7 +86,7 @@ class nonlinearity {
  public:
   nonlinearity(const activation& a)  // NOLINT: implicit, an activation is a nonlinearity
       : name_(a.name()), value_([a](double x) { return a(x); }),
-        slope_([a](double x) { return a.derivative(x); }), kink_(a.kink()), builtin_(a) {}
+        slope_([a](double x) { return a.derivative(x); }), kink_(a.kink()) {}
 
   /// Any callable phi with its derivative; `kink` where either is not smooth.
   static nonlinearity custom(std::string name, std::function<double(double)> phi,
@@ -106,8 +106,6 @@ class nonlinearity {
 
   const std::string& name() const noexcept { return name_; }
   std::optional<double> kink() const noexcept { return kink_; }
-  /// The gain.hpp activation this was made from, if any.
-  const std::optional<activation>& builtin() const noexcept { return builtin_; }
   double operator()(double x) const { return value_(x); }
   double slope(double x) const { return slope_(x); }
 
@@ -150,7 +148,6 @@ class nonlinearity {
   std::function<double(double)> value_;
   std::function<double(double)> slope_;
   std::optional<double> kink_;
-  std::optional<activation> builtin_;
 };
 
 namespace detail {

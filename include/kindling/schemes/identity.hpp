@@ -54,19 +54,20 @@ struct identity {
     detail::require_finite_argument(gain, "identity", "gain");
     if (detail::is_dense_layout(w.layout)) {
       if (global.rank() != 2) {
-        throw std::invalid_argument("kindling::identity: argument 'shape' = " + global.text() +
-                                    " has rank " + std::to_string(global.rank()) +
-                                    ", expected rank 2 for layout " + std::string(layout_name(w.layout)));
+        detail::reject_argument<std::invalid_argument>(
+            "identity", "shape", global.text(),
+            "rank 2 for layout " + std::string(layout_name(w.layout)) + " (it has rank " +
+                std::to_string(global.rank()) + ")");
       }
       return;
     }
     const detail::centre_tap_geometry g = detail::centre_tap_geometry::of(global, w, "identity");
     if (g.out_per_group() != g.in) {
-      throw std::invalid_argument(
-          "kindling::identity: argument 'shape' = " + global.text() + " has " + std::to_string(g.out) +
-          " output channels and " + std::to_string(g.in * g.groups) + " input channels (" +
-          std::to_string(g.groups) + " groups); expected out_channels == in_channels, so that the "
-          "kernel copies its input (use orthogonal or delta_orthogonal for a rectangular kernel)");
+      detail::reject_argument<std::invalid_argument>(
+          "identity", "shape", global.text(),
+          "out_channels == in_channels, so that the kernel copies its input (it has " + std::to_string(g.out) +
+              " output channels and " + std::to_string(g.in * g.groups) + " input channels (" +
+              std::to_string(g.groups) + " groups); use orthogonal or delta_orthogonal for a rectangular kernel)");
     }
   }
 

@@ -91,9 +91,10 @@ inline constexpr std::uint64_t max_orthogonal_entries = std::uint64_t{1} << 28;
 inline void require_orthogonal_size(std::uint64_t rows, std::uint64_t cols, const shape& global,
                                     const char* scheme) {
   if (rows != 0 && cols > max_orthogonal_entries / rows) {
-    throw std::length_error(std::string("kindling::") + scheme + ": argument 'shape' = " + global.text() +
-                            " needs a dense QR of a " + std::to_string(rows) + " x " + std::to_string(cols) +
-                            " matrix; expected at most 2^28 entries (e.g. 16384 x 16384)");
+    detail::reject_argument<std::length_error>(
+        scheme, "shape", global.text(),
+        "a matrix of at most 2^28 entries for the dense QR (e.g. 16384 x 16384; this one is " +
+            std::to_string(rows) + " x " + std::to_string(cols) + ")");
   }
 }
 
@@ -106,11 +107,11 @@ template <class E>
 void require_orthogonal_region(const strided_view<E>& v, std::uint64_t rows, std::uint64_t cols,
                                const char* scheme) {
   if (v.is_whole() || cols <= max_orthogonal_region_entries / rows) return;
-  throw std::length_error(std::string("kindling::") + scheme + ": argument 'region' (" + v.part().text() +
-                          ") of shape " + v.global_shape().text() + " needs the whole " + std::to_string(rows) +
-                          " x " + std::to_string(cols) +
-                          " factorization, however small the region; expected a region of a weight whose "
-                          "matrix has at most 2^26 entries (e.g. 8192 x 8192), or the whole tensor");
+  detail::reject_argument<std::length_error>(
+      scheme, "region", v.part().text() + " of shape " + v.global_shape().text(),
+      "a region of a weight whose matrix has at most 2^26 entries (e.g. 8192 x 8192), or the whole tensor "
+      "(this region needs the whole " + std::to_string(rows) + " x " + std::to_string(cols) +
+          " factorization, however small it is)");
 }
 
 /// A dense double matrix in row-major storage (the order the writers read it in).
@@ -177,10 +178,10 @@ struct orthogonal {
   void check(const shape& global, const weight_info& w) const {
     detail::require_finite_argument(gain, "orthogonal", "gain");
     if (global.rank() < 2) {
-      throw std::invalid_argument("kindling::orthogonal: argument 'shape' = " + global.text() + " has rank " +
-                                  std::to_string(global.rank()) +
-                                  ", expected a weight of rank >= 2 (units by incoming connections); a "
-                                  "rank-1 tensor such as a bias has no orthogonal structure");
+      detail::reject_argument<std::invalid_argument>(
+          "orthogonal", "shape", global.text(),
+          "a weight of rank >= 2 (units by incoming connections; it has rank " + std::to_string(global.rank()) +
+              ", and a rank-1 tensor such as a bias has no orthogonal structure)");
     }
     const detail::unit_matrix um(global, w.layout);
     detail::require_orthogonal_size(um.rows, um.cols, global, "orthogonal");

@@ -1,7 +1,7 @@
 // kindling/schemes/registry.hpp: a scheme as a value, and the one table of scheme names
 // and the arguments each takes.
 //
-// The tool, the network-spec reader (io/spec.hpp) and model plans (io/plan.hpp) all
+// The tool, its network-spec reader (examples/tool/spec.hpp) and model plans (io/plan.hpp) all
 // name schemes by text, e.g. "he-normal" or "glorot-uniform(gain=1.5)". They all go
 // through scheme_registry(), so a name means the same scheme everywhere.
 //

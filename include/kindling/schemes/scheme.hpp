@@ -112,6 +112,23 @@ bool block_part(const strided_view<E>& v, const packed_block& b, strided_view<E>
 
 }  // namespace detail
 
+/// The fans and layout of a layer's weight stored with global shape `global`, after
+/// checking that `global` is the layer's weight shape (std::invalid_argument naming it
+/// otherwise). Of a packed layer: the fans of one block (each block has its own stream).
+/// This is how initialize(), the audits and the calibrations read a layer description.
+template <class Layer>
+weight_info weight_info_of(const Layer& layer, const shape& global) {
+  layer.check_shape(detail::shape_vector(global));
+  return weight_info{layer.layer_fans(), detail::layout_of(layer)};
+}
+
+/// The part of view v that falls in block b of a packed weight, as a view of the block's
+/// own global shape (a weight of its own); false, and *out unchanged, if v holds none of it.
+template <class E>
+bool packed_block_view(const strided_view<E>& v, const packed_block& b, strided_view<E>* out) {
+  return detail::block_part(v, b, out);
+}
+
 /// Fills view v, the weight of `layer` (or a region of it), with `scheme` drawn from
 /// stream s. The view's global shape must be the layer's weight shape. For a packed
 /// layer (LSTM, GRU, fused attention projections) each block is a weight of its own:
@@ -121,8 +138,7 @@ template <class E, class Layer, class Scheme, class Exec = serial_executor>
 void initialize(const strided_view<E>& v, const Layer& layer, const Scheme& scheme, const stream& s,
                 Exec&& exec = Exec{}) {
   static_assert(detail::writes_into<E, Exec>());
-  layer.check_shape(detail::shape_vector(v.global_shape()));
-  const weight_layout layout = detail::layout_of(layer);
+  const weight_layout layout = weight_info_of(layer, v.global_shape()).layout;
   if constexpr (detail::is_packed<Layer>::value) {
     const std::vector<packed_block> blocks = layer.all_blocks();
     for (const packed_block& b : blocks) {

@@ -1,9 +1,9 @@
-// kindling/audit/detail/centre_taps.hpp: a gathered convolution kernel split into its
+// kindling/audit/detail/centre_split.hpp: a gathered convolution kernel split into its
 // centre tap, as an out x in matrix, and what lies at the other taps, which a
 // delta-orthogonal or centre-tap identity kernel has exactly zero. Shared by
 // check_delta_orthogonal (structure.hpp) and identify_scheme (identify.hpp).
-#ifndef KINDLING_AUDIT_DETAIL_CENTRE_TAPS_HPP
-#define KINDLING_AUDIT_DETAIL_CENTRE_TAPS_HPP
+#ifndef KINDLING_AUDIT_DETAIL_CENTRE_SPLIT_HPP
+#define KINDLING_AUDIT_DETAIL_CENTRE_SPLIT_HPP
 
 #include <cstddef>
 #include <cstdint>
@@ -51,4 +51,4 @@ inline centre_taps split_centre_taps(const gathered& g, const centre_tap_geometr
 
 }  // namespace kindling::detail
 
-#endif  // KINDLING_AUDIT_DETAIL_CENTRE_TAPS_HPP
+#endif  // KINDLING_AUDIT_DETAIL_CENTRE_SPLIT_HPP

@@ -1,5 +1,7 @@
-// kindling/io/spec.hpp: a layer stack described in JSON, for `kindling plan` and for
-// programs that keep their network's shape in a file.
+// examples/tool/spec.hpp: a layer stack described in JSON, for `kindling plan`. It is
+// the tool's, not the library's (only the tool reads network specs; the library's
+// public headers need no JSON library for them); tests/tool and the spec fuzz target
+// include it from here.
 //
 //   {"input": {"width": 64, "variance": 1.0},
 //    "layers": [{"width": 256, "activation": "relu", "scheme": "he-normal"},
@@ -55,8 +57,8 @@
 //
 // Needs nlohmann-json (Debian nlohmann-json3-dev) and, for the orthogonal scheme's
 // variance, Eigen; the core of kindling needs neither.
-#ifndef KINDLING_IO_SPEC_HPP
-#define KINDLING_IO_SPEC_HPP
+#ifndef KINDLING_TOOL_SPEC_HPP
+#define KINDLING_TOOL_SPEC_HPP
 
 #include <cmath>
 #include <cstdint>
@@ -71,12 +73,13 @@
 
 #include <nlohmann/json.hpp>
 
-#include "../gain.hpp"
-#include "../propagate/measure.hpp"
-#include "../propagate/recurrent.hpp"
-#include "../propagate/stack.hpp"
-#include "../schemes/registry.hpp"
-#include "read_file.hpp"
+#include <kindling/gain.hpp>
+#include <kindling/propagate/measure.hpp>
+#include <kindling/propagate/recurrent.hpp>
+#include <kindling/propagate/stack.hpp>
+#include <kindling/schemes/registry.hpp>
+#include <kindling/io/json_keys.hpp>
+#include <kindling/io/read_file.hpp>
 
 namespace kindling {
 
@@ -238,7 +241,7 @@ inline void spec_check_depth(const std::string& text, const std::string& source)
       if (++depth > spec_max_depth) {
         throw std::invalid_argument("kindling network spec " + source + ": nested deeper than " +
                                     std::to_string(spec_max_depth) + " levels at byte " + std::to_string(i) +
-                                    ", expected a JSON object as in kindling/io/spec.hpp (3 levels)");
+                                    ", expected a JSON object as in examples/tool/spec.hpp (3 levels)");
       }
     } else if ((c == '}' || c == ']') && depth > 0) {
       --depth;
@@ -414,32 +417,21 @@ inline void build_all_sections(const network_spec& spec);  // build_sections, fo
 inline network_spec parse_network_spec(const std::string& text, const std::string& source = "(text)") {
   using namespace detail;
   spec_check_depth(text, source);
-  // nlohmann keeps the last of repeated keys; a spec with a repeated key is refused.
-  std::vector<std::set<std::string>> open;
-  std::string repeated;
-  const nlohmann::json::parser_callback_t note = [&](int, nlohmann::json::parse_event_t e, nlohmann::json& parsed) {
-    if (e == nlohmann::json::parse_event_t::object_start) open.emplace_back();
-    if (e == nlohmann::json::parse_event_t::object_end && !open.empty()) open.pop_back();
-    if (e == nlohmann::json::parse_event_t::key && !open.empty() && !open.back().insert(parsed.get<std::string>()).second &&
-        repeated.empty()) {
-      repeated = parsed.get<std::string>();
-    }
-    return true;
-  };
+  repeated_json_key repeated;  // io/json_keys.hpp: a spec with a repeated key is refused
   nlohmann::json doc;
   try {
-    doc = nlohmann::json::parse(text, note);
+    doc = detail::parse_json_noting_repeats(text, &repeated);
   } catch (const nlohmann::json::parse_error& e) {
     throw std::invalid_argument("kindling network spec " + source + ": not valid JSON (byte " +
-                                std::to_string(e.byte) + "), expected a JSON object as in kindling/io/spec.hpp");
+                                std::to_string(e.byte) + "), expected a JSON object as in examples/tool/spec.hpp");
   } catch (const nlohmann::json::exception& e) {
     // Anything else the parser rejects (a number beyond double's range, found by the
     // fuzzer: tests/fuzz/regressions/spec/number_overflow_406.json) is bad input too.
     throw std::invalid_argument("kindling network spec " + source + ": not a JSON document we can read (" +
-                                std::string(e.what()) + "), expected a JSON object as in kindling/io/spec.hpp");
+                                std::string(e.what()) + "), expected a JSON object as in examples/tool/spec.hpp");
   }
-  if (!repeated.empty()) {
-    throw std::invalid_argument("kindling network spec " + source + ": key '" + repeated +
+  if (!repeated.key.empty()) {
+    throw std::invalid_argument("kindling network spec " + source + ": key '" + repeated.key +
                                 "' appears twice in one object, expected each key once");
   }
   network_spec spec;
@@ -668,4 +660,4 @@ inline void build_all_sections(const network_spec& spec) { (void)build_sections(
 
 }  // namespace kindling
 
-#endif  // KINDLING_IO_SPEC_HPP
+#endif  // KINDLING_TOOL_SPEC_HPP
