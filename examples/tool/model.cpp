@@ -256,10 +256,11 @@ template <class E>
 void audit_values(const model_parameter& p, std::uint64_t seed, std::vector<char>& bytes, double alpha,
                   tensor_verdict* out) {
   const std::vector<std::uint64_t> s = p.full_shape();
+  // The file's little-endian bytes in the host's order, swapped in place (a no-op on a
+  // little-endian host): one typed copy, no second byte buffer.
   std::vector<E> values(bytes.size() / sizeof(E));
-  std::vector<char> host = bytes;  // the file's little-endian bytes in the host's order
-  to_little_endian(reinterpret_cast<unsigned char*>(host.data()), values.size(), sizeof(E));
-  std::memcpy(values.data(), host.data(), host.size());
+  std::memcpy(values.data(), bytes.data(), values.size() * sizeof(E));
+  to_little_endian(reinterpret_cast<unsigned char*>(values.data()), values.size(), sizeof(E));
   const strided_view<const E> v(values.data(), shape(s.begin(), s.end()));
   const audit_report r = scheme_report<E>(p, seed, v, bytes, alpha);
   std::vector<char>().swap(bytes);
