@@ -40,6 +40,7 @@ namespace detail {
 // element_traits of a foreign 16-bit type that has the same bits as one of ours.
 template <class Foreign, class Ours>
 struct forwarded_element_traits : element_traits<Ours> {
+  using stored_as = Ours;  // the audits test Foreign's values as Ours's (audit/detail/stored.hpp)
   using compute_type = typename element_traits<Ours>::compute_type;
   static Foreign from_compute(compute_type x, const element_bounds& b) noexcept {
     return Eigen::numext::bit_cast<Foreign>(element_traits<Ours>::from_compute(x, b).bits);

@@ -304,3 +304,24 @@ TEST_CASE("an interval of a level below 100% is never printed as 100%") {
   CHECK_MESSAGE(mentions(mean, "99.997% interval"), mean);
   CHECK_MESSAGE(!mentions(mean, "(100%"), mean);
 }
+
+TEST_CASE("float and float16 verdicts are the same bit for bit on every executor") {
+  std::vector<float> w;
+  const auto v = drawn<float>(w, 300, 700, dist::normal{0.01, 0.05}, 5);  // 4 chunks and a part
+  std::vector<float16> h;
+  const auto vh = drawn<float16>(h, 300, 700, dist::symmetric_uniform{0.2}, 6);
+  const audit_report pairs[2][2] = {
+      {check_distribution(v, dist::normal{0.01, 0.05}),
+       check_distribution(v, dist::normal{0.01, 0.05}, {}, "", thread_executor(3))},
+      {check_distribution(vh, dist::symmetric_uniform{0.2}),
+       check_distribution(vh, dist::symmetric_uniform{0.2}, {}, "", thread_executor(2))}};
+  for (const auto& pair : pairs) {
+    CHECK_MESSAGE(pair[0].passed(), pair[0].explain());
+    REQUIRE(pair[0].findings().size() == pair[1].findings().size());
+    for (std::size_t i = 0; i < pair[0].findings().size(); ++i) {
+      CHECK(pair[0].findings()[i].sentence == pair[1].findings()[i].sentence);
+      const double a = pair[0].findings()[i].statistic, b = pair[1].findings()[i].statistic;
+      CHECK((a == b || (std::isnan(a) && std::isnan(b))));
+    }
+  }
+}

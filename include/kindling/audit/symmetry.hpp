@@ -38,8 +38,8 @@
 //     probability q ≈ 0.3 % each).
 //
 // How, in bounded time and memory. One pass reads each unit in place (or through a
-// one-unit buffer, detail/gather.hpp's unit_reader), keeping per unit its minimum,
-// maximum and a 64-value signed sketch (coordinate t sums ±w_j over j ≡ t mod 64, signs
+// one-unit buffer, detail/gather.hpp's unit_reader), keeping per unit whether it is flat,
+// its norm and a 64-value signed sketch (coordinate t sums ±w_j over j ≡ t mod 64, signs
 // from a fixed hash: a sparse random projection that keeps cosines near 1, Achlioptas
 // 2003, Weinberger et al. 2009; for n <= 64 the sketch is the unit itself up to signs).
 // Exact duplicates have equal sketches: units are grouped by a hash of the sketch and
@@ -198,7 +198,8 @@ struct unit_summary {
   std::vector<float> sketch;                    // rows × width
   std::vector<float> sketch_norm;               // rows
   std::vector<std::uint64_t> zero_units, flat_units;
-  double lo = 0, hi = 0;  // smallest and largest value
+  bool all_equal = true;  // every value equals `first` (-0 and +0 are equal)
+  double first = 0;       // the first unit's first value
   bool finite = true;
 };
 
@@ -221,40 +222,44 @@ unit_summary summarize_units(const unit_reader<E>& reader) {
   constexpr std::size_t lanes = 16;  // independent accumulators, so the loops vectorize without reassociation
   for (std::uint64_t r = 0; r < s.rows; ++r) {
     const T* w = reader.unit(r, buffer.data());
-    T lo[lanes], hi[lanes], squares[lanes];
-    for (std::size_t l = 0; l < lanes; ++l) lo[l] = hi[l] = w[0], squares[l] = 0;
+    // A unit is flat when no value differs from its first (a count of the values that
+    // differ, rather than a minimum and maximum, so that the loop vectorizes).
+    const T first = w[0];
+    std::uint32_t differ[lanes] = {};
     std::size_t j = 0;
     for (; j + lanes <= s.cols; j += lanes) {
-      for (std::size_t l = 0; l < lanes; ++l) {
-        const T x = w[j + l];
-        lo[l] = x < lo[l] ? x : lo[l];
-        hi[l] = hi[l] < x ? x : hi[l];
-        squares[l] += x * x;
+      for (std::size_t l = 0; l < lanes; ++l) differ[l] += w[j + l] != first ? 1u : 0u;
+    }
+    for (; j < s.cols; ++j) differ[0] += w[j] != first ? 1u : 0u;
+    std::uint64_t differing = 0;
+    for (std::size_t l = 0; l < lanes; ++l) differing += differ[l];
+    T acc[sketch_width] = {};
+    std::uint64_t j0 = 0;
+    if (s.width == sketch_width) {  // a fixed trip count, so that the loop vectorizes
+      for (; j0 + sketch_width <= s.cols; j0 += sketch_width) {
+        for (std::size_t t = 0; t < sketch_width; ++t) acc[t] += sign[j0 + t] * w[j0 + t];
       }
     }
-    for (; j < s.cols; ++j) lo[0] = std::min(lo[0], w[j]), hi[0] = std::max(hi[0], w[j]), squares[0] += w[j] * w[j];
-    double unit_lo = lo[0], unit_hi = hi[0], sum = 0;
-    for (std::size_t l = 0; l < lanes; ++l) {
-      unit_lo = std::min<double>(unit_lo, lo[l]), unit_hi = std::max<double>(unit_hi, hi[l]);
-      sum += static_cast<double>(squares[l]);
-    }
-    if (!std::isfinite(sum)) {  // a NaN or infinity, or only squares that overflow
-      for (std::uint64_t i = 0; i < s.cols; ++i) s.finite = s.finite && std::isfinite(w[i]);
-      if (!s.finite) return s;
-    }
-    T acc[sketch_width] = {};
-    for (std::uint64_t j0 = 0; j0 < s.cols; j0 += s.width) {
+    for (; j0 < s.cols; j0 += s.width) {
       const std::uint64_t len = std::min(s.width, s.cols - j0);
       for (std::uint64_t t = 0; t < len; ++t) acc[t] += sign[j0 + t] * w[j0 + t];
+    }
+    // A NaN or an infinity in the unit leaves a sketch value that is not finite (so do
+    // sums that overflow: then the values themselves are looked at).
+    bool sketch_finite = true;
+    for (std::uint64_t t = 0; t < s.width; ++t) sketch_finite = sketch_finite && std::isfinite(acc[t]);
+    if (!sketch_finite) {
+      for (std::uint64_t i = 0; i < s.cols; ++i) s.finite = s.finite && std::isfinite(w[i]);
+      if (!s.finite) return s;
     }
     float* out = &s.sketch[static_cast<std::size_t>(r * s.width)];
     double norm = 0;
     for (std::uint64_t t = 0; t < s.width; ++t) out[t] = static_cast<float>(acc[t]), norm += double(out[t]) * out[t];
     s.sketch_norm[r] = static_cast<float>(std::sqrt(norm));
-    if (r == 0 || unit_lo < s.lo) s.lo = unit_lo;
-    if (r == 0 || unit_hi > s.hi) s.hi = unit_hi;
-    if (unit_lo == 0 && unit_hi == 0) s.zero_units.push_back(r);
-    if (s.cols >= 2 && unit_lo == unit_hi) s.flat_units.push_back(r);
+    if (r == 0) s.first = static_cast<double>(first);
+    s.all_equal = s.all_equal && differing == 0 && static_cast<double>(first) == s.first;
+    if (differing == 0 && first == 0) s.zero_units.push_back(r);
+    if (s.cols >= 2 && differing == 0) s.flat_units.push_back(r);
   }
   return s;
 }
@@ -298,26 +303,48 @@ inline std::uint64_t sketch_hash(const unit_summary& s, std::uint64_t r) {
   return h;
 }
 
-// Runs of equal keys in entries (key, unit), sorted: calls each(first, last) per run of 2 or more.
-template <class Each>
-void for_each_run(std::vector<std::pair<std::uint64_t, std::uint64_t>>& entries, Each each) {
-  std::sort(entries.begin(), entries.end());
-  for (std::size_t i = 0; i < entries.size();) {
-    std::size_t k = i + 1;
-    while (k < entries.size() && entries[k].first == entries[i].first) ++k;
-    if (k - i > 1) each(i, k);
-    i = k;
+// Units keyed by a hash, as one sorted 64-bit word each: the hash's high bits, and
+// the unit in the low bits (a chance collision of the shortened hashes only adds a
+// candidate, which is then compared like the others; sorting words, not pairs, halves
+// the sort).
+class keyed_units {
+ public:
+  explicit keyed_units(std::uint64_t units) {
+    while (unit_bits_ < 64 && (std::uint64_t{1} << unit_bits_) < units) ++unit_bits_;
   }
-}
+  void clear() { words_.clear(); }
+  void add(std::uint64_t hash, std::uint64_t unit) { words_.push_back((hash & ~unit_mask()) | unit); }
+  void sort() { std::sort(words_.begin(), words_.end()); }
+  std::size_t size() const noexcept { return words_.size(); }
+  std::uint64_t unit(std::size_t i) const noexcept { return words_[i] & unit_mask(); }
+  /// Calls each(first, last) for each run of two or more equal keys (after sort()).
+  template <class Each>
+  void for_each_run(Each each) const {
+    for (std::size_t i = 0; i < words_.size();) {
+      std::size_t k = i + 1;
+      while (k < words_.size() && (words_[k] & ~unit_mask()) == (words_[i] & ~unit_mask())) ++k;
+      if (k - i > 1) each(i, k);
+      i = k;
+    }
+  }
+
+ private:
+  std::uint64_t unit_mask() const noexcept {
+    return unit_bits_ >= 64 ? ~std::uint64_t{0} : (std::uint64_t{1} << unit_bits_) - 1;
+  }
+  int unit_bits_ = 0;
+  std::vector<std::uint64_t> words_;
+};
 
 template <class E>
 std::vector<std::vector<std::uint64_t>> duplicate_groups(const unit_summary& s, unit_pair_reader<E>& units) {
-  std::vector<std::pair<std::uint64_t, std::uint64_t>> entries(static_cast<std::size_t>(s.rows));
-  for (std::uint64_t r = 0; r < s.rows; ++r) entries[r] = {sketch_hash(s, r), r};
+  keyed_units entries(s.rows);
+  for (std::uint64_t r = 0; r < s.rows; ++r) entries.add(sketch_hash(s, r), r);
+  entries.sort();
   std::vector<std::vector<std::uint64_t>> groups;
-  for_each_run(entries, [&](std::size_t first, std::size_t last) {
+  entries.for_each_run([&](std::size_t first, std::size_t last) {
     std::vector<std::uint64_t> rows;
-    for (std::size_t i = first; i < last; ++i) rows.push_back(entries[i].second);
+    for (std::size_t i = first; i < last; ++i) rows.push_back(entries.unit(i));
     while (rows.size() > 1) {  // split a collision into groups of really equal units
       std::vector<std::uint64_t> same{rows[0]}, rest;
       for (std::size_t k = 1; k < rows.size(); ++k) (units.same(rows[0], rows[k]) ? same : rest).push_back(rows[k]);
@@ -385,6 +412,33 @@ struct near_search {
   bool capped = false;            // a band was over its cap after the last redraw
 };
 
+// The dot products of x (width values) with columns 0..15 of a width × stride
+// row-major matrix, into out[0..15]: the sums stay in registers (GCC and Clang vector
+// types of four floats; a plain loop elsewhere).
+inline void sixteen_dots(const float* matrix, std::uint64_t stride, const float* x, std::uint64_t width, float* out) {
+#if defined(__GNUC__)
+  typedef float four __attribute__((vector_size(16)));
+  four a = {}, b = {}, c = {}, d = {}, p;
+  for (std::uint64_t i = 0; i < width; ++i) {
+    const four xi = {x[i], x[i], x[i], x[i]};
+    const float* row = matrix + i * stride;
+    std::memcpy(&p, row, sizeof p), a += p * xi;
+    std::memcpy(&p, row + 4, sizeof p), b += p * xi;
+    std::memcpy(&p, row + 8, sizeof p), c += p * xi;
+    std::memcpy(&p, row + 12, sizeof p), d += p * xi;
+  }
+  std::memcpy(out, &a, sizeof a);
+  std::memcpy(out + 4, &b, sizeof b);
+  std::memcpy(out + 8, &c, sizeof c);
+  std::memcpy(out + 12, &d, sizeof d);
+#else
+  for (int l = 0; l < 16; ++l) out[l] = 0;
+  for (std::uint64_t i = 0; i < width; ++i) {
+    for (int l = 0; l < 16; ++l) out[l] += matrix[i * stride + l] * x[i];
+  }
+#endif
+}
+
 template <class E>
 near_search near_pairs(const unit_summary& s, unit_pair_reader<E>& units, const symmetry_options& o) {
   near_search out;
@@ -430,13 +484,13 @@ near_search near_pairs(const unit_summary& s, unit_pair_reader<E>& units, const 
   const double agree_bit = 1 - theta / pi;
   const double dims = static_cast<double>(std::min(s.cols, std::uint64_t{4096}));
   std::uint64_t bits0 = static_cast<std::uint64_t>(std::ceil(pi * std::pow(m / 64, 1 / (dims - 1))));
-  bits0 = std::min<std::uint64_t>(1024, std::max<std::uint64_t>(16, bits0));
+  bits0 = std::min<std::uint64_t>(1024, std::max<std::uint64_t>(16, (bits0 + 15) / 16 * 16));  // whole groups of 16
   const double agree0 = std::pow(agree_bit, static_cast<double>(bits0));
   const int bands = agree0 >= 1 ? 1 : std::min(16, std::max(1, static_cast<int>(std::ceil(std::log(1e-3) / std::log1p(-agree0)))));
   const double cap = 64 * m + 4096;
   const stream projections = make_stream(0, "kindling.audit.near-duplicate-units");
   std::vector<float> plane, dots;
-  std::vector<std::pair<std::uint64_t, std::uint64_t>> entries;
+  keyed_units entries(s.rows);
   out.miss = 1;
   for (int band = 0; band < bands; ++band) {
     for (std::uint64_t bits = bits0;; bits *= 2) {
@@ -448,21 +502,17 @@ near_search near_pairs(const unit_summary& s, unit_pair_reader<E>& units, const 
       for (std::uint64_t r = 0; r < s.rows; ++r) {
         if (zero[r]) continue;
         const float* x = &s.sketch[static_cast<std::size_t>(r * s.width)];
-        std::fill(dots.begin(), dots.end(), 0.0f);
-        for (std::uint64_t i = 0; i < s.width; ++i) {  // all planes at once: an elementwise loop that vectorizes
-          const float* p = &plane[static_cast<std::size_t>(i * bits)];
-          for (std::uint64_t t = 0; t < bits; ++t) dots[t] += p[t] * x[i];
-        }
+        for (std::uint64_t t0 = 0; t0 < bits; t0 += 16) sixteen_dots(plane.data() + t0, bits, x, s.width, &dots[t0]);
         std::uint64_t key = 0x62616e64u, word = 0;
         for (std::uint64_t t = 0; t < bits; ++t) {
           word = (word << 1) | (dots[t] > 0 ? 1u : 0u);
           if (t % 64 == 63 || t + 1 == bits) key = mix64(key ^ word), word = 0;
         }
-        entries.push_back({key, r});
+        entries.add(key, r);
       }
-      std::sort(entries.begin(), entries.end());
+      entries.sort();
       double candidates = 0;
-      for_each_run(entries, [&](std::size_t first, std::size_t last) {
+      entries.for_each_run([&](std::size_t first, std::size_t last) {
         candidates += 0.5 * double(last - first) * double(last - first - 1);
       });
       const bool over = candidates > cap;
@@ -470,10 +520,10 @@ near_search near_pairs(const unit_summary& s, unit_pair_reader<E>& units, const 
       // Over the cap at the most bits: each unit meets only its next `window` neighbours.
       const std::size_t window = over ? std::max<std::size_t>(1, static_cast<std::size_t>(cap / m)) : entries.size();
       out.capped = out.capped || over;
-      for_each_run(entries, [&](std::size_t first, std::size_t last) {
+      entries.for_each_run([&](std::size_t first, std::size_t last) {
         for (std::size_t x = first; x < last; ++x) {
           for (std::size_t y = x + 1; y < last && y <= x + window; ++y) {
-            const std::uint64_t a = entries[x].second, b = entries[y].second;
+            const std::uint64_t a = entries.unit(x), b = entries.unit(y);
             if (s.sketch_norm[a] == 0 || s.sketch_norm[b] == 0 || sketch_cosine(a, b) >= out.threshold - margin) {
               consider(a, b);
             }
@@ -599,14 +649,14 @@ audit_report check_symmetry(const strided_view<E>& v, const symmetry_options& op
     return report;
   }
   report.add({"finite", true, "all values are finite"});
-  const bool zero = s.lo == 0 && s.hi == 0;
+  const bool zero = s.all_equal && s.first == 0;
   report.add({"zero", !zero,
               zero ? "all " + std::to_string(v.size()) +
                          " values are zero: every unit computes the same thing and symmetry is never broken"
                    : "not all values are zero"});
-  const bool constant = !zero && s.lo == s.hi;
+  const bool constant = !zero && s.all_equal;
   report.add({"constant", !constant,
-              constant ? "every value is " + detail::short_number(s.lo, 6) +
+              constant ? "every value is " + detail::short_number(s.first, 6) +
                              ": a constant tensor leaves all units identical"
                        : "the values are not all equal"});
   if (zero || constant) return report;

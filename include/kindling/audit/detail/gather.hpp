@@ -15,6 +15,7 @@
 #include <cmath>
 #include <cstddef>
 #include <cstdint>
+#include <cstring>
 #include <limits>
 #include <stdexcept>
 #include <string>
@@ -25,6 +26,7 @@
 #include "../../fan.hpp"
 #include "../../schemes/detail/unit_matrix.hpp"
 #include "../../view.hpp"
+#include "stored.hpp"
 
 namespace kindling::detail {
 
@@ -120,8 +122,9 @@ class unit_reader {
     unit_step_ = static_cast<std::ptrdiff_t>(v.stride(axis));
     outer_ = offsets(v, 0, axis);
     inner_ = offsets(v, axis + 1, global.rank());
-    direct_ = std::is_same<element, compute>::value && outer_.size() == 1;
-    for (std::size_t b = 0; b < inner_.size() && direct_; ++b) direct_ = inner_[b] == static_cast<std::ptrdiff_t>(b);
+    contiguous_ = outer_.size() == 1;
+    for (std::size_t b = 0; b < inner_.size() && contiguous_; ++b) contiguous_ = inner_[b] == static_cast<std::ptrdiff_t>(b);
+    direct_ = std::is_same<element, compute>::value && contiguous_;
   }
 
   std::uint64_t rows() const noexcept { return rows_; }
@@ -133,6 +136,17 @@ class unit_reader {
   const compute* unit(std::uint64_t o, compute* buffer) const {
     const element* base = data_ + static_cast<std::ptrdiff_t>(o) * unit_step_;
     if (direct_) return reinterpret_cast<const compute*>(base);
+    if constexpr (std::is_same<typename stored_type<element>::type, bfloat16>::value) {
+      if (contiguous_) {  // a bfloat16 is the upper half of a float: a loop that vectorizes
+        for (std::uint64_t j = 0; j < cols_; ++j) {
+          std::uint16_t half;
+          std::memcpy(&half, base + j, sizeof half);
+          const std::uint32_t bits = std::uint32_t{half} << 16;
+          std::memcpy(buffer + j, &bits, sizeof bits);
+        }
+        return buffer;
+      }
+    }
     compute* out = buffer;
     for (const std::ptrdiff_t a : outer_) {
       for (const std::ptrdiff_t b : inner_) *out++ = static_cast<compute>(element_traits<element>::to_double(base[a + b]));
@@ -161,6 +175,7 @@ class unit_reader {
   std::uint64_t rows_ = 0, cols_ = 0;
   std::ptrdiff_t unit_step_ = 0;
   std::vector<std::ptrdiff_t> outer_, inner_;
+  bool contiguous_ = false;  // a unit's values are consecutive in memory
   bool direct_ = false;
 };
 

@@ -37,10 +37,24 @@ template <class E>
 struct has_atoms<E, std::void_t<decltype(element_codec<E>::sign)>>
     : std::bool_constant<!std::is_same<E, double>::value> {};
 
-/// E is the stored element type (float, double, float16, bfloat16, or an adapter's type
-/// without a codec, taken as continuous).
+// The kindling type whose values an element type holds: E itself, or the type an
+// adapter's element forwards to (Eigen::bfloat16 holds kindling::bfloat16's values).
+template <class E, class = void>
+struct stored_type {
+  using type = E;
+};
 template <class E>
+struct stored_type<E, std::void_t<typename element_traits<E>::stored_as>> {
+  using type = typename element_traits<E>::stored_as;
+};
+
+/// E is the stored element type (float, double, float16, bfloat16, an adapter's type
+/// that forwards to one of them, or an adapter's type without a codec, taken as
+/// continuous).
+template <class Element>
 class stored_distribution {
+  using E = typename stored_type<Element>::type;
+
  public:
   explicit stored_distribution(const declared& d) : d_(d) {}
 
@@ -52,6 +66,15 @@ class stored_distribution {
       return d_.cdf(e);
     } else {
       return at_most(largest_atom_below(e));
+    }
+  }
+
+  /// P(stored value <= x) for a value x the element type holds exactly.
+  double at_most_value(double x) const {
+    if constexpr (!atoms) {
+      return d_.cdf(x);
+    } else {
+      return at_most(codec::round(static_cast<float>(x)));
     }
   }
 

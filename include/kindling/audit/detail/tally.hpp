@@ -19,6 +19,7 @@
 #include <limits>
 #include <mutex>
 #include <type_traits>
+#include <utility>
 #include <vector>
 
 #include "../../element.hpp"
@@ -207,6 +208,32 @@ void tally_stretch(const E* p, std::ptrdiff_t step, std::uint64_t n, std::uint64
   };
   double s1a = 0, s1b = 0, s2a = 0, s2b = 0;
   std::uint64_t k = 0;
+  if (step == 1) {
+    // Contiguous values in blocks: the bins, sums and the bounds test of a block in
+    // loops without branches (they vectorize), then the increments; a block holding a
+    // value outside the fast test is done again by the loop below, value by value.
+    constexpr std::size_t block = 256, lanes = 8;
+    std::uint32_t index[block];
+    for (; k + block <= n; k += block) {
+      double s1[lanes] = {}, s2[lanes] = {};
+      std::uint32_t outside = 0;
+      for (std::size_t i = 0; i < block; i += lanes) {
+        for (std::size_t l = 0; l < lanes; ++l) {
+          const double x = element_traits<element>::to_double(p[k + i + l]);
+          outside += (x >= inside_lo && x <= inside_hi) ? 0u : 1u;
+          index[i + l] = g.bin(x);
+          s1[l] += x - shift;
+          s2[l] += (x - shift) * (x - shift);
+        }
+      }
+      if (outside != 0) break;
+      for (std::size_t i = 0; i < block; ++i) ++bins[index[i]];
+      for (std::size_t l = 0; l < lanes; l += 2) {
+        s1a += s1[l], s1b += s1[l + 1];
+        s2a += s2[l], s2b += s2[l + 1];
+      }
+    }
+  }
   for (; k + 2 <= n; k += 2) {
     const double x = element_traits<element>::to_double(p[static_cast<std::ptrdiff_t>(k) * step]);
     const double y = element_traits<element>::to_double(p[static_cast<std::ptrdiff_t>(k + 1) * step]);
@@ -233,6 +260,44 @@ void tally_stretch(const E* p, std::ptrdiff_t step, std::uint64_t n, std::uint64
   out.sum2 += s2a + s2b;
 }
 
+/// Notes value x at local index i when it is not finite or lies outside the bounds.
+inline void note_exception(double x, std::uint64_t i, const element_bounds& bounds, chunk_tally& p) {
+  if (!std::isfinite(x)) {
+    if (p.non_finite++ == 0) {
+      p.first_non_finite = i;
+      p.first_non_finite_value = x;
+    }
+    if (std::isnan(x)) ++p.nan_count;
+    return;
+  }
+  if (side_of(x, bounds) == 0) return;
+  const double excess = std::max(bounds.lo - x, x - bounds.hi);
+  if (p.outside++ == 0 || excess > p.farthest_excess) {
+    p.farthest_excess = excess;
+    p.farthest = x;
+    p.farthest_at = i;
+  }
+}
+
+// Task s of `tasks`: body(c, begin, end) for its chunks c = s, s + tasks, ... of n
+// values (values [begin, end)), and flush() after every 2^31 values, before a task's
+// 32-bit counts could wrap, and at the end.
+template <class Flush, class Body>
+void for_task_chunks(std::size_t s, std::size_t tasks, std::uint64_t n, Flush&& flush, Body&& body) {
+  const std::uint64_t chunks = (n + audit_chunk_elements - 1) / audit_chunk_elements;
+  std::uint64_t since_flush = 0;
+  for (std::uint64_t c = s; c < chunks; c += tasks) {
+    const std::uint64_t begin = c * audit_chunk_elements, end = std::min(n, begin + audit_chunk_elements);
+    body(c, begin, end);
+    since_flush += end - begin;
+    if (since_flush >= (std::uint64_t{1} << 31)) {
+      flush();
+      since_flush = 0;
+    }
+  }
+  flush();
+}
+
 /// One pass over v: bins of `grid`, sums of x - shift and its square, non-finite values
 /// and values outside `bounds`, on executor exec.
 template <class E, class Exec>
@@ -255,41 +320,268 @@ value_tally tally_values(const strided_view<E>& v, const value_grid& grid, doubl
       for (std::size_t b = 0; b < local.size(); ++b) t.counts[b] += local[b];
       std::fill(local.begin(), local.end(), 0u);
     };
-    std::uint64_t since_flush = 0;
-    for (std::uint64_t c = s; c < chunks; c += tasks) {
+    for_task_chunks(s, tasks, t.n, flush, [&](std::uint64_t c, std::uint64_t begin, std::uint64_t end) {
       chunk_tally& p = parts[static_cast<std::size_t>(c)];
-      const auto slow = [&p, &bounds](double x, std::uint64_t i) {
-        if (!std::isfinite(x)) {
-          if (p.non_finite++ == 0) {
-            p.first_non_finite = i;
-            p.first_non_finite_value = x;
-          }
-          if (std::isnan(x)) ++p.nan_count;
-          return;
-        }
-        if (side_of(x, bounds) == 0) return;
-        const double excess = std::max(bounds.lo - x, x - bounds.hi);
-        if (p.outside++ == 0 || excess > p.farthest_excess) {
-          p.farthest_excess = excess;
-          p.farthest = x;
-          p.farthest_at = i;
-        }
-      };
-      const std::uint64_t begin = c * audit_chunk_elements, end = std::min(t.n, begin + audit_chunk_elements);
+      const auto slow = [&p, &bounds](double x, std::uint64_t i) { note_exception(x, i, bounds, p); };
       for_each_row(v, begin, end, [&](const E* row, std::ptrdiff_t step, std::uint64_t n, std::uint64_t first) {
         tally_stretch(row, step, n, first, grid, shift, inside_lo, inside_hi, local.data(), p, slow);
       });
-      since_flush += end - begin;
-      if (since_flush >= (std::uint64_t{1} << 31)) {
-        flush();
-        since_flush = 0;
-      }
-    }
-    flush();
+    });
   };
   exec(tasks, task);
   for (const chunk_tally& p : parts) t.totals.add(p);
   return t;
+}
+
+/// Element types of 16 bits are counted by bit pattern instead: 65536 counts hold the
+/// whole sample, so the sums, the bounds and the Kolmogorov–Smirnov statistic against
+/// the stored (discrete) distribution all come from the counts exactly, and the pass
+/// is one load and one increment a value. float is counted by the top 16 bits of its
+/// pattern (sign, exponent, 7 bits of the significand): the floats of one key form an
+/// interval of relative width at most 2^-7, whose ends are exact floats, so the counts
+/// are a grid whose edges are exact points of the stored CDF; its sums and bounds come
+/// from a second, vectorizable loop over the same chunk while it is in cache.
+template <class E>
+constexpr bool counted_by_pattern =
+    (sizeof(E) == 2 && std::is_trivially_copyable<E>::value) || std::is_same<E, float>::value;
+
+/// What a pattern count pass returns: the count of each key, and for float the sums of
+/// x - shift and its square (in fixed chunks, added in chunk order), the smallest and
+/// largest value and the number of NaNs.
+struct pattern_tally {
+  std::vector<std::uint64_t> counts;
+  double sum1 = 0, sum2 = 0;
+  double lo = std::numeric_limits<double>::infinity(), hi = -std::numeric_limits<double>::infinity();
+  std::uint64_t nan_count = 0;
+};
+
+// The sums, extremes and NaNs of n floats from p (step apart), in blocks of 64 values
+// summed in float around `shift` (rounded to float) and added in double: the block
+// loop has no branch and vectorizes, and 4 additions per lane keep float's rounding
+// far below what the checks can see. The caller corrects for the rounded shift.
+inline void float_stretch(const float* p, std::ptrdiff_t step, std::uint64_t n, float shift, pattern_tally& out) {
+  constexpr std::size_t lanes = 16, block = 64;
+  std::uint64_t k = 0;
+  if (step == 1) {
+    float lo[lanes], hi[lanes];
+    std::uint32_t nan[lanes] = {};
+    for (std::size_t l = 0; l < lanes; ++l) lo[l] = std::numeric_limits<float>::infinity(), hi[l] = -lo[l];
+    for (; k + block <= n; k += block) {
+      float s1[lanes] = {}, s2[lanes] = {};
+      for (std::size_t i = 0; i < block; i += lanes) {
+        for (std::size_t l = 0; l < lanes; ++l) {
+          const float x = p[k + i + l], d = x - shift;
+          s1[l] += d;
+          s2[l] += d * d;
+          lo[l] = x < lo[l] ? x : lo[l];
+          hi[l] = hi[l] < x ? x : hi[l];
+          nan[l] += x != x ? 1u : 0u;
+        }
+      }
+      double b1 = 0, b2 = 0;
+      for (std::size_t l = 0; l < lanes; ++l) b1 += s1[l], b2 += s2[l];
+      out.sum1 += b1;
+      out.sum2 += b2;
+    }
+    for (std::size_t l = 0; l < lanes; ++l) {
+      out.lo = std::min<double>(out.lo, lo[l]), out.hi = std::max<double>(out.hi, hi[l]);
+      out.nan_count += nan[l];
+    }
+  }
+  for (; k < n; ++k) {
+    const float x = p[static_cast<std::ptrdiff_t>(k) * step];
+    if (x != x) {
+      ++out.nan_count;
+      continue;
+    }
+    const double d = static_cast<double>(x - shift);
+    out.sum1 += d;
+    out.sum2 += d * d;
+    out.lo = std::min<double>(out.lo, x), out.hi = std::max<double>(out.hi, x);
+  }
+}
+
+/// The count of each key among v's values (16-bit patterns, or float's top 16 bits), and
+/// for float the sums around `shift`, on executor exec.
+template <class E, class Exec>
+pattern_tally count_patterns(const strided_view<E>& v, double shift, const Exec& exec) {
+  using element = std::remove_const_t<E>;
+  constexpr bool is_float = std::is_same<element, float>::value;
+  using word = std::conditional_t<is_float, std::uint32_t, std::uint16_t>;
+  constexpr int key_shift = is_float ? 16 : 0;
+  static_assert(sizeof(word) == sizeof(element), "count_patterns keys 16-bit types and float");
+  pattern_tally out;
+  out.counts.assign(std::size_t{1} << 16, 0);
+  const std::uint64_t n = v.size();
+  const std::uint64_t chunks = (n + audit_chunk_elements - 1) / audit_chunk_elements;
+  const std::size_t tasks = static_cast<std::size_t>(std::min<std::uint64_t>(chunks, audit_task_count(exec)));
+  std::vector<pattern_tally> parts(is_float ? static_cast<std::size_t>(chunks) : 0);
+  const float shift_f = static_cast<float>(shift);
+  std::mutex merge;
+  const std::function<void(std::size_t)> task = [&](std::size_t s) {
+    // Two sets of 32-bit counts (flushed before they could wrap), alternate values to
+    // each: a run of equal values then does not wait on its own increments.
+    std::vector<std::uint32_t> local(out.counts.size(), 0), local2(out.counts.size(), 0);
+    const auto flush = [&] {
+      std::lock_guard<std::mutex> lock(merge);
+      for (std::size_t b = 0; b < local.size(); ++b) out.counts[b] += std::uint64_t{local[b]} + local2[b];
+      std::fill(local.begin(), local.end(), 0u);
+      std::fill(local2.begin(), local2.end(), 0u);
+    };
+    std::uint32_t* bins = local.data();
+    std::uint32_t* bins2 = local2.data();
+    for_task_chunks(s, tasks, n, flush, [&](std::uint64_t c, std::uint64_t begin, std::uint64_t end) {
+      for_each_row(v, begin, end, [&](const E* row, std::ptrdiff_t step, std::uint64_t count, std::uint64_t) {
+        const unsigned char* bytes = reinterpret_cast<const unsigned char*>(row);
+        const std::ptrdiff_t stride = step * static_cast<std::ptrdiff_t>(sizeof(word));
+        constexpr std::size_t per_load = 8 / sizeof(word);
+        std::uint64_t k = 0;
+        if (step == 1) {  // several keys a load: the loop is bound by its memory operations
+          for (; k + per_load <= count; k += per_load) {
+            std::uint64_t w;
+            std::memcpy(&w, bytes + sizeof(word) * k, sizeof w);
+            word b[per_load];
+            std::memcpy(b, &w, sizeof b);
+            for (std::size_t i = 0; i < per_load; i += 2) {
+              ++bins[b[i] >> key_shift];
+              ++bins2[b[i + 1] >> key_shift];
+            }
+          }
+        }
+        for (; k < count; ++k) {
+          word b;
+          std::memcpy(&b, bytes + static_cast<std::ptrdiff_t>(k) * stride, sizeof b);
+          ++bins[b >> key_shift];
+        }
+        if constexpr (is_float) float_stretch(row, step, count, shift_f, parts[static_cast<std::size_t>(c)]);
+      });
+    });
+  };
+  exec(tasks, task);
+  if constexpr (is_float) {
+    // Around the rounded shift, then moved to `shift`: sum (d + delta) and sum (d + delta)^2
+    // with delta = shift_f - shift and d = x - shift_f (NaNs left out).
+    std::uint64_t counted = 0;
+    for (const pattern_tally& p : parts) {
+      out.sum1 += p.sum1, out.sum2 += p.sum2;
+      out.lo = std::min(out.lo, p.lo), out.hi = std::max(out.hi, p.hi);
+      out.nan_count += p.nan_count;
+    }
+    counted = n - out.nan_count;
+    const double delta = static_cast<double>(shift_f) - shift, rn = static_cast<double>(counted);
+    out.sum2 += 2 * delta * out.sum1 + rn * delta * delta;
+    out.sum1 += rn * delta;
+  }
+  return out;
+}
+
+/// The value of 16-bit pattern b in element type E.
+template <class E>
+double pattern_value(std::uint16_t b) {
+  E x;
+  std::memcpy(static_cast<void*>(&x), &b, sizeof x);  // trivially copyable, not trivial (Eigen's types)
+  return element_traits<E>::to_double(x);
+}
+
+/// The tally of a view from its pattern counts: the sums over the finite values (for
+/// 16-bit types all four powers, from the counts; for float the first two, from the
+/// pass), the counts of non-finite values and of values outside `bounds`; where and
+/// what the first non-finite and the farthest outside value are takes a second pass
+/// over v, made only when there are some. `counts` is left empty: the caller keeps the
+/// pattern counts.
+template <class E>
+value_tally tally_from_patterns(const strided_view<E>& v, const pattern_tally& patterns, double shift,
+                                const element_bounds& bounds) {
+  using element = std::remove_const_t<E>;
+  value_tally t;
+  t.n = v.size();
+  chunk_tally& c = t.totals;
+  bool exceptions = false;
+  if constexpr (std::is_same<element, float>::value) {
+    c.sum1 = patterns.sum1;
+    c.sum2 = patterns.sum2;
+    exceptions = patterns.nan_count != 0 || (t.n != 0 && (!std::isfinite(patterns.lo) || !std::isfinite(patterns.hi) ||
+                                                          side_of(patterns.lo, bounds) != 0 ||
+                                                          side_of(patterns.hi, bounds) != 0));
+  } else {
+    const std::vector<std::uint64_t>& counts = patterns.counts;
+    for (std::size_t b = 0; b < counts.size(); ++b) {
+      if (counts[b] == 0) continue;
+      const double k = static_cast<double>(counts[b]);
+      const double x = pattern_value<element>(static_cast<std::uint16_t>(b));
+      if (!std::isfinite(x) || side_of(x, bounds) != 0) {
+        exceptions = true;
+        if (!std::isfinite(x)) continue;
+      }
+      const double d = x - shift, d2 = d * d;
+      c.sum1 += k * d;
+      c.sum2 += k * d2;
+      c.sum3 += k * d2 * d;
+      c.sum4 += k * d2 * d2;
+    }
+  }
+  if (exceptions) {  // the counts and positions, by the same rule as tally_values
+    chunk_tally where;
+    for_each_value(v, 0, t.n, [&](double x, std::uint64_t i) { note_exception(x, i, bounds, where); });
+    c.non_finite = where.non_finite;
+    c.nan_count = where.nan_count;
+    c.first_non_finite = where.first_non_finite;
+    c.first_non_finite_value = where.first_non_finite_value;
+    c.outside = where.outside;
+    c.farthest = where.farthest;
+    c.farthest_at = where.farthest_at;
+    c.farthest_excess = where.farthest_excess;
+  }
+  return t;
+}
+
+/// The 65536 keys of float in the order of their values, as bins of the real line:
+/// position q < 2^15 holds the negative key of magnitude 2^15 - 1 - q, position
+/// 2^15 + k the positive key k. below(q) is the probability, under `stored`, of the
+/// values in the bins before position q: for a positive bin P(S < its least float),
+/// for a negative bin P(S <= -(the magnitude one key up)); between -0's bin and +0's
+/// it is P(S < 0) (the bin (-2^-133, -0] holds -0, whose probability under any declared
+/// distribution is below 1e-38).
+inline std::uint32_t float_key_position(std::uint32_t key) noexcept {
+  return key >= 0x8000u ? 0xFFFFu - key : 0x8000u + key;
+}
+
+template <class Stored>
+double float_below_position(const Stored& stored, std::uint32_t q) {
+  const auto at = [](std::uint32_t magnitude_key) {
+    float f;
+    const std::uint32_t bits = magnitude_key << 16;
+    std::memcpy(&f, &bits, sizeof f);
+    return static_cast<double>(f);
+  };
+  constexpr std::uint32_t infinity_key = 0x7F80u;  // the keys from here on hold no finite float
+  if (q >= 0x8000u) return q - 0x8000u >= infinity_key ? 1.0 : stored.below(at(q - 0x8000u));
+  const std::uint32_t magnitude = 0x7FFFu - q;  // the key of the bin at q; the ones before are larger
+  return magnitude + 1 >= infinity_key ? 0.0 : stored.at_most_value(-at(magnitude + 1));
+}
+
+/// The distinct finite values among the pattern counts, in increasing order, with their
+/// counts (-0 and +0 are one value).
+template <class E>
+std::vector<std::pair<double, std::uint64_t>> distinct_values(const std::vector<std::uint64_t>& patterns) {
+  using element = std::remove_const_t<E>;
+  std::vector<std::pair<double, std::uint64_t>> values;
+  for (std::size_t b = 0; b < patterns.size(); ++b) {
+    if (patterns[b] == 0) continue;
+    const double x = pattern_value<element>(static_cast<std::uint16_t>(b));
+    if (std::isfinite(x)) values.emplace_back(x == 0 ? 0.0 : x, patterns[b]);
+  }
+  std::sort(values.begin(), values.end());
+  std::size_t kept = 0;
+  for (std::size_t i = 0; i < values.size(); ++i) {
+    if (kept > 0 && values[kept - 1].first == values[i].first) {
+      values[kept - 1].second += values[i].second;
+    } else {
+      values[kept++] = values[i];
+    }
+  }
+  values.resize(kept);
+  return values;
 }
 
 /// Sums of the third and fourth powers of x - shift over v's finite values, in fixed
