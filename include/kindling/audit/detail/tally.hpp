@@ -208,32 +208,6 @@ void tally_stretch(const E* p, std::ptrdiff_t step, std::uint64_t n, std::uint64
   };
   double s1a = 0, s1b = 0, s2a = 0, s2b = 0;
   std::uint64_t k = 0;
-  if (step == 1) {
-    // Contiguous values in blocks: the bins, sums and the bounds test of a block in
-    // loops without branches (they vectorize), then the increments; a block holding a
-    // value outside the fast test is done again by the loop below, value by value.
-    constexpr std::size_t block = 256, lanes = 8;
-    std::uint32_t index[block];
-    for (; k + block <= n; k += block) {
-      double s1[lanes] = {}, s2[lanes] = {};
-      std::uint32_t outside = 0;
-      for (std::size_t i = 0; i < block; i += lanes) {
-        for (std::size_t l = 0; l < lanes; ++l) {
-          const double x = element_traits<element>::to_double(p[k + i + l]);
-          outside += (x >= inside_lo && x <= inside_hi) ? 0u : 1u;
-          index[i + l] = g.bin(x);
-          s1[l] += x - shift;
-          s2[l] += (x - shift) * (x - shift);
-        }
-      }
-      if (outside != 0) break;
-      for (std::size_t i = 0; i < block; ++i) ++bins[index[i]];
-      for (std::size_t l = 0; l < lanes; l += 2) {
-        s1a += s1[l], s1b += s1[l + 1];
-        s2a += s2[l], s2b += s2[l + 1];
-      }
-    }
-  }
   for (; k + 2 <= n; k += 2) {
     const double x = element_traits<element>::to_double(p[static_cast<std::ptrdiff_t>(k) * step]);
     const double y = element_traits<element>::to_double(p[static_cast<std::ptrdiff_t>(k + 1) * step]);
