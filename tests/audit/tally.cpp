@@ -152,7 +152,7 @@ TEST_CASE("float sums and extremes of the pattern pass match a direct loop, on a
   CHECK(p.sum2 == doctest::Approx(s2).epsilon(1e-6));
   CHECK(p.lo == lo);
   CHECK(p.hi == hi);
-  CHECK(p.nan_count == 0);
+  CHECK(p.non_finite == 0);
   const detail::pattern_tally q = detail::count_patterns(v, 0.001, thread_executor(3));
   CHECK(q.counts == p.counts);
   CHECK(q.sum1 == p.sum1);
