@@ -55,6 +55,26 @@ void audit_4096(benchmark::State& state, bool with_symmetry) {
   state.SetBytesProcessed(static_cast<int64_t>(state.iterations()) * static_cast<int64_t>(side * side * sizeof(E)));
 }
 
+// The same whole audit of one bf16 He-normal tensor of side state.range(0): registered at
+// 3136, the weight shape of bench/model_write's model, whose ratio
+// model_audit_vs_tensor_audit compares the tool's audit of a whole checkpoint with this
+// (the same audit of one such tensor already in memory).
+void audit_square_bf16(benchmark::State& state) {
+  const auto n = static_cast<std::uint64_t>(state.range(0));
+  std::vector<kindling::bfloat16> w(n * n);
+  const kindling::strided_view<kindling::bfloat16> out(w.data(), kindling::shape(n, n));
+  kindling::initialize(out, kindling::dense(n, n), kindling::he_normal{}, kindling::make_stream(1, "blocks.0.mlp.weight"));
+  const kindling::strided_view<const kindling::bfloat16> v(w.data(), kindling::shape(n, n));
+  for (auto _ : state) {
+    const kindling::audit_report r = kindling::check_scheme(v, kindling::dense(n, n), kindling::he_normal{});
+    const kindling::audit_report s = kindling::check_symmetry(v);
+    benchmark::DoNotOptimize(r);
+    benchmark::DoNotOptimize(s);
+    if (!r.passed() || !s.passed()) state.SkipWithError("a correct tensor failed its audit");
+  }
+  state.SetBytesProcessed(static_cast<int64_t>(state.iterations()) * static_cast<int64_t>(w.size() * sizeof(w[0])));
+}
+
 // One read of the tensor's bytes: 16 independent 64-bit lanes, so it runs at memory speed.
 template <class E>
 void read_4096(benchmark::State& state) {
@@ -86,4 +106,5 @@ BENCHMARK(read_4096_bf16)->Unit(benchmark::kMillisecond)->UseRealTime();
 BENCHMARK(audit_4096_f32)->Unit(benchmark::kMillisecond)->UseRealTime();
 BENCHMARK(audit_4096_bf16)->Unit(benchmark::kMillisecond)->UseRealTime();
 BENCHMARK(conformance_4096_f32)->Unit(benchmark::kMillisecond)->UseRealTime();
+BENCHMARK(audit_square_bf16)->Arg(3136)->Unit(benchmark::kMillisecond)->UseRealTime();
 BENCHMARK(conformance_4096_bf16)->Unit(benchmark::kMillisecond)->UseRealTime();

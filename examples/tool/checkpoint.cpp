@@ -3,6 +3,7 @@
 
 #include <algorithm>
 #include <cstdio>
+#include <cstring>
 #include <stdexcept>
 
 #include <fcntl.h>
@@ -74,6 +75,24 @@ void checkpoint::read(const tensor& t, const std::function<void(const char*, std
     consume(buffer.data(), n);
     off += n;
   }
+}
+
+void checkpoint::read_into(const tensor& t, char* out) const {
+#ifdef KINDLING_TOOL_NPZ
+  if (npz_) {
+    std::uint64_t at = 0;
+    npz_->read(*npz_->find(t.name), [&](const char* data, std::size_t n) {
+      // The reader checks the member's sizes against its .npy header; this guards `out`.
+      if (n > t.bytes - at) {
+        throw std::length_error("npz member '" + t.name + "' streams more than its " + std::to_string(t.bytes) + " bytes");
+      }
+      std::memcpy(out + at, data, n);
+      at += n;
+    });
+    return;
+  }
+#endif
+  st_->read(*st_->index().find(t.name), 0, out, static_cast<std::size_t>(t.bytes));
 }
 
 progress_line::progress_line(std::string command) : command_(std::move(command)), active_(::isatty(2) == 1) {}

@@ -42,6 +42,10 @@ class checkpoint {
   /// Streams tensor t's little-endian bytes to consume(data, size) in order (safe to
   /// call from several threads at once).
   void read(const tensor& t, const std::function<void(const char*, std::size_t)>& consume) const;
+  /// Reads tensor t's t.bytes little-endian bytes, whole, into `out` (safe to call from
+  /// several threads at once). A safetensors tensor goes from the file straight into
+  /// `out`, with no staging buffer; an .npz member through its checked stream.
+  void read_into(const tensor& t, char* out) const;
 
  private:
   std::unique_ptr<safetensors_reader> st_;

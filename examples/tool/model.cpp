@@ -16,6 +16,7 @@
 #include <cmath>
 #include <cstdio>
 #include <cstring>
+#include <memory>
 #include <mutex>
 #include <stdexcept>
 #include <string>
@@ -201,10 +202,11 @@ bool constant_scheme(const scheme_value& s) {
 }
 bool symmetry_applies(const model_parameter& p) { return p.full_shape().size() >= 2 && !constant_scheme(p.scheme); }
 
-// The reports of the scheme's own audit on the tensor's values, typed E.
+// The reports of the scheme's own audit on the tensor's values, typed E (in the host's
+// byte order).
 template <class E>
 audit_report scheme_report(const model_parameter& p, std::uint64_t seed, const strided_view<const E>& v,
-                           const std::vector<char>& bytes, double alpha) {
+                           std::size_t count, double alpha) {
   const weight_layout layout = std::visit([](const auto& l) { return detail::layout_of(l); }, p.layer);
   const double tolerance = orthogonal_tolerance(p.element);
   const double gain = p.scheme.argument("gain").value_or(1.0);
@@ -213,20 +215,27 @@ audit_report scheme_report(const model_parameter& p, std::uint64_t seed, const s
         using S = std::decay_t<decltype(sc)>;
         if constexpr (std::is_same<S, zeros>::value || std::is_same<S, constant>::value ||
                       std::is_same<S, identity>::value) {
-          // Deterministic values: compared with a fresh fill, element by element.
+          // Deterministic values: compared with a fresh fill, element by element, 1 MiB
+          // at a time (bounded memory). parameter_bytes gives little-endian bytes;
+          // to_little_endian puts them in the host's order (a swap undoes itself).
+          const auto* got = reinterpret_cast<const unsigned char*>(v.data());
+          const std::size_t item = sizeof(E), bytes = count * item;
           parameter_bytes want(p, seed);
-          std::vector<char> w(bytes.size());
-          want.read(0, w.data(), w.size());
-          const std::size_t item = static_cast<std::size_t>(element_kind_bytes(p.element));
+          std::vector<char> w(std::min<std::size_t>(bytes, std::size_t{1} << 20));  // whole elements
           std::uint64_t wrong = 0, first = 0;
-          for (std::size_t i = 0; i < bytes.size(); i += item) {
-            if (std::memcmp(&bytes[i], &w[i], item) != 0) {
-              if (wrong == 0) first = i / item;
-              ++wrong;
+          for (std::size_t at = 0; at < bytes; at += w.size()) {
+            const std::size_t k = std::min(w.size(), bytes - at);
+            want.read(at, w.data(), k);
+            to_little_endian(reinterpret_cast<unsigned char*>(w.data()), k / item, item);
+            for (std::size_t i = 0; i < k; i += item) {
+              if (std::memcmp(got + at + i, &w[i], item) != 0) {
+                if (wrong == 0) first = (at + i) / item;
+                ++wrong;
+              }
             }
           }
           audit_report r(p.scheme.text());
-          const std::uint64_t n = bytes.size() / item;
+          const std::uint64_t n = count;
           r.add({"exact-values", wrong == 0,
                  wrong == 0 ? "every value is the one " + p.scheme.text() + " gives"
                             : std::to_string(wrong) + " of " + std::to_string(n) + " values differ from what " +
@@ -252,18 +261,42 @@ audit_report scheme_report(const model_parameter& p, std::uint64_t seed, const s
       p.scheme.variant());
 }
 
+// One audit thread's tensor memory: grown to the largest tensor the thread has read and
+// reused for every later one. A fresh tensor-sized allocation per tensor made the kernel
+// map, clear and unmap its pages each time (about a fifth of a whole-model audit's time,
+// bench/RESULTS.md); reused, its pages are touched once. Peak: the largest tensor.
+class tensor_buffer {
+ public:
+  // Storage for `bytes` bytes, suitably aligned for any element type (new[] of unsigned
+  // char aligns as operator new does); its old contents are not kept.
+  unsigned char* take(std::size_t bytes) {
+    if (bytes > size_) {
+      data_.reset();  // the old block goes before the new one comes: one block at a time
+      data_.reset(new unsigned char[bytes]);
+      size_ = bytes;
+    }
+    return data_.get();
+  }
+
+ private:
+  std::unique_ptr<unsigned char[]> data_;
+  std::size_t size_ = 0;
+};
+
 template <class E>
-void audit_values(const model_parameter& p, std::uint64_t seed, std::vector<char>& bytes, double alpha,
-                  tensor_verdict* out) {
+void audit_values(const checkpoint& file, const checkpoint::tensor& t, const model_parameter& p, std::uint64_t seed,
+                  tensor_buffer& buffer, double alpha, tensor_verdict* out) {
   const std::vector<std::uint64_t> s = p.full_shape();
-  // The file's little-endian bytes in the host's order, swapped in place (a no-op on a
-  // little-endian host): one typed copy, no second byte buffer.
-  std::vector<E> values(bytes.size() / sizeof(E));
-  std::memcpy(values.data(), bytes.data(), values.size() * sizeof(E));
-  to_little_endian(reinterpret_cast<unsigned char*>(values.data()), values.size(), sizeof(E));
-  const strided_view<const E> v(values.data(), shape(s.begin(), s.end()));
-  const audit_report r = scheme_report<E>(p, seed, v, bytes, alpha);
-  std::vector<char>().swap(bytes);
+  const auto count = static_cast<std::size_t>(t.bytes / sizeof(E));
+  // The tensor is read once, from the file straight into the thread's reused buffer as
+  // elements of type E, then put in the host's byte order in place (a no-op on a
+  // little-endian host): no staging copy, no per-tensor allocation.
+  E* values = reinterpret_cast<E*>(buffer.take(count * sizeof(E)));
+  std::uninitialized_default_construct_n(values, count);  // trivial: begins their lifetime, writes nothing
+  file.read_into(t, reinterpret_cast<char*>(values));
+  to_little_endian(reinterpret_cast<unsigned char*>(values), count, sizeof(E));
+  const strided_view<const E> v(values, shape(s.begin(), s.end()));
+  const audit_report r = scheme_report<E>(p, seed, v, count, alpha);
   out->reports.push_back(report_json("scheme", r));
   std::vector<audit_report> all{r};
   if (symmetry_applies(p)) {
@@ -294,7 +327,8 @@ void audit_values(const model_parameter& p, std::uint64_t seed, std::vector<char
   }
 }
 
-tensor_verdict audit_one(const checkpoint& file, const model_parameter& p, std::uint64_t seed, double alpha) {
+tensor_verdict audit_one(const checkpoint& file, const model_parameter& p, std::uint64_t seed, double alpha,
+                         tensor_buffer& buffer) {
   tensor_verdict out;
   out.name = p.name;
   out.shape = shape_text(p.full_shape());
@@ -319,14 +353,11 @@ tensor_verdict audit_one(const checkpoint& file, const model_parameter& p, std::
                             " elements, expected at most " + std::to_string(max_check_elements) +
                             " (the tool's memory cap for one audited tensor)");
   }
-  std::vector<char> bytes;
-  bytes.reserve(static_cast<std::size_t>(t->bytes));
-  file.read(*t, [&](const char* data, std::size_t n) { bytes.insert(bytes.end(), data, data + n); });
   switch (p.element) {
-    case element_kind::f32: audit_values<float>(p, seed, bytes, alpha, &out); break;
-    case element_kind::f64: audit_values<double>(p, seed, bytes, alpha, &out); break;
-    case element_kind::f16: audit_values<float16>(p, seed, bytes, alpha, &out); break;
-    case element_kind::bf16: audit_values<bfloat16>(p, seed, bytes, alpha, &out); break;
+    case element_kind::f32: audit_values<float>(file, *t, p, seed, buffer, alpha, &out); break;
+    case element_kind::f64: audit_values<double>(file, *t, p, seed, buffer, alpha, &out); break;
+    case element_kind::f16: audit_values<float16>(file, *t, p, seed, buffer, alpha, &out); break;
+    case element_kind::bf16: audit_values<bfloat16>(file, *t, p, seed, buffer, alpha, &out); break;
   }
   return out;
 }
@@ -363,11 +394,12 @@ int run_audit(const audit_command_options& o) {
   progress_line progress("audit");
   std::mutex progress_mutex;
   const auto work = [&]() {
+    tensor_buffer buffer;  // this thread's, reused for every tensor it audits
     for (;;) {
       const std::size_t i = next.fetch_add(1);
       if (i >= plan.parameters.size()) return;
       try {
-        verdicts[i] = audit_one(file, plan.parameters[i], seed, each);
+        verdicts[i] = audit_one(file, plan.parameters[i], seed, each, buffer);
       } catch (...) {
         const std::lock_guard<std::mutex> lock(error_mutex);
         if (!error) error = std::current_exception();

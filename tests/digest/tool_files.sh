@@ -2,7 +2,8 @@
 # The tool's files are the same bytes on a big-endian CPU: builds the `kindling` tool with
 # Debian's s390x cross compiler (-static), runs it under qemu-s390x and the host's tool
 # with the same commands, and compares every file byte for byte: .npy in each element
-# type, a region, an orthogonal draw, and a whole model (safetensors and its manifest).
+# type, a region, an orthogonal draw, and a whole model (safetensors and its manifest);
+# and the big-endian tool's check, verify and audit of the host's files.
 #
 #   tests/digest/tool_files.sh HOST_TOOL [CROSS_CXX]
 #
@@ -82,8 +83,34 @@ if ! (cd "$work/host" && cross_tool verify belt.safetensors --manifest belt.mani
   status=1
 fi
 
+# audit reads the file's little-endian values into the host's order in place, and compares
+# zeros, constant and identity with a fresh fill: the same table on both CPUs, for the
+# belt and for a copy whose front.conv1.bias (zeros) has its second value changed.
+/usr/bin/python3 - "$work/host/belt.safetensors" "$work/host/changed.safetensors" <<'PY'
+import json, struct, sys
+raw = bytearray(open(sys.argv[1], "rb").read())
+(n,) = struct.unpack("<Q", raw[:8])
+begin = json.loads(raw[8:8 + n])["front.conv1.bias"]["data_offsets"][0]
+raw[8 + n + begin + 4 + 3] ^= 0x40  # the second f32 value's top byte: 0.0 becomes 2.0
+open(sys.argv[2], "wb").write(raw)
+PY
+for file in belt.safetensors changed.safetensors; do
+  host_out=$(cd "$work/host" && "$host_tool" audit "$file" --manifest belt.manifest.json; echo "exit $?")
+  cross_out=$(cd "$work/host" && cross_tool audit "$file" --manifest belt.manifest.json; echo "exit $?")
+  if [ "$host_out" != "$cross_out" ]; then
+    echo "the $arch tool's audit of the host's $file differs from the host tool's:" >&2
+    diff <(echo "$host_out") <(echo "$cross_out") >&2 || true
+    status=1
+  fi
+done
+changed_out=$(cd "$work/host" && "$host_tool" audit changed.safetensors --manifest belt.manifest.json || true)
+if ! grep -q "front.conv1.bias .*FAILED .*1 of 16 values differ" <<<"$changed_out"; then
+  echo "the host tool's audit does not name the changed zero bias of changed.safetensors" >&2
+  status=1
+fi
+
 if [ "$status" = 0 ]; then
   echo "tool files: all $count files written on $arch (qemu-$arch) equal the host's byte for byte;"
-  echo "            the $arch tool checks and verifies the host's files"
+  echo "            the $arch tool checks, verifies and audits the host's files as the host's tool does"
 fi
 exit "$status"

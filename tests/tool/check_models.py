@@ -412,6 +412,32 @@ code, _, err = run("assemble", "every.json", "-o", "every.npz")
 expect(code == 0, f"assemble every.json: {code} {err!r}")
 code, out, err = run("audit", "every.npz", "--plan", "every.json", "--threads", "2")
 expect(code == 0 and "all 8 tensors passed" in out, f"audit of every layer kind: {code} {out!r} {err!r}")
+# The exact comparison of a deterministic scheme (identity, zeros) names how many values
+# differ and the first: two changed bits past the first MiB of a 2 MiB bf16 identity, read
+# after a larger tensor by the same thread, and a zero bias left as written.
+exact = {"format": "kindling-model-plan", "seed": 9,
+         "parameters": [
+             {"name": "wide.weight", "scheme": "he-normal", "dtype": "f32", "layer": {"kind": "dense", "in": 1024, "out": 1536}},
+             {"name": "skip.weight", "scheme": "identity", "dtype": "bf16", "layer": {"kind": "dense", "in": 1024, "out": 1024}},
+             {"name": "skip.bias", "scheme": "zeros", "layer": {"kind": "bias", "size": 1024}}]}
+json.dump(exact, open("exact.json", "w"))
+code, _, err = run("assemble", "exact.json", "-o", "exact.safetensors")
+expect(code == 0, f"assemble exact.json: {code} {err!r}")
+changed = read_safetensors("exact.safetensors") if code == 0 else {}
+if changed:
+    skip = changed["skip.weight"][1].copy()
+    skip.reshape(-1)[[600001, 700000]] ^= 1
+    changed["skip.weight"] = ("BF16", skip)
+    write_safetensors("changed.safetensors", changed)
+    code, out, err = run("audit", "changed.safetensors", "--manifest", "exact.safetensors.manifest.json", "--threads", "1")
+    rows = {line.split()[0]: line for line in out.splitlines()[2:] if line and not line.startswith(("audited", "FAILED"))}
+    expect(code == 1 and "FAILED changed.safetensors: 1 of 3 tensors failed: skip.weight" in out
+           and "exact-values: 2 of 1048576 values differ" in rows.get("skip.weight", "")
+           and "(first at flat index 600001)" in rows.get("skip.weight", "")
+           and " passed " in rows.get("skip.bias", ""),
+           f"audit of a changed identity: {code} {out!r} {err!r}")
+    code, out, err = run("audit", "exact.safetensors", "--manifest", "exact.safetensors.manifest.json", "--threads", "1")
+    expect(code == 0 and "all 3 tensors passed" in out, f"audit of exact.safetensors: {code} {out!r} {err!r}")
 code, _, err = run("audit", "belt.safetensors", "--plan", PLAN, "--manifest", "belt.json")
 expect(code == 2 and "both --plan and --manifest" in err, f"audit with both: {code} {err!r}")
 code, _, err = run("audit", "belt.safetensors")
