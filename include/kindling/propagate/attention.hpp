@@ -50,8 +50,14 @@
 // sum of 1/n over the sums the pass went through: 1/d for the projections, + 1/d_k for
 // the score, + 1/L for the mix, + 1/d for the output.  Forward only: the backward pass
 // through the softmax is not measured here.
-// False-alarm rate, measured (tests/propagate/attention.cpp, "rate: ..."): see the
-// numbers there and in the README.
+// False-alarm rate, measured (tests/propagate/attention.cpp, "rate: ..."): 240 correct
+// blocks (200 of width 16, 1 or 4 heads, 8 tokens, 8 draws of 4 sequences, Glorot and
+// LeCun; 40 of width 64, 4 heads, 16 tokens, 8 draws of 8), no allowance: nominal 0.2 a
+// table -> observed 0.13 (0.028 a row against a nominal 0.033); with the defaults no NO
+// in 1440 rows.  Power: at 8 draws of 8 sequences (width 64, 4 heads, 16 tokens) a row's
+// band is about x/1.07 (projections) to x/1.3 (mix, output); projections drawn at gain 3
+// are flagged at all six rows (scores 81x), a value projection alone 3x off at value and
+// mix.  The passes run in double (the weights drawn as doubles), as in recurrent.hpp.
 #ifndef KINDLING_PROPAGATE_ATTENTION_HPP
 #define KINDLING_PROPAGATE_ATTENTION_HPP
 
