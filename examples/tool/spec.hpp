@@ -55,11 +55,26 @@
 // orthogonal) one of glorot-*, he-*, lecun-* or orthogonal, "recurrent_gain" the latter's
 // gain.  A cell is a top-level layer; what follows it reads its last state (build_sections).
 //
+// Attention blocks (propagate/attention.hpp):
+//
+//   {"attention": {"heads": 4, "length": 16, "width": 64, "scheme": "glorot-uniform",
+//                  "output_scheme": "glorot-uniform"}, "label": "attend"}
+//
+// "heads" is required and must divide the model width, which is the features (or, on a
+// 1-D map, the channels) of the layer below; "width", if given, must equal it.  "length"
+// is the number of tokens (required on features; on a 1-D map its length by default,
+// and equal to it if given).  "scheme" draws the query, key and value projections and
+// "output_scheme" the output one (default: "scheme", itself glorot-uniform by default):
+// glorot-*, he-* or lecun-* (elementwise schemes, which the attention prediction needs).
+// A block is a top-level layer.  build_sections checks it and lists it (attention,
+// attention_paths); `kindling plan` does not yet measure blocks and refuses such specs.
+//
 // Needs nlohmann-json (Debian nlohmann-json3-dev) and, for the orthogonal scheme's
 // variance, Eigen; the core of kindling needs neither.
 #ifndef KINDLING_TOOL_SPEC_HPP
 #define KINDLING_TOOL_SPEC_HPP
 
+#include <array>
 #include <cmath>
 #include <cstdint>
 #include <limits>
@@ -74,6 +89,7 @@
 #include <nlohmann/json.hpp>
 
 #include <kindling/gain.hpp>
+#include <kindling/propagate/attention.hpp>
 #include <kindling/propagate/measure.hpp>
 #include <kindling/propagate/recurrent.hpp>
 #include <kindling/propagate/stack.hpp>
@@ -113,6 +129,11 @@ struct layer_spec {
   std::string input_scheme = "glorot-uniform";
   std::string recurrent_scheme = "orthogonal";
   std::optional<double> recurrent_gain;
+  /// An attention block ("attention"): heads, tokens (0: the length of the 1-D map
+  /// below), model width (0: the features below), schemes.
+  bool attention = false;
+  std::uint64_t heads = 0, length = 0, model_width = 0;
+  std::string projection_scheme = "glorot-uniform", output_scheme;
   /// Where the layer sits in the spec (e.g. "layers[2]"), for messages.
   std::string path;
 };
@@ -366,9 +387,43 @@ inline void spec_recurrent(const nlohmann::json& l, const std::string& source, c
   if (l.contains("label")) s.label = spec_name(l["label"], source, path + ".label", {});
 }
 
+/// The schemes an attention block's projections may name: elementwise ones (the
+/// prediction of propagate/attention.hpp needs independent weight elements).
+inline const std::vector<std::string>& spec_attention_scheme_names() {
+  static const std::vector<std::string> names{"glorot-uniform", "glorot-normal", "he-uniform", "he-normal",
+                                              "lecun-uniform",  "lecun-normal"};
+  return names;
+}
+
+inline void spec_attention(const nlohmann::json& l, const std::string& source, const std::string& path, layer_spec& s) {
+  spec_keys(l, source, path, {"attention", "label"});
+  const nlohmann::json& a = l["attention"];
+  const std::string apath = path + ".attention";
+  spec_keys(a, source, apath, {"heads", "length", "width", "scheme", "output_scheme"});
+  s.attention = true;
+  s.heads = spec_width(spec_required(a, source, apath, "heads"), source, apath + ".heads");
+  if (a.contains("length")) {
+    s.length = spec_width(a["length"], source, apath + ".length");
+    if (s.length > (std::uint64_t{1} << 16)) spec_fail(source, apath + ".length", spec_value_text(a["length"]), "at most 65536 tokens");
+  }
+  if (a.contains("width")) s.model_width = spec_width(a["width"], source, apath + ".width");
+  if (a.contains("scheme")) {
+    s.projection_scheme = spec_name(a["scheme"], source, apath + ".scheme", spec_attention_scheme_names());
+  }
+  s.output_scheme = s.projection_scheme;
+  if (a.contains("output_scheme")) {
+    s.output_scheme = spec_name(a["output_scheme"], source, apath + ".output_scheme", spec_attention_scheme_names());
+  }
+  if (l.contains("label")) s.label = spec_name(l["label"], source, path + ".label", {});
+}
+
 inline layer_spec spec_layer(const nlohmann::json& l, const std::string& source, const std::string& path) {
   layer_spec s;
   s.path = path;
+  if (l.is_object() && l.contains("attention")) {
+    spec_attention(l, source, path, s);
+    return s;
+  }
   if (l.is_object() && l.contains("residual")) {
     spec_residual(l, source, path, s);
     return s;
@@ -515,6 +570,11 @@ inline void spec_add_layers(layer_stack& stack, const std::vector<layer_spec>& l
                                   "inside a residual branch, expected recurrent cells only in the top-level "
                                   "'layers'");
     }
+    if (l.attention) {
+      throw std::invalid_argument("kindling network spec: '" + l.path + ".attention' is refused: an attention block "
+                                  "inside a residual branch, expected attention blocks only in the top-level "
+                                  "'layers'");
+    }
     try {
       if (l.residual) {
         layer_stack branch = stack.top_extent().empty() ? layer_stack(stack.top_width())
@@ -568,9 +628,11 @@ inline void spec_add_layers(layer_stack& stack, const std::vector<layer_spec>& l
 /// placed on the map below them, residual branches read the top of the stack.
 inline layer_stack build_stack(const network_spec& spec) {
   for (const layer_spec& l : spec.layers) {
-    if (l.recurrent) {
-      throw std::invalid_argument("kindling network spec: '" + l.path + "' is a recurrent cell, expected a stack "
-                                  "without cells here (build_sections cuts a spec at its cells)");
+    if (l.recurrent || l.attention) {
+      throw std::invalid_argument("kindling network spec: '" + l.path + "' is " +
+                                  (l.recurrent ? "a recurrent cell" : "an attention block") +
+                                  ", expected a stack without cells or attention blocks here (build_sections reads "
+                                  "them)");
     }
   }
   layer_stack stack = spec.input_extent.empty()
@@ -592,7 +654,55 @@ struct network_sections {
   std::vector<layer_stack> stacks;
   std::vector<recurrent_cell> cells;
   std::vector<std::string> cell_paths;  // e.g. "layers[3]", for messages
+  /// The attention blocks, checked and built (propagate/attention.hpp), in spec order.
+  std::vector<attention_block> attention;
+  std::vector<std::string> attention_paths;
 };
+
+namespace detail {
+// An attention block on top of `below`: its width the features (or 1-D map channels)
+// there, its length the map's (or "length" on features); refusals name the spec key.
+inline attention_block spec_attention_block(const layer_spec& l, const layer_stack& below, std::size_t index) {
+  const std::string key = l.path + ".attention";
+  const std::vector<std::uint64_t> extent = below.top_extent();
+  if (extent.size() > 1) {
+    throw std::invalid_argument("kindling network spec: '" + l.path + "' is refused: the map below has extent " +
+                                shape_text(extent) + ", expected a 1-D map (its axis the tokens) or features below "
+                                "an attention block");
+  }
+  std::uint64_t width = extent.empty() ? below.top_features() : below.top_width(), length = l.length;
+  if (extent.size() == 1) {
+    if (length != 0 && length != extent[0]) {
+      throw std::invalid_argument("kindling network spec: '" + key + ".length' = " + std::to_string(length) +
+                                  ", expected the length of the 1-D map below, " + std::to_string(extent[0]) +
+                                  " (or no 'length')");
+    }
+    length = extent[0];
+  } else if (length == 0) {
+    throw std::invalid_argument("kindling network spec: '" + key + "' has no key 'length', expected the number of "
+                                "tokens (the layer below is not a 1-D map)");
+  }
+  if (l.model_width != 0 && l.model_width != width) {
+    throw std::invalid_argument("kindling network spec: '" + key + ".width' = " + std::to_string(l.model_width) +
+                                ", expected the width of the layer below, " + std::to_string(width));
+  }
+  if (width % l.heads != 0) {
+    throw std::invalid_argument("kindling network spec: '" + key + ".heads' = " + std::to_string(l.heads) +
+                                ", expected a divisor of the model width " + std::to_string(width));
+  }
+  if (width > (std::uint64_t{1} << 16) || length > (std::uint64_t{1} << 16)) {
+    throw std::invalid_argument("kindling network spec: '" + key + "' has width " + std::to_string(width) +
+                                " and length " + std::to_string(length) + ", expected at most 65536 each");
+  }
+  std::array<projection_scheme, 4> schemes;
+  for (std::size_t i = 0; i < 4; ++i) {
+    with_spec_scheme(i < 3 ? l.projection_scheme : l.output_scheme, {},
+                     [&](const auto& sc) { schemes[i] = projection_scheme::of(sc, width); });
+  }
+  const std::string label = l.label.empty() ? "attention" + std::to_string(index + 1) : l.label;
+  return attention_block(width, l.heads, length, std::move(schemes), label);
+}
+}  // namespace detail
 
 inline network_sections build_sections(const network_spec& spec, const std::vector<double>& state_moments = {}) {
   network_sections out;
@@ -601,6 +711,14 @@ inline network_sections build_sections(const network_spec& spec, const std::vect
                             : layer_stack::feature_maps(spec.input_width, spec.input_extent, spec.input_variance);
   std::vector<layer_spec> pending;
   for (const layer_spec& l : spec.layers) {
+    if (l.attention) {
+      // Checked on what is below it (the layers since the last cut, added to a copy).
+      layer_stack below = current;
+      detail::spec_add_layers(below, pending);
+      out.attention.push_back(detail::spec_attention_block(l, below, out.attention.size()));
+      out.attention_paths.push_back(l.path);
+      continue;
+    }
     if (!l.recurrent) {
       pending.push_back(l);
       continue;

@@ -2,8 +2,9 @@
 // (examples/tool/spec.hpp). Any input is refused with std::invalid_argument or std::domain_error
 // (the header's contract; std::length_error is allowed as the library's size error;
 // any other exception, e.g. one of nlohmann-json's own, escapes and is a finding), or
-// parsed into a spec that builds its sections (stacks cut at recurrent cells), each
-// stack with layers having a prediction.
+// parsed into a spec that builds its sections (stacks cut at recurrent cells, attention
+// blocks checked and built), each stack with layers having a prediction, each attention
+// block its planned score moment.
 #include <cstddef>
 #include <cstdint>
 #include <stdexcept>
@@ -20,6 +21,7 @@ extern "C" int LLVMFuzzerTestOneInput(const std::uint8_t* data, std::size_t size
     for (const kindling::layer_stack& stack : sections.stacks) {
       if (!stack.empty()) (void)kindling::predict(stack);
     }
+    for (const kindling::attention_block& block : sections.attention) (void)block.score_moment(1.0);
   } catch (const std::invalid_argument&) {
   } catch (const std::domain_error&) {
   } catch (const std::length_error&) {

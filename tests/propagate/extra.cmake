@@ -27,3 +27,13 @@ kindling_reference_check(
   SOURCE reference/print_recurrent.cpp SCRIPT check_recurrent.py
   NAME "propagate: recurrent cells over 50 steps match a NumPy unrolling from the same weights")
 target_link_libraries(kindling_propagate_print_recurrent PRIVATE kindling_eigen)
+
+# Attention blocks checked against NumPy (Debian python3-numpy, /usr/bin/python3): the
+# printer exports draw 0 of three blocks (one head, four heads, a saturated softmax):
+# the four projections and the inputs as .npy, and kindling's measured moments; and
+# check_attention.py redoes the forward pass with numpy.einsum and a softmax over keys.
+kindling_reference_check(
+  AREA propagate PROGRAM kindling_propagate_print_attention
+  SOURCE reference/print_attention.cpp SCRIPT check_attention.py
+  NAME "propagate: attention passes match a NumPy computation from the same weights")
+target_link_libraries(kindling_propagate_print_attention PRIVATE kindling_eigen)

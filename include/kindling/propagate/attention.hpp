@@ -1,0 +1,494 @@
+// kindling/propagate/attention.hpp (Eigen): an attention block's projections (query,
+// key, value and output) with the softmax over scaled scores, single or multi-head,
+// predicted where a prediction holds and measured forward over a batch of token
+// sequences.
+//
+// The block.  A sequence of L tokens x_1 .. x_L of `width` features (d); H heads of
+// d_k = d / H features each.  Four dense projections, each [d, d] (fans (d, d)), drawn by
+// their schemes from the sub-streams `label.query_weight`, `label.key_weight`,
+// `label.value_weight` and `label.output_weight`; no biases (zero at initialization):
+//     q_i = W_q x_i,  k_i = W_k x_i,  v_i = W_v x_i   (head h: rows h d_k .. (h+1) d_k - 1)
+//     s_ij = q_i . k_j / sqrt(d_k)   per head   (the scaled dot product: Vaswani et al.,
+//                                               NeurIPS 2017, sec. 3.2.1)
+//     p_ij = exp(s_ij) / sum_j' exp(s_ij')    (over the keys j, every query attends to
+//                                               every token: no mask)
+//     o_i  = sum_j p_ij v_j   per head, the heads concatenated;   y_i = W_o o_i.
+//
+// Prediction.  Each moment below is predicted as its expectation over the weight that
+// produces it, given what the pass computed before that weight acted (as
+// recurrent.hpp predicts a gate from the state measured in the same draw).  The weights
+// are independent and zero-mean with per-element variance Var W (any elementwise scheme:
+// Glorot, He, LeCun, fan-scaled; not orthogonal, whose rows are not independent).
+//   - query, key, value (dense layers, fan-in d; Glorot & Bengio 2010, LeCun et al.
+//     1998): E[q^2 | x] = Var W_q |x|^2, so E[q^2] = d Var W_q E[x^2].
+//   - score: given the inputs, the d_k products in q_i . k_j are uncorrelated (rows of W_q
+//     and W_k independent) and E[(w_q . x_i)^2 (w_k . x_j)^2] = Var W_q Var W_k |x_i|^2
+//     |x_j|^2, so  E[s_ij^2 | x] = Var W_q Var W_k |x_i|^2 |x_j|^2  whatever d_k: the
+//     1/sqrt(d_k) keeps the score's variance at Var q Var k, the point of Vaswani et al.'s
+//     footnote 4 (q . k of unit-variance independent components has variance d_k).  Over
+//     Gaussian inputs (E|x|^4 = d(d+2) E[x^2]^2; ours: the diagonal j = i has the same
+//     token on both sides) the mean over the L^2 scores is
+//         E[s^2] = Var q Var k (1 + 2/(d L)).
+//   - softmax: no closed form for the weights p (they depend on the whole score row):
+//     measured only.  Reported as the concentration E[sum_j p_ij^2] (1/L for uniform
+//     attention, 1 for one-hot: a saturated softmax) and the mean largest weight.
+//   - mix o: W_v is independent of the weights p, so E[o_c^2 | p, x] = Var W_v
+//     |sum_j p_ij x_j|^2 (a conditional prediction from the draw's p and x; the moment
+//     of o over draws of the whole block depends on the softmax: measured only).  With
+//     near-uniform attention this is about Var v E[sum_j p_ij^2], the averaging over L
+//     tokens; not used as a prediction.
+//   - output y (dense, fan-in d): E[y^2 | o] = d Var W_o E[o^2].
+//
+// Measurement.  Draw k uses the stream t = s.indexed(k): the four weights as
+// draw_attention draws them from t, and inputs N(0, E[x^2]) from t.named("input") as a
+// [d, L batch] matrix (column b L + i is token i of sequence b).  Each draw is a task of
+// the executor and sums in a fixed order, so the results are the same bits on any
+// executor.  The verdict on each of the six predicted rows (query, key, value, score,
+// mix, output) is measure.hpp's rule on the ratios m_k / p_k over the K draws: a
+// Student's t band with the false-alarm rate split (Bonferroni) over the six rows, plus
+// a finite-width allowance c w accumulated in the direction of the forward pass, w the
+// sum of 1/n over the sums the pass went through: 1/d for the projections, + 1/d_k for
+// the score, + 1/L for the mix, + 1/d for the output.  Forward only: the backward pass
+// through the softmax is not measured here.
+// False-alarm rate, measured (tests/propagate/attention.cpp, "rate: ..."): 240 correct
+// blocks (200 of width 16, 1 or 4 heads, 8 tokens, 8 draws of 4 sequences, Glorot and
+// LeCun; 40 of width 64, 4 heads, 16 tokens, 8 draws of 8), no allowance: nominal 0.2 a
+// table -> observed 0.13 (0.028 a row against a nominal 0.033); with the defaults no NO
+// in 1440 rows.  Power: at 8 draws of 8 sequences (width 64, 4 heads, 16 tokens) a row's
+// band is about x/1.07 (projections) to x/1.3 (mix, output); projections drawn at gain 3
+// are flagged at all six rows (scores 81x), a value projection alone 3x off at value and
+// mix.  The passes run in double (the weights drawn as doubles), as in recurrent.hpp.
+#ifndef KINDLING_PROPAGATE_ATTENTION_HPP
+#define KINDLING_PROPAGATE_ATTENTION_HPP
+
+#include <Eigen/Dense>
+
+#include <algorithm>
+#include <array>
+#include <cmath>
+#include <cstdint>
+#include <cstdio>
+#include <functional>
+#include <limits>
+#include <stdexcept>
+#include <string>
+#include <utility>
+#include <vector>
+
+#include "measure.hpp"
+
+namespace kindling {
+
+/// A scheme bound to one [width, width] projection: its name, the per-element variance it
+/// draws and how it fills the weight (initialize() of a dense layer).
+struct projection_scheme {
+  std::string name;
+  double variance = 0;
+  std::function<void(const strided_view<double>&, const stream&)> draw;
+
+  template <class Scheme>
+  static projection_scheme of(const Scheme& scheme, std::uint64_t width) {
+    const dense layer(width, width);
+    projection_scheme p;
+    p.name = scheme.name();
+    p.variance = weight_variance_of(scheme, layer.layer_fans());
+    p.draw = [scheme, layer](const strided_view<double>& w, const stream& s) { initialize(w, layer, scheme, s); };
+    return p;
+  }
+};
+
+/// The four projections in their order: query, key, value, output.
+inline const std::array<const char*, 4>& projection_names() {
+  static const std::array<const char*, 4> names{"query", "key", "value", "output"};
+  return names;
+}
+
+/// An attention block over sequences of `length` tokens of `width` features, `heads`
+/// heads, its four projections drawn by their schemes.
+class attention_block {
+ public:
+  /// One scheme for the query, key and value projections, another for the output one.
+  template <class ProjectionScheme, class OutputScheme,
+            class = decltype(std::declval<const ProjectionScheme&>().name(), std::declval<const OutputScheme&>().name())>
+  attention_block(std::uint64_t width, std::uint64_t heads, std::uint64_t length, const ProjectionScheme& projections,
+                  const OutputScheme& output, std::string label = "attention")
+      : attention_block(bind(projections, checked(width, heads, length)), bind(projections, checked(width, heads, length)),
+                        bind(projections, checked(width, heads, length)), bind(output, checked(width, heads, length)),
+                        width, heads, length, std::move(label), 0) {}
+
+  /// The same scheme for all four projections.
+  template <class Scheme, class = decltype(std::declval<const Scheme&>().name())>
+  attention_block(std::uint64_t width, std::uint64_t heads, std::uint64_t length, const Scheme& scheme)
+      : attention_block(width, heads, length, scheme, scheme) {}
+
+  /// From schemes already bound to the projections (e.g. chosen by name at run time, or
+  /// one projection drawn differently), in the order query, key, value, output.
+  attention_block(std::uint64_t width, std::uint64_t heads, std::uint64_t length, std::array<projection_scheme, 4> schemes,
+                  std::string label)
+      : attention_block(checked_schemes(std::move(schemes), checked(width, heads, length)), width, heads, length,
+                        std::move(label)) {}
+
+ private:
+  attention_block(projection_scheme q, projection_scheme k, projection_scheme v, projection_scheme o,
+                  std::uint64_t width, std::uint64_t heads, std::uint64_t length, std::string label, int /* tag */)
+      : attention_block({std::move(q), std::move(k), std::move(v), std::move(o)}, width, heads, length,
+                        std::move(label)) {}
+  attention_block(std::array<projection_scheme, 4> schemes, std::uint64_t width, std::uint64_t heads,
+                  std::uint64_t length, std::string label)
+      : width_(width), heads_(heads), length_(length), label_(std::move(label)), schemes_(std::move(schemes)) {}
+
+  // Arguments are checked (by `checked`, inside each scheme argument: their order of
+  // evaluation is unspecified) before a projection is described.
+  template <class Scheme>
+  static projection_scheme bind(const Scheme& scheme, std::uint64_t width) {
+    return projection_scheme::of(scheme, width);
+  }
+
+  static std::array<projection_scheme, 4> checked_schemes(std::array<projection_scheme, 4> s, std::uint64_t) {
+    for (std::size_t i = 0; i < 4; ++i) {
+      if (!(std::isfinite(s[i].variance) && s[i].variance >= 0.0) || !s[i].draw) {
+        throw std::invalid_argument(std::string("kindling::attention_block: argument 'schemes[") + std::to_string(i) +
+                                    "]' (" + projection_names()[i] + ", '" + s[i].name + "') has variance " +
+                                    detail::argument_text(s[i].variance) +
+                                    ", expected a finite variance >= 0 and a draw");
+      }
+    }
+    return s;
+  }
+
+  static std::uint64_t checked(std::uint64_t width, std::uint64_t heads, std::uint64_t length) {
+    constexpr const char* where = "kindling::attention_block";
+    detail::require_positive(width, where, "width");
+    detail::require_positive(heads, where, "heads");
+    detail::require_positive(length, where, "length");
+    if (width % heads != 0) {
+      throw std::invalid_argument(std::string(where) + ": argument 'heads' = " + std::to_string(heads) +
+                                  ", expected a divisor of width = " + std::to_string(width));
+    }
+    const std::uint64_t cap = std::uint64_t{1} << 16;
+    if (width > cap || length > cap) {
+      const char* name = width > cap ? "width" : "length";
+      throw std::length_error(std::string(where) + ": argument '" + name + "' = " +
+                              std::to_string(width > cap ? width : length) + ", expected at most 2^16");
+    }
+    return width;
+  }
+
+ public:
+  std::uint64_t width() const noexcept { return width_; }
+  std::uint64_t heads() const noexcept { return heads_; }
+  std::uint64_t head_width() const noexcept { return width_ / heads_; }
+  std::uint64_t length() const noexcept { return length_; }
+  const std::string& label() const noexcept { return label_; }
+  /// Projection i (0 query, 1 key, 2 value, 3 output): scheme name and Var W per element.
+  const std::string& scheme(std::size_t i) const { return schemes_.at(i).name; }
+  double weight_variance(std::size_t i) const { return schemes_.at(i).variance; }
+  void draw_weight(std::size_t i, const strided_view<double>& w, const stream& s) const { schemes_.at(i).draw(w, s); }
+
+  /// E[q^2] (i = 0), E[k^2] (1) or E[v^2] (2) for inputs of second moment E[x^2]: a dense
+  /// layer of fan-in width.
+  double projection_moment(std::size_t i, double input_moment) const {
+    return static_cast<double>(width_) * weight_variance(i) * input_moment;
+  }
+  /// E[s^2] over the L^2 scores for Gaussian inputs of second moment E[x^2] (the header
+  /// comment: Var q Var k (1 + 2/(d L))).
+  double score_moment(double input_moment) const {
+    const double d = static_cast<double>(width_), l = static_cast<double>(length_);
+    return projection_moment(0, input_moment) * projection_moment(1, input_moment) * (1.0 + 2.0 / (d * l));
+  }
+
+ private:
+  std::uint64_t width_, heads_, length_;
+  std::string label_;
+  std::array<projection_scheme, 4> schemes_;
+};
+
+/// The drawn projections, each [width, width] (out, in): query, key, value, output.
+struct realized_attention {
+  std::array<Eigen::MatrixXd, 4> weight;
+};
+
+/// Draws a block's weights from stream s (`label.query_weight`, ... `label.output_weight`).
+inline realized_attention draw_attention(const attention_block& block, const stream& s) {
+  const auto d = static_cast<Eigen::Index>(block.width());
+  realized_attention r;
+  for (std::size_t i = 0; i < 4; ++i) {
+    r.weight[i].resize(d, d);
+    block.draw_weight(i, view_of(r.weight[i]), s.named(block.label() + "." + projection_names()[i] + "_weight"));
+  }
+  return r;
+}
+
+/// The moments of one forward pass (means over features, tokens, heads and sequences),
+/// and what the conditional predictions of the header comment read from the same pass
+/// (each times a weight variance gives the prediction).
+struct attention_moments {
+  double input = 0;                 // E[x^2]
+  double query = 0, key = 0, value = 0;
+  double score = 0;                 // E[s^2], s = q . k / sqrt(d_k)
+  double concentration = 0;         // E[sum_j p_ij^2]: 1/L uniform, 1 one-hot
+  double largest_weight = 0;        // E[max_j p_ij]
+  double mix = 0;                   // E[o^2], o_i = sum_j p_ij v_j
+  double output = 0;                // E[y^2]
+  double token_norm = 0;            // mean over tokens of |x_i|^2: E[q^2] = Var W_q token_norm
+  double pair_norm = 0;             // mean over (i, j) of |x_i|^2 |x_j|^2: E[s^2] = Var W_q Var W_k pair_norm
+  double mixed_norm = 0;            // mean over (head, i) of |sum_j p_ij x_j|^2: E[o^2] = Var W_v mixed_norm
+  double mix_norm = 0;              // mean over tokens of |o_i|^2: E[y^2] = Var W_o mix_norm
+};
+
+/// One forward pass of `input` ([width, length batch], column b L + i token i of
+/// sequence b) through the drawn block.
+inline attention_moments run_attention(const attention_block& block, const realized_attention& net,
+                                       const Eigen::MatrixXd& input) {
+  constexpr const char* where = "kindling::run_attention";
+  const auto d = static_cast<Eigen::Index>(block.width()), L = static_cast<Eigen::Index>(block.length());
+  const auto H = static_cast<Eigen::Index>(block.heads()), dk = d / H;
+  for (std::size_t i = 0; i < 4; ++i) {
+    if (net.weight[i].rows() != d || net.weight[i].cols() != d) {
+      throw std::invalid_argument(std::string(where) + ": argument 'net' has a " + projection_names()[i] +
+                                  " weight of " + std::to_string(net.weight[i].rows()) + " x " +
+                                  std::to_string(net.weight[i].cols()) + ", expected " + std::to_string(d) + " x " +
+                                  std::to_string(d));
+    }
+  }
+  if (input.rows() != d || input.cols() == 0 || input.cols() % L != 0) {
+    throw std::invalid_argument(std::string(where) + ": argument 'input' is " + std::to_string(input.rows()) + " x " +
+                                std::to_string(input.cols()) + ", expected " + std::to_string(d) +
+                                " rows (width) and a positive multiple of length = " + std::to_string(L) + " columns");
+  }
+  const Eigen::Index B = input.cols() / L;
+  const Eigen::MatrixXd q = net.weight[0] * input, k = net.weight[1] * input, v = net.weight[2] * input;
+  Eigen::MatrixXd o(d, input.cols());
+  const double scale = 1.0 / std::sqrt(static_cast<double>(dk));
+  double score = 0, concentration = 0, largest = 0, mixed_inputs = 0, pair_norm = 0;
+  for (Eigen::Index b = 0; b < B; ++b) {
+    const auto x = input.middleCols(b * L, L);
+    const double norms = x.colwise().squaredNorm().sum() / static_cast<double>(L);  // mean_i |x_i|^2
+    pair_norm += norms * norms;
+    for (Eigen::Index h = 0; h < H; ++h) {
+      const Eigen::MatrixXd s =
+          (q.block(h * dk, b * L, dk, L).transpose() * k.block(h * dk, b * L, dk, L)) * scale;  // [query, key]
+      score += s.squaredNorm();
+      Eigen::MatrixXd p = (s.colwise() - s.rowwise().maxCoeff()).array().exp().matrix();
+      p = (p.array().colwise() / p.rowwise().sum().array()).matrix();
+      concentration += p.squaredNorm();
+      largest += p.rowwise().maxCoeff().sum();
+      o.block(h * dk, b * L, dk, L).noalias() = v.block(h * dk, b * L, dk, L) * p.transpose();
+      mixed_inputs += (x * p.transpose()).squaredNorm();
+    }
+  }
+  const Eigen::MatrixXd y = net.weight[3] * o;
+  const double tokens = static_cast<double>(B * L), n = static_cast<double>(d) * tokens;
+  const double rows = tokens * static_cast<double>(H);  // query rows of all heads
+  attention_moments m;
+  m.input = input.squaredNorm() / n;
+  m.query = q.squaredNorm() / n;
+  m.key = k.squaredNorm() / n;
+  m.value = v.squaredNorm() / n;
+  m.score = score / (rows * static_cast<double>(L));
+  m.concentration = concentration / rows;
+  m.largest_weight = largest / rows;
+  m.mix = o.squaredNorm() / n;
+  m.output = y.squaredNorm() / n;
+  m.token_norm = input.squaredNorm() / tokens;
+  m.pair_norm = pair_norm / static_cast<double>(B);
+  m.mixed_norm = mixed_inputs / rows;
+  m.mix_norm = o.squaredNorm() / tokens;
+  return m;
+}
+
+struct attention_options {
+  std::size_t trials = 8;               // independent draws, at least 2
+  double false_alarm = 1e-3;            // for the six predicted rows together, in (0, 1)
+  double finite_width_allowance = 1.0;  // c >= 0: the band widens by c w (header comment)
+  double input_second_moment = 1.0;     // E[x^2] of the inputs
+};
+
+/// One row of the report: a moment measured over the draws.
+struct attention_row {
+  std::string name;
+  std::uint64_t width = 0;   // features of the row's tensor (d; L for the softmax weights)
+  double planned = 0;        // the prediction from the schemes alone; NaN: measured only
+  double median = 0;         // of the measured moment over the draws
+  double spread = 0;         // standard deviation over draws of ln(moment)
+  bool judged = false;       // has a prediction given the draw (not the softmax row)
+  measured_moment verdict;   // over the ratios m_k / p_k (predicted 1), when judged
+};
+
+struct attention_report {
+  std::vector<attention_row> rows;        // query, key, value, score, softmax, mix, output
+  std::vector<attention_moments> draws;   // per draw, everything measured
+  std::size_t trials = 0;
+  std::uint64_t batch = 0;                // sequences a draw
+  double false_alarm = 0;
+  double quantile = 0;
+  bool all_agree() const {
+    for (const auto& r : rows)
+      if (r.judged && !r.verdict.agrees) return false;
+    return true;
+  }
+  const attention_row& row(const std::string& name) const {
+    for (const auto& r : rows)
+      if (r.name == name) return r;
+    throw std::out_of_range("kindling::attention_report::row: argument 'name' = '" + name +
+                            "', expected query, key, value, score, softmax, mix or output");
+  }
+  /// A plain-text table with the columns of propagation_report::table() (the backward
+  /// ones "-": forward only); the softmax row's moment is the concentration E[sum p^2].
+  std::string table() const {
+    std::string s;
+    char line[512];
+    std::snprintf(line, sizeof line, "%-10s %6s %11s %11s %7s %11s %11s %7s  %s\n", "layer", "width", "fwd_var",
+                  "fwd_med", "x/", "bwd_var", "bwd_med", "x/", "agrees");
+    s += line;
+    for (const auto& r : rows) {
+      char planned[32];
+      if (std::isnan(r.planned)) std::snprintf(planned, sizeof planned, "measured");
+      else std::snprintf(planned, sizeof planned, "%.4g", r.planned);
+      std::snprintf(line, sizeof line, "%-10s %6llu %11s %11.4g %7.3g %11s %11s %7s  %s\n", r.name.c_str(),
+                    static_cast<unsigned long long>(r.width), planned, r.median, std::exp(r.spread), "-", "-", "-",
+                    !r.judged ? "-" : r.verdict.agrees ? "yes" : "NO");
+      s += line;
+      if (r.judged && !r.verdict.agrees) {
+        std::snprintf(line, sizeof line, "    disagrees: mean/predicted = %.4g given the draw, outside the band x/%.4g\n",
+                      std::exp(r.verdict.deviation), std::exp(r.verdict.tolerance));
+        s += line;
+      }
+    }
+    std::snprintf(line, sizeof line,
+                  "%zu draws of %llu sequence%s; fwd_var: predicted from the schemes (measured: no closed form); a row "
+                  "agrees when its mean ratio to the prediction given the draw is within t(%zu) = %.3g standard "
+                  "errors plus a finite-width allowance (false alarm <= %g for the table); forward only\n",
+                  trials, static_cast<unsigned long long>(batch), batch == 1 ? "" : "s", trials > 0 ? trials - 1 : 0,
+                  quantile, false_alarm);
+    s += line;
+    return s;
+  }
+};
+
+namespace detail {
+inline attention_moments measure_attention_draw(const attention_block& block, const stream& t, std::uint64_t batch,
+                                                double input_moment) {
+  const realized_attention net = draw_attention(block, t);
+  Eigen::MatrixXd x(static_cast<Eigen::Index>(block.width()), static_cast<Eigen::Index>(block.length() * batch));
+  fill(view_of(x), dist::normal{0.0, std::sqrt(input_moment)}, t.named("input"));
+  return run_attention(block, net, x);
+}
+
+inline double median_of(std::vector<double> v) {
+  std::sort(v.begin(), v.end());
+  const std::size_t k = v.size();
+  return k % 2 == 1 ? v[k / 2] : 0.5 * (v[k / 2 - 1] + v[k / 2]);
+}
+
+inline double log_spread(const std::vector<double>& v) {
+  double mean = 0, ss = 0;
+  for (double x : v) mean += std::log(x);
+  mean /= static_cast<double>(v.size());
+  for (double x : v) ss += (std::log(x) - mean) * (std::log(x) - mean);
+  return std::sqrt(ss / static_cast<double>(v.size() - 1));
+}
+}  // namespace detail
+
+/// Draws `measured` options.trials times (draw k from s.indexed(k)), runs `batch`
+/// sequences through each, and judges the six predicted rows against the predictions of
+/// `predicted` (a block of the same sizes; usually the same block) given each draw.
+template <class Exec = serial_executor>
+attention_report compare_attention(const attention_block& measured, const attention_block& predicted,
+                                   std::uint64_t batch, const stream& s, const attention_options& options = {},
+                                   Exec&& exec = Exec{}) {
+  constexpr const char* where = "kindling::compare_attention";
+  if (predicted.width() != measured.width() || predicted.heads() != measured.heads() ||
+      predicted.length() != measured.length()) {
+    throw std::invalid_argument(std::string(where) + ": argument 'predicted' has width " +
+                                std::to_string(predicted.width()) + ", " + std::to_string(predicted.heads()) +
+                                " heads and length " + std::to_string(predicted.length()) +
+                                ", expected the sizes of argument 'measured' (width " + std::to_string(measured.width()) +
+                                ", " + std::to_string(measured.heads()) + " heads, length " +
+                                std::to_string(measured.length()) + ")");
+  }
+  detail::check_measure_options(measure_options{{}, options.trials, options.false_alarm, options.finite_width_allowance},
+                                where);
+  if (!(std::isfinite(options.input_second_moment) && options.input_second_moment > 0.0)) {
+    throw std::domain_error(std::string(where) + ": argument 'options.input_second_moment' = " +
+                            detail::argument_text(options.input_second_moment) + ", expected a finite number > 0");
+  }
+  if (batch < 1) {
+    throw std::invalid_argument(std::string(where) + ": argument 'batch' = " + std::to_string(batch) +
+                                ", expected at least 1 sequence a draw");
+  }
+  attention_report report;
+  report.trials = options.trials;
+  report.batch = batch;
+  report.false_alarm = options.false_alarm;
+  report.draws.resize(options.trials);
+  const auto task = [&](std::size_t k) {
+    report.draws[k] = detail::measure_attention_draw(measured, s.indexed(k), batch, options.input_second_moment);
+  };
+  exec(options.trials, std::function<void(std::size_t)>(task));
+  report.quantile = detail::student_t_two_sided(options.false_alarm / 6.0, options.trials - 1);
+
+  // The prediction given draw k: `predicted`'s weight variances times what draw k's pass
+  // computed before each weight acted.
+  const double d = static_cast<double>(measured.width()), dk = static_cast<double>(measured.head_width());
+  const double l = static_cast<double>(measured.length()), c = options.finite_width_allowance;
+  const auto var = [&](std::size_t i) { return predicted.weight_variance(i); };
+  const auto ratio_to = [&](const attention_moments& m, std::size_t i) {
+    switch (i) {
+      case 0: return m.query / (var(0) * m.token_norm);
+      case 1: return m.key / (var(1) * m.token_norm);
+      case 2: return m.value / (var(2) * m.token_norm);
+      case 3: return m.score / (var(0) * var(1) * m.pair_norm);
+      case 4: return m.mix / (var(2) * m.mixed_norm);
+      default: return m.output / (var(3) * m.mix_norm);
+    }
+  };
+  struct spec {
+    const char* name;
+    double attention_moments::*moment;
+    std::uint64_t width;
+    double planned;
+    int judged;  // index for ratio_to, -1: measured only
+    double allowance;
+  };
+  const double x2 = options.input_second_moment, nan = std::numeric_limits<double>::quiet_NaN();
+  const std::uint64_t w = measured.width();
+  const spec specs[] = {
+      {"query", &attention_moments::query, w, predicted.projection_moment(0, x2), 0, c / d},
+      {"key", &attention_moments::key, w, predicted.projection_moment(1, x2), 1, c / d},
+      {"value", &attention_moments::value, w, predicted.projection_moment(2, x2), 2, c / d},
+      {"score", &attention_moments::score, measured.length(), predicted.score_moment(x2), 3, c * (1 / d + 1 / dk)},
+      {"softmax", &attention_moments::concentration, measured.length(), nan, -1, 0.0},
+      {"mix", &attention_moments::mix, w, nan, 4, c * (1 / d + 1 / dk + 1 / l)},
+      {"output", &attention_moments::output, w, nan, 5, c * (2 / d + 1 / dk + 1 / l)},
+  };
+  for (const spec& sp : specs) {
+    attention_row r;
+    r.name = sp.name;
+    r.width = sp.width;
+    r.planned = sp.planned;
+    std::vector<double> values;
+    for (const auto& m : report.draws) values.push_back(m.*(sp.moment));
+    r.median = detail::median_of(values);
+    r.spread = r.median > 0.0 ? detail::log_spread(values) : 0.0;
+    if (sp.judged >= 0) {
+      std::vector<double> ratios;
+      for (const auto& m : report.draws) ratios.push_back(ratio_to(m, static_cast<std::size_t>(sp.judged)));
+      r.judged = true;
+      r.verdict = detail::judge_moment(1.0, std::move(ratios), report.quantile, sp.allowance);
+    }
+    report.rows.push_back(std::move(r));
+  }
+  return report;
+}
+
+/// The same with the block's own prediction.
+template <class Exec = serial_executor>
+attention_report compare_attention(const attention_block& block, std::uint64_t batch, const stream& s,
+                                   const attention_options& options = {}, Exec&& exec = Exec{}) {
+  return compare_attention(block, block, batch, s, options, std::forward<Exec>(exec));
+}
+
+}  // namespace kindling
+
+#endif  // KINDLING_PROPAGATE_ATTENTION_HPP

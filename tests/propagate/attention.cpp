@@ -1,0 +1,163 @@
+// Tests of propagate/attention.hpp: query, key, value and output projections with the
+// softmax over scaled scores, single and multi-head.
+//
+// Sources: Vaswani et al., NeurIPS 2017, sec. 3.2.1 and its footnote 4 (q . k of d_k
+// independent zero-mean unit-variance components has variance d_k, hence the 1/sqrt(d_k);
+// from memory); Glorot & Bengio, AISTATS 2010 (Glorot variance 2 / (fan_in + fan_out));
+// LeCun et al. 1998 (1 / fan_in); a dense layer's output moment fan_in Var W E[x^2]
+// (common practice).  The 1 + 2/(d L) of the scores' mean over Gaussian inputs and the
+// conditional predictions of the mix and output are derived in the header comment (ours).
+// The softmax weights have no closed form: measured only, and the whole pass is checked
+// against NumPy from the same weights (tests/propagate/check_attention.py, extra.cmake).
+#include "kindling/propagate/attention.hpp"
+#include "kindling/schemes/fan_scaled.hpp"
+
+#include <doctest/doctest.h>
+
+#include <cmath>
+#include <string>
+
+#include "../support/errors.hpp"
+
+using namespace kindling;
+using kindling_test::mentions;
+using kindling_test::message_of;
+
+namespace {
+std::size_t disagreeing(const attention_report& r) {
+  std::size_t n = 0;
+  for (const auto& row : r.rows) n += row.judged && !row.verdict.agrees;
+  return n;
+}
+}  // namespace
+
+TEST_CASE("attention, one head and several: every projection, the scores, the mix and the output agree, seeds") {
+  for (const std::uint64_t seed : {1, 2, 3, 4}) {
+    for (const std::uint64_t heads : {1, 4}) {
+      CAPTURE(seed);
+      CAPTURE(heads);
+      const attention_block glorot(64, heads, 16, glorot_uniform{}, glorot_uniform{});
+      const attention_report a = compare_attention(glorot, 8, stream::root(seed));
+      INFO(a.table());
+      CHECK(a.all_agree());
+      const attention_block lecun(48, heads, 12, lecun_normal{}, glorot_normal{});
+      const attention_report b = compare_attention(lecun, 8, stream::root(100 + seed));
+      INFO(b.table());
+      CHECK(b.all_agree());
+    }
+  }
+  // The planned values from the schemes alone: Glorot on [64, 64] draws Var W = 2/128
+  // (Glorot & Bengio 2010), so E[q^2] = 64/64 = 1 and E[s^2] = 1 (1 + 2/(64 16)).
+  const attention_block block(64, 4, 16, glorot_uniform{}, glorot_uniform{});
+  CHECK(block.projection_moment(0, 1.0) == doctest::Approx(1.0).epsilon(1e-14));
+  CHECK(block.score_moment(1.0) == doctest::Approx(1.0 + 2.0 / 1024.0).epsilon(1e-14));
+  const attention_report r = compare_attention(block, 16, stream::root(9));
+  // The unconditional plan against the median measured: the draws spread by about
+  // x/1.1 at this size, so the median sits within 15% of the plan.
+  CHECK(r.row("query").median == doctest::Approx(r.row("query").planned).epsilon(0.15));
+  CHECK(r.row("score").median == doctest::Approx(r.row("score").planned).epsilon(0.15));
+  CHECK(std::isnan(r.row("mix").planned));
+  CHECK(!r.row("softmax").judged);
+  // Scores of variance about 1 over 16 keys: attention between uniform (1/16) and one-hot.
+  CHECK(r.row("softmax").median > 1.0 / 16.0);
+  CHECK(r.row("softmax").median < 0.3);
+}
+
+TEST_CASE("projections drawn 3x too large: scores 81x, a saturated softmax, and every predicted row flagged") {
+  // Gain 3 on Glorot: Var W 9x, so E[q^2] and E[k^2] 9x and E[s^2] = Var q Var k 81x
+  // (Vaswani et al. 2017, footnote 4, with components of variance 9 on each side).
+  const attention_block drawn(64, 4, 16, glorot_uniform{3.0}, glorot_uniform{3.0});
+  const attention_block assumed(64, 4, 16, glorot_uniform{}, glorot_uniform{});
+  const attention_report bad = compare_attention(drawn, assumed, 8, stream::root(31));
+  const attention_report good = compare_attention(assumed, 8, stream::root(31));
+  INFO(bad.table());
+  INFO(good.table());
+  CHECK(disagreeing(bad) == 6);
+  CHECK(std::exp(bad.row("score").verdict.deviation) == doctest::Approx(81.0).epsilon(0.2));
+  CHECK(bad.row("score").median / good.row("score").median == doctest::Approx(81.0).epsilon(0.2));
+  // Saturation: with a score standard deviation of about 9 the largest weight of a row
+  // takes most of the mass; at gain 1 it does not.
+  const double saturated = detail::median_of([&] {
+    std::vector<double> v;
+    for (const auto& m : bad.draws) v.push_back(m.largest_weight);
+    return v;
+  }());
+  const double healthy = detail::median_of([&] {
+    std::vector<double> v;
+    for (const auto& m : good.draws) v.push_back(m.largest_weight);
+    return v;
+  }());
+  MESSAGE("largest softmax weight: gain 3 " << saturated << ", gain 1 " << healthy << "; concentration "
+                                            << bad.row("softmax").median << " and " << good.row("softmax").median);
+  CHECK(saturated > 0.8);
+  CHECK(healthy < 0.5);
+  // Only the value projection 3x too large: the scores agree, the value, the mix and the
+  // output do not.
+  std::array<projection_scheme, 4> s{projection_scheme::of(glorot_uniform{}, 64), projection_scheme::of(glorot_uniform{}, 64),
+                                     projection_scheme::of(glorot_uniform{3.0}, 64), projection_scheme::of(glorot_uniform{}, 64)};
+  const attention_block value_only(64, 4, 16, std::move(s), "attention");
+  const attention_report v = compare_attention(value_only, assumed, 8, stream::root(32));
+  INFO(v.table());
+  CHECK(v.row("score").verdict.agrees);
+  CHECK(!v.row("value").verdict.agrees);
+  CHECK(!v.row("mix").verdict.agrees);
+  CHECK(v.row("output").verdict.agrees);  // given the mix it read, W_o is as assumed
+}
+
+TEST_CASE("an attention block's measured draws are the same bits on any executor") {
+  const attention_block block(32, 2, 8, lecun_normal{}, lecun_normal{});
+  attention_options o;
+  o.trials = 4;
+  const attention_report a = compare_attention(block, 5, stream::root(5), o);
+  const attention_report b = compare_attention(block, 5, stream::root(5), o, thread_executor(2));
+  for (std::size_t k = 0; k < 4; ++k) {
+    CHECK(a.draws[k].score == b.draws[k].score);
+    CHECK(a.draws[k].mix == b.draws[k].mix);
+    CHECK(a.draws[k].output == b.draws[k].output);
+  }
+  CHECK(a.draws[0].output != a.draws[1].output);  // derived streams, not one reused
+}
+
+TEST_CASE("an attention block with heads not dividing the width, no tokens or no width is refused, naming it") {
+  CHECK(mentions(message_of<std::invalid_argument>([] { attention_block(64, 5, 16, glorot_uniform{}); }),
+                 "kindling::attention_block: argument 'heads' = 5, expected a divisor of width = 64"));
+  CHECK(mentions(message_of<std::invalid_argument>([] { attention_block(64, 4, 0, glorot_uniform{}); }),
+                 "argument 'length' = 0"));
+  CHECK(mentions(message_of<std::invalid_argument>([] { attention_block(0, 1, 4, glorot_uniform{}); }),
+                 "argument 'width' = 0"));
+  const attention_block a(16, 2, 4, glorot_uniform{}), b(16, 4, 4, glorot_uniform{});
+  CHECK(mentions(message_of<std::invalid_argument>([&] { compare_attention(a, b, 4, stream::root(1)); }),
+                 "argument 'predicted' has width 16, 4 heads"));
+}
+
+TEST_CASE("rate: false-alarm rate of the attention verdict on correct blocks, at or below nominal") {
+  // measure.hpp's rule over the ratios to the prediction given each draw; with no
+  // allowance the nominal rate is the bound.  Small blocks (width 16, 1 and 4 heads,
+  // 8 tokens, 8 draws of 4 sequences) and larger ones (width 64, 4 heads, 16 tokens),
+  // Glorot and LeCun.
+  std::size_t tables = 0, tables_no = 0, rows = 0, rows_no = 0, default_no = 0;
+  const auto run = [&](const attention_block& block, std::uint64_t batch, std::uint64_t seed) {
+    attention_options o;
+    o.false_alarm = 0.2;
+    o.finite_width_allowance = 0.0;
+    const std::size_t no = disagreeing(compare_attention(block, batch, stream::root(seed), o));
+    ++tables;
+    tables_no += no > 0;
+    rows += 6;
+    rows_no += no;
+    default_no += disagreeing(compare_attention(block, batch, stream::root(seed)));
+  };
+  for (std::uint64_t seed = 0; seed < 100; ++seed) {
+    run(attention_block(16, 1 + 3 * (seed % 2), 8, glorot_uniform{}, glorot_uniform{}), 4, 5000 + seed);
+    run(attention_block(16, 1 + 3 * (seed % 2), 8, lecun_normal{}, lecun_normal{}), 4, 6000 + seed);
+  }
+  for (std::uint64_t seed = 0; seed < 40; ++seed)
+    run(attention_block(64, 4, 16, glorot_normal{}, glorot_uniform{}), 8, 7000 + seed);
+  const double table_rate = static_cast<double>(tables_no) / static_cast<double>(tables);
+  const double row_rate = static_cast<double>(rows_no) / static_cast<double>(rows);
+  MESSAGE("nominal 0.2 a table: observed " << table_rate << " a table, " << row_rate << " a row (nominal "
+                                           << 0.2 / 6.0 << "); defaults: " << default_no << " NO rows of " << rows);
+  // 240 tables: a binomial at 0.2 stays below 0.29 with probability > 0.999.
+  CHECK(table_rate <= 0.29);
+  CHECK(default_no == 0);
+}
