@@ -15,35 +15,28 @@
 #include "kindling/eigen.hpp"
 #include "kindling/kindling.hpp"
 #include "kindling/schemes/orthogonal.hpp"
+#include "tensor_buffer.hpp"
 
 namespace {
 
-constexpr std::uint64_t rows = 4096, cols = 4096;  // 16 Mi floats = 64 MiB
+using kindling_bench::set_bytes;
+using kindling_bench::tensor_buffer;
+constexpr std::uint64_t rows = kindling_bench::side, cols = kindling_bench::side;  // 16 Mi floats = 64 MiB
 const kindling::dense layer(cols, rows);
 
-template <class E>
-std::vector<E>& buffer() {
-  static std::vector<E> b(rows * cols, E{});  // touched once by the value-initialization
-  return b;
-}
-
-void set_bytes(benchmark::State& state, std::size_t element_size) {
-  state.SetBytesProcessed(static_cast<int64_t>(state.iterations()) * static_cast<int64_t>(rows * cols * element_size));
-}
-
 void std_fill(benchmark::State& state) {
-  auto& b = buffer<float>();
+  auto& b = tensor_buffer<float>();
   for (auto _ : state) {
     std::fill(b.begin(), b.end(), 0.5f);
     benchmark::DoNotOptimize(b.data());
     benchmark::ClobberMemory();
   }
-  set_bytes(state, sizeof(float));
+  set_bytes(state, rows * cols * sizeof(float));
 }
 
 template <class E, class Scheme>
 void scheme_fill(benchmark::State& state, Scheme scheme) {
-  auto& b = buffer<E>();
+  auto& b = tensor_buffer<E>();
   const kindling::strided_view<E> v(b.data(), kindling::shape(rows, cols));
   const auto s = kindling::make_stream(1, "bench.w");
   const auto threads = static_cast<std::size_t>(state.range(0));
@@ -56,7 +49,7 @@ void scheme_fill(benchmark::State& state, Scheme scheme) {
     benchmark::DoNotOptimize(b.data());
     benchmark::ClobberMemory();
   }
-  set_bytes(state, sizeof(E));
+  set_bytes(state, rows * cols * sizeof(E));
 }
 
 void glorot_uniform_f32(benchmark::State& state) { scheme_fill<float>(state, kindling::glorot_uniform{}); }
@@ -82,13 +75,13 @@ void in_cache_fill(benchmark::State& state, Scheme scheme) {
       benchmark::ClobberMemory();
     }
   }
-  set_bytes(state, sizeof(float));
+  set_bytes(state, rows * cols * sizeof(float));
 }
 void glorot_uniform_f32_in_cache(benchmark::State& state) { in_cache_fill(state, kindling::glorot_uniform{}); }
 void he_normal_f32_in_cache(benchmark::State& state) { in_cache_fill(state, kindling::he_normal{}); }
 
 void mt19937_uniform(benchmark::State& state) {
-  auto& b = buffer<float>();
+  auto& b = tensor_buffer<float>();
   const float bound = std::sqrt(6.0f / (rows + cols));
   for (auto _ : state) {
     std::mt19937 g(1);
@@ -97,11 +90,11 @@ void mt19937_uniform(benchmark::State& state) {
     benchmark::DoNotOptimize(b.data());
     benchmark::ClobberMemory();
   }
-  set_bytes(state, sizeof(float));
+  set_bytes(state, rows * cols * sizeof(float));
 }
 
 void mt19937_normal(benchmark::State& state) {
-  auto& b = buffer<float>();
+  auto& b = tensor_buffer<float>();
   const float sd = std::sqrt(2.0f / cols);
   for (auto _ : state) {
     std::mt19937 g(1);
@@ -110,7 +103,7 @@ void mt19937_normal(benchmark::State& state) {
     benchmark::DoNotOptimize(b.data());
     benchmark::ClobberMemory();
   }
-  set_bytes(state, sizeof(float));
+  set_bytes(state, rows * cols * sizeof(float));
 }
 
 // Orthogonal n x n against Eigen's Householder QR of an n x n double matrix and its Q
@@ -139,17 +132,17 @@ void eigen_qr_2048(benchmark::State& state) { eigen_qr_n(state, 2048); }
 
 // One read of the tensor (a sum), the floor for any audit that looks at every value.
 void read_f32(benchmark::State& state) {
-  auto& b = buffer<float>();
+  auto& b = tensor_buffer<float>();
   for (auto _ : state) {
     float sum = std::accumulate(b.begin(), b.end(), 0.0f);
     benchmark::DoNotOptimize(sum);
   }
-  set_bytes(state, sizeof(float));
+  set_bytes(state, rows * cols * sizeof(float));
 }
 
 // The duplicate-unit audit (audit/symmetry.hpp) of the 4096 x 4096 He-normal tensor.
 void duplicate_units_4096(benchmark::State& state) {
-  auto& b = buffer<float>();
+  auto& b = tensor_buffer<float>();
   const kindling::strided_view<const float> v(b.data(), kindling::shape(rows, cols));
   kindling::initialize(kindling::strided_view<float>(b.data(), kindling::shape(rows, cols)), layer,
                        kindling::he_normal{}, kindling::make_stream(1, "bench.w"));
@@ -157,7 +150,7 @@ void duplicate_units_4096(benchmark::State& state) {
     auto groups = kindling::duplicate_units(v);
     benchmark::DoNotOptimize(groups.data());
   }
-  set_bytes(state, sizeof(float));
+  set_bytes(state, rows * cols * sizeof(float));
 }
 
 // Eigen's own random fill: setRandom() (uniform on [-1, 1], std::rand underneath).
@@ -169,7 +162,7 @@ void eigen_set_random(benchmark::State& state) {
     benchmark::DoNotOptimize(m.data());
     benchmark::ClobberMemory();
   }
-  set_bytes(state, sizeof(float));
+  set_bytes(state, rows * cols * sizeof(float));
 }
 
 // xtensor's own random fills (xt::random::rand / randn on its default mt19937 engine).
@@ -180,7 +173,7 @@ void xtensor_rand(benchmark::State& state) {
     benchmark::DoNotOptimize(t.data());
     benchmark::ClobberMemory();
   }
-  set_bytes(state, sizeof(float));
+  set_bytes(state, rows * cols * sizeof(float));
 }
 void xtensor_randn(benchmark::State& state) {
   xt::xtensor<float, 2> t = xt::zeros<float>({rows, cols});
@@ -189,7 +182,7 @@ void xtensor_randn(benchmark::State& state) {
     benchmark::DoNotOptimize(t.data());
     benchmark::ClobberMemory();
   }
-  set_bytes(state, sizeof(float));
+  set_bytes(state, rows * cols * sizeof(float));
 }
 
 }  // namespace

@@ -22,17 +22,14 @@
 #endif
 
 #include "kindling/kindling.hpp"
+#include "tensor_buffer.hpp"
 
 namespace {
 
-constexpr std::uint64_t side = 4096, values = side * side;  // 16 Mi values
-constexpr std::size_t cache_bytes = 64 * 1024;             // the compute ceiling's buffer, per thread
-
-template <class E>
-std::vector<E>& limit_buffer() {
-  static std::vector<E> b(values, E{});  // touched once by the value-initialization
-  return b;
-}
+using kindling_bench::set_bytes;
+using kindling_bench::side;
+using kindling_bench::values;
+constexpr std::size_t cache_bytes = 64 * 1024;  // the compute ceiling's buffer, per thread
 
 // Runs f(t) for t in [0, threads) on `threads` threads (this one included), spawned
 // per call as kindling's thread_executor does, so both pay the same start-up.
@@ -47,10 +44,6 @@ void on_threads(std::size_t threads, const F& f) {
 
 std::size_t thread_arg(const benchmark::State& state) { return static_cast<std::size_t>(state.range(0)); }
 
-void set_bytes(benchmark::State& state, std::size_t bytes) {
-  state.SetBytesProcessed(static_cast<int64_t>(state.iterations()) * static_cast<int64_t>(bytes));
-}
-
 // Thread t's share [begin, end) of n items, contiguous as the fill's chunks are.
 void share(std::size_t n, std::size_t threads, std::size_t t, std::size_t* begin, std::size_t* end) {
   *begin = n * t / threads;
@@ -61,7 +54,7 @@ void share(std::size_t n, std::size_t threads, std::size_t t, std::size_t* begin
 
 template <class E>
 void memory_plain(benchmark::State& state) {
-  auto& b = limit_buffer<E>();
+  auto& b = kindling_bench::tensor_buffer<E>();
   const std::size_t threads = thread_arg(state);
   for (auto _ : state) {
     on_threads(threads, [&](std::size_t t) {
@@ -94,7 +87,7 @@ void stream_bytes(unsigned char* p, std::size_t n) {
 
 template <class E>
 void memory_stream(benchmark::State& state) {
-  auto& b = limit_buffer<E>();
+  auto& b = kindling_bench::tensor_buffer<E>();
   const std::size_t threads = thread_arg(state);
   auto* bytes = reinterpret_cast<unsigned char*>(b.data());
   const std::size_t n = b.size() * sizeof(E);
@@ -114,7 +107,7 @@ void memory_stream(benchmark::State& state) {
 
 template <class E, class Scheme>
 void fill(benchmark::State& state) {
-  auto& b = limit_buffer<E>();
+  auto& b = kindling_bench::tensor_buffer<E>();
   const kindling::strided_view<E> v(b.data(), kindling::shape(side, side));
   const kindling::dense layer(side, side);
   const auto s = kindling::make_stream(1, "bench.w");

@@ -110,11 +110,9 @@ void check_cell_memory(const recurrent_cell& c, std::uint64_t batch) {
   }
 }
 
-}  // namespace
-
-int run_plan(const plan_options& o) {
-  const network_spec spec =
-      o.spec.empty() ? parse_network_spec(pump_classifier, "(built-in)") : read_network_spec(o.spec, "SPEC");
+// The options against the spec's sections, before any work: counts, the memory a
+// measured pass would take, and the --svg path.
+void check_plan_options(const plan_options& o, const network_sections& sections) {
   if (o.threads == 0) throw std::invalid_argument("--threads 0: expected at least 1 thread");
   if (o.measure && o.batch < 1) {
     throw std::invalid_argument("--batch " + std::to_string(o.batch) + ": expected at least 1 sample a draw");
@@ -122,7 +120,6 @@ int run_plan(const plan_options& o) {
   if (o.measure && o.trials < 2) {
     throw std::invalid_argument("--trials " + std::to_string(o.trials) + ": expected at least 2 draws");
   }
-  network_sections sections = build_sections(spec);
   if (!sections.attention.empty()) {
     // The spec reader checks attention blocks (examples/tool/spec.hpp); the library
     // measures them (compare_attention, kindling/propagate/attention.hpp), but this table
@@ -140,6 +137,15 @@ int run_plan(const plan_options& o) {
   }
   for (const recurrent_cell& c : sections.cells) check_cell_memory(c, o.batch);
   if (!o.svg.empty()) check_output("--svg", o.svg, {{"SPEC", o.spec}});
+}
+
+}  // namespace
+
+int run_plan(const plan_options& o) {
+  const network_spec spec =
+      o.spec.empty() ? parse_network_spec(pump_classifier, "(built-in)") : read_network_spec(o.spec, "SPEC");
+  network_sections sections = build_sections(spec);
+  check_plan_options(o, sections);
   const bool tty = isatty(STDERR_FILENO) != 0;
   const stream plan_stream = make_stream(o.seed, "kindling.plan");
   // A cell's state has no closed form (kindling/propagate/recurrent.hpp): each cell is

@@ -158,107 +158,146 @@ struct distribution_runs {
   }
 };
 
+// How a view's region lies in its global shape and in memory, for walking it in
+// row-major order.
+struct region_walk {
+  std::size_t rank = 0;
+  // Global row-major strides.
+  std::array<std::uint64_t, max_rank> global_step{};
+  // The length of a global run: the innermost dimension times every outer dimension the
+  // region covers whole, up to the first one it cuts.
+  std::uint64_t run_length = 1;
+  bool inner_contiguous = false;
+  // Elements adjacent in memory: the innermost dimension, and each outer one whose stride
+  // is the size of what it holds (a dense row-major block), so that a small dense tensor
+  // goes to the direct writer in one piece rather than a row at a time.
+  std::uint64_t memory_run = 0;
+
+  template <class E>
+  explicit region_walk(const strided_view<E>& v) : rank(v.rank()) {
+    const shape& global = v.global_shape();
+    const shape& extent = v.part().extent();
+    bool cut = false;
+    for (std::size_t d = rank; d-- > 0;) {
+      global_step[d] = d + 1 == rank ? 1 : global_step[d + 1] * global[d + 1];
+      if (!cut) run_length *= extent[d];
+      if (extent[d] != global[d]) cut = true;
+    }
+    const std::size_t inner = rank - 1;
+    inner_contiguous = v.stride(inner) == 1;
+    memory_run = inner_contiguous ? extent[inner] : 0;
+    for (std::size_t d = inner; inner_contiguous && d-- > 0;) {
+      if (v.stride(d) != static_cast<std::int64_t>(memory_run)) break;
+      memory_run *= extent[d];
+    }
+  }
+};
+
+// The position of one element of a view's region: its local multi-index and its memory
+// offset, stepped in row-major order.
+template <class E>
+struct region_cursor {
+  const strided_view<E>& v;
+  std::array<std::uint64_t, max_rank> index{};
+  std::ptrdiff_t at = 0;
+
+  // Sets the position from a local row-major index.
+  void seek(std::uint64_t local_index) {
+    const shape& extent = v.part().extent();
+    at = 0;
+    for (std::size_t d = v.rank(); d-- > 0;) {
+      index[d] = local_index % extent[d];
+      local_index /= extent[d];
+      at += static_cast<std::ptrdiff_t>(index[d]) * static_cast<std::ptrdiff_t>(v.stride(d));
+    }
+  }
+  // The next element in row-major order, carrying into outer dimensions.
+  void step() {
+    const shape& extent = v.part().extent();
+    for (std::size_t d = v.rank(); d-- > 0;) {
+      at += static_cast<std::ptrdiff_t>(v.stride(d));
+      if (++index[d] < extent[d]) break;
+      at -= static_cast<std::ptrdiff_t>(extent[d]) * static_cast<std::ptrdiff_t>(v.stride(d));
+      index[d] = 0;
+    }
+  }
+  // The row-major index of the element in the global shape.
+  std::uint64_t global_index(const region_walk& walk) const {
+    const shape& offset = v.part().offset();
+    std::uint64_t g = 0;
+    for (std::size_t d = 0; d < walk.rank; ++d) g += (offset[d] + index[d]) * walk.global_step[d];
+    return g;
+  }
+};
+
+// The direct path: the whole counter groups among the `adjacent` elements from global
+// index g (at memory dst) go straight to memory, rounded on the way (no buffer); the
+// partial group before them goes through `buffer`. Returns how many elements it wrote,
+// 0 when the stretch holds no whole group or the generator has no such path here.
+template <class E, class Gen>
+std::uint64_t write_whole_groups(const element_rounder<E>& rounder, bool stream, const Gen& gen,
+                                 instruction_set isa, std::uint64_t g, std::uint64_t adjacent, E* dst,
+                                 compute_type_t<E>* buffer) {
+  constexpr std::uint64_t group = elements_per_group<compute_type_t<E>>;
+  const std::uint64_t head = (group - g % group) % group;
+  if (!rounder.thresholds || adjacent < head + group) return 0;
+  const std::uint64_t whole = (adjacent - head) / group;
+  if (!gen.elements(isa, (g + head) / group, whole, dst + head, rounder.hi_max, rounder.lo_min, stream)) return 0;
+  if (head > 0) {
+    gen(g, static_cast<std::size_t>(head), buffer);
+    store_contiguous(rounder, isa, buffer, dst, static_cast<std::size_t>(head), false);
+  }
+  return head + whole * group;
+}
+
 // Fills local row-major indices [first_local, first_local + count) of the view's region.
 // gen(global_first, n, out) writes the compute-type values of global indices
 // global_first .. global_first + n - 1 (n <= fill_buffer_elements).
 template <class E, class Gen>
 void fill_chunk(const strided_view<E>& v, const element_rounder<E>& rounder, bool stream,
                 const Gen& gen, std::uint64_t first_local, std::uint64_t count) {
-  using compute = compute_type_t<E>;
-  const std::size_t rank = v.rank();
-  const shape& global = v.global_shape();
   const shape& extent = v.part().extent();
-  const shape& offset = v.part().offset();
   const instruction_set isa = best_instruction_set();
+  const region_walk walk(v);
+  region_cursor<E> cursor{v};
+  cursor.seek(first_local);
+  const std::size_t inner = walk.rank - 1;
 
-  // Global row-major strides, and the length of a global run: the innermost dimension
-  // times every outer dimension the region covers whole, up to the first one it cuts.
-  std::array<std::uint64_t, max_rank> global_step{};
-  std::uint64_t run_length = 1;
-  bool cut = false;
-  for (std::size_t d = rank; d-- > 0;) {
-    global_step[d] = d + 1 == rank ? 1 : global_step[d + 1] * global[d + 1];
-    if (!cut) run_length *= extent[d];
-    if (extent[d] != global[d]) cut = true;
-  }
-
-  // Local multi-index of an element and its memory offset, set from its local index.
-  std::array<std::uint64_t, max_rank> index{};
-  std::ptrdiff_t at = 0;
-  const auto seek = [&](std::uint64_t local_index) {
-    at = 0;
-    for (std::size_t d = rank; d-- > 0;) {
-      index[d] = local_index % extent[d];
-      local_index /= extent[d];
-      at += static_cast<std::ptrdiff_t>(index[d]) * static_cast<std::ptrdiff_t>(v.stride(d));
-    }
-  };
-  seek(first_local);
-  // Step the local index in row-major order, carrying into outer dimensions.
-  const auto step = [&]() {
-    for (std::size_t d = rank; d-- > 0;) {
-      at += static_cast<std::ptrdiff_t>(v.stride(d));
-      if (++index[d] < extent[d]) break;
-      at -= static_cast<std::ptrdiff_t>(extent[d]) * static_cast<std::ptrdiff_t>(v.stride(d));
-      index[d] = 0;
-    }
-  };
-  const std::size_t inner = rank - 1;
-  const bool inner_contiguous = v.stride(inner) == 1;
-  // Elements adjacent in memory: the innermost dimension, and each outer one whose stride
-  // is the size of what it holds (a dense row-major block), so that a small dense tensor
-  // goes to the direct writer in one piece rather than a row at a time.
-  std::uint64_t memory_run = inner_contiguous ? extent[inner] : 0;
-  for (std::size_t d = inner; inner_contiguous && d-- > 0;) {
-    if (v.stride(d) != static_cast<std::int64_t>(memory_run)) break;
-    memory_run *= extent[d];
-  }
-
-  std::array<compute, fill_buffer_elements> buffer;
+  std::array<compute_type_t<E>, fill_buffer_elements> buffer;
   E* const data = v.data();
   std::uint64_t local = first_local;
   std::uint64_t remaining = count;
   bool streamed = false;
   while (remaining > 0) {
-    std::uint64_t global_index = 0;
-    for (std::size_t d = 0; d < rank; ++d) global_index += (offset[d] + index[d]) * global_step[d];
-    std::uint64_t n = std::min(remaining, run_length - local % run_length);
+    const std::uint64_t global_index = cursor.global_index(walk);
+    std::uint64_t n = std::min(remaining, walk.run_length - local % walk.run_length);
     if constexpr (writes_elements<Gen, E>::value) {
-      // The whole counter groups of a contiguous stretch go straight to memory, rounded on
-      // the way (no buffer); the partial groups at its ends take the buffered path below.
-      constexpr std::uint64_t group = elements_per_group<compute>;
-      const std::uint64_t adjacent = inner_contiguous ? std::min(n, memory_run - local % memory_run) : 0;
-      const std::uint64_t head = (group - global_index % group) % group;
-      if (rounder.thresholds && adjacent >= head + group) {
-        const std::uint64_t whole = (adjacent - head) / group;
-        if (gen.elements(isa, (global_index + head) / group, whole, data + at + head, rounder.hi_max,
-                         rounder.lo_min, stream)) {
-          streamed = streamed || stream;
-          if (head > 0) {
-            gen(global_index, static_cast<std::size_t>(head), buffer.data());
-            store_contiguous(rounder, isa, buffer.data(), data + at, static_cast<std::size_t>(head), false);
-          }
-          const std::uint64_t done = head + whole * group;
-          local += done;
-          remaining -= done;
-          if (remaining > 0) seek(local);
-          continue;
-        }
+      const std::uint64_t adjacent =
+          walk.inner_contiguous ? std::min(n, walk.memory_run - local % walk.memory_run) : 0;
+      const std::uint64_t done =
+          write_whole_groups(rounder, stream, gen, isa, global_index, adjacent, data + cursor.at, buffer.data());
+      if (done > 0) {
+        streamed = streamed || stream;
+        local += done;
+        remaining -= done;
+        if (remaining > 0) cursor.seek(local);
+        continue;
       }
     }
+    // The buffered path: values into the buffer, then rounded into memory.
     n = std::min<std::uint64_t>(n, fill_buffer_elements - global_index % fill_buffer_elements);
     gen(global_index, static_cast<std::size_t>(n), buffer.data());
-    if (inner_contiguous && index[inner] + n <= extent[inner]) {
+    if (walk.inner_contiguous && cursor.index[inner] + n <= extent[inner]) {
       // The n elements are adjacent in memory: store them in one go, then step past them.
-      store_contiguous(rounder, isa, buffer.data(), data + at, static_cast<std::size_t>(n), stream);
+      store_contiguous(rounder, isa, buffer.data(), data + cursor.at, static_cast<std::size_t>(n), stream);
       streamed = streamed || stream;
-      index[inner] += n - 1;
-      at += static_cast<std::ptrdiff_t>(n - 1);
-      step();
+      cursor.index[inner] += n - 1;
+      cursor.at += static_cast<std::ptrdiff_t>(n - 1);
+      cursor.step();
     } else {
       for (std::size_t k = 0; k < n; ++k) {
-        data[at] = rounder(buffer[k]);
-        step();
+        data[cursor.at] = rounder(buffer[k]);
+        cursor.step();
       }
     }
     local += n;

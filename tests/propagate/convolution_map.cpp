@@ -68,7 +68,8 @@ TEST_CASE("each output position reads the input positions its taps cover, and pa
 
 TEST_CASE("a placed convolution refuses a kernel larger than the padded input and geometry of the wrong rank") {
   CHECK(mentions(message_of<std::invalid_argument>([] { convolution_map(convolution(1, 1, {7}), {4}, {{}, {1}, {}}); }),
-                 "kernel [7] spanning 7 positions on axis 0 (dilation 1), larger than the padded input 6"));
+                 "kindling::convolution_map: argument 'conv.kernel' = [7], spanning 7 positions on axis 0 (dilation 1), "
+                 "expected a kernel that fits the padded input, 6 (extent 4 + 2 x padding 1)"));
   CHECK(mentions(message_of<std::invalid_argument>([] { convolution_map(convolution(1, 1, {3}), {4}, {{}, {}, {2}}); }),
                  "spanning 5 positions"));
   CHECK(mentions(message_of<std::invalid_argument>([] { convolution_map(convolution(1, 1, {3, 3}), {8}, {}); }),
@@ -76,6 +77,6 @@ TEST_CASE("a placed convolution refuses a kernel larger than the padded input an
   CHECK(mentions(message_of<std::invalid_argument>([] { convolution_map(convolution(1, 1, {3}), {8}, {{1, 1}, {}, {}}); }),
                  "argument 'geometry.stride' = [1, 1] has 2 values, expected 1"));
   CHECK(mentions(message_of<std::invalid_argument>([] { convolution_map(convolution(1, 1, {3}), {8}, {{0}, {}, {}}); }),
-                 "argument 'geometry.stride' has 0 on axis 0"));
+                 "kindling::convolution_map: argument 'geometry.stride[0]' = 0, expected at least 1"));
   CHECK(mentions(message_of<std::invalid_argument>([] { same_padding({3, 4}); }), "even size 4 on axis 1"));
 }

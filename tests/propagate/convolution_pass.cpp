@@ -191,23 +191,24 @@ TEST_CASE("convolutions without a spatial extent are refused by the measured pas
   layer_stack fans_only(3);
   fans_only.add_convolution(convolution(3, 8, {3}), activation::relu(), he_normal{});
   CHECK(mentions(message_of<std::invalid_argument>([&] { compare_propagation(fans_only, 8, stream::root(1)); }),
-                 "is a convolution without a spatial extent"));
+                 "kindling::compare_propagation: argument 'stack' = a stack whose layer 'layer1' is a convolution "
+                 "without a spatial extent, expected dense layers or convolutions placed on a feature map"));
   CHECK(mentions(message_of<std::invalid_argument>([&] {
                    layer_stack(3).add_convolution(convolution(3, 8, {3}), convolution_geometry{}, activation::relu(),
                                                   he_normal{});
                  }),
-                 "argument 'geometry' places the convolution on a feature map, but the top of the stack has no "
-                 "spatial extent"));
+                 "kindling::layer_stack::add_convolution: argument 'geometry' = a placement on a feature map, expected a "
+                 "stack whose top has a spatial extent"));
   CHECK(mentions(message_of<std::invalid_argument>([&] {
                    layer_stack::feature_maps(3, {5}).add_convolution(convolution(3, 8, {7}), activation::relu(),
                                                                      he_normal{});
                  }),
-                 "larger than the padded input 5"));
+                 "expected a kernel that fits the padded input, 5"));
   CHECK(mentions(message_of<std::invalid_argument>([&] {
                    layer_stack::feature_maps(4, {5}).add_convolution(convolution(3, 8, {3}), activation::relu(),
                                                                      he_normal{});
                  }),
-                 "in_channels = 3, expected the width of the layer below, 4"));
+                 "argument 'conv.in_channels' = 3, expected the width of the layer below, 4"));
   CHECK(mentions(message_of<std::invalid_argument>([&] { layer_stack::feature_maps(4, {}); }),
                  "argument 'input_extent' = [] has 0 axes, expected 1 to 3"));
   CHECK(mentions(message_of<std::invalid_argument>([&] { layer_stack::feature_maps(4, {3, 0}); }),

@@ -207,11 +207,14 @@ TEST_CASE("the pass diagnostics refuse bad input with a message naming the argum
   pass_record rec = run_pass(s, net, x, g);
   rec.grad.pop_back();
   CHECK(mentions(message_of<std::invalid_argument>([&] { diagnose_pass(s, net, x, rec); }),
-                 "argument 'record' has 3 pre-activation and 2 gradient matrices, expected 3"));
+                 "kindling::diagnose_pass: argument 'record' = 3 pre-activation and 2 gradient matrices, expected 3 of each"));
   rec = run_pass(s, net, x, g);
   CHECK(mentions(message_of<std::invalid_argument>([&] { diagnose_pass(s, net, x.leftCols(5), rec); }),
-                 "argument 'record' layer 0 is 16 x 10, expected 16 x 5"));
+                 "kindling::diagnose_pass: argument 'record.pre[0]' = 16 x 10 (gradient 16 x 10), expected 16 x 5 for both"));
   realized_stack short_net = net;
   short_net.weights.pop_back();
-  CHECK(mentions(message_of<std::invalid_argument>([&] { diagnose_pass(s, short_net, x, g); }), "argument 'net'"));
+  CHECK(mentions(message_of<std::invalid_argument>([&] { diagnose_pass(s, short_net, x, rec); }),
+                 "kindling::diagnose_pass: argument 'net' = 2 weights, expected 3 (one per layer of the stack)"));
+  CHECK(mentions(message_of<std::invalid_argument>([&] { diagnose_pass(s, net, wrong, rec); }),
+                 "kindling::diagnose_pass: argument 'input' = 7 x 10, expected 8 rows and at least one column"));
 }

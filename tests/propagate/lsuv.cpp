@@ -179,12 +179,12 @@ TEST_CASE("LSUV refuses bad input before writing, and restores every weight when
   const auto just = [&](lsuv_layer<float> l) { return std::vector<lsuv_layer<float>>{std::move(l)}; };
 
   CHECK(mentions(message_of<std::invalid_argument>([&] { lsuv_initialize(std::vector<lsuv_layer<float>>{}, s); }),
-                 "argument 'layers' is empty"));
+                 "kindling::lsuv_initialize: argument 'layers' = an empty list, expected at least one layer"));
   CHECK(mentions(message_of<std::invalid_argument>([&] { lsuv_layer<float>("", view_of(w), dense(8, 8), one); }),
-                 "argument 'label' is empty"));
+                 "kindling::lsuv_layer: argument 'label' = '', expected a layer name"));
   CHECK(mentions(message_of<std::invalid_argument>(
                      [&] { lsuv_layer<float>("a", view_of(w), dense(8, 8), std::function<double()>()); }),
-                 "argument 'forward' is empty"));
+                 "kindling::lsuv_layer: argument 'forward' = an empty function, expected a callable"));
   CHECK_THROWS_AS(lsuv_layer<float>("a", view_of(w), dense(8, 4), one), std::invalid_argument);  // weight is 8 x 8
   {
     std::vector<lsuv_layer<float>> twice;

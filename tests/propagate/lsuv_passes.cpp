@@ -75,6 +75,6 @@ TEST_CASE("LSUV with a built-in pass refuses a batch of the wrong shape before r
   const Eigen::MatrixXd w = net.weights[0];
   const std::string m = kindling_test::message_of<std::invalid_argument>(
       [&] { lsuv_rescale_stack(s, net, Eigen::MatrixXd::Ones(5, 3)); });
-  CHECK(kindling_test::mentions(m, "argument 'batch' has 5 rows"));
+  CHECK(kindling_test::mentions(m, "kindling::lsuv_rescale_stack: argument 'batch' = 5 x 3, expected 8 rows and at least one column"));
   CHECK(net.weights[0] == w);
 }

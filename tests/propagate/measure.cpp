@@ -347,18 +347,18 @@ TEST_CASE("measured propagation refuses convolutions, an empty batch, bad option
   layer_stack other(4);
   other.add_dense(5, activation::relu(), he_normal{});
   CHECK(mentions(message_of<std::invalid_argument>([&] { compare_propagation(s, predict(other), 8, stream::root(1)); }),
-                 "'predicted' row 0 has width 5, expected 3"));
+                 "argument 'predicted[0].width' = 5, expected 3"));
   CHECK(mentions(message_of<std::invalid_argument>([&] {
                    compare_propagation(s, std::vector<layer_prediction>{}, 8, stream::root(1));
                  }),
-                 "'predicted' has 0 rows, expected 1"));
+                 "argument 'predicted' = 0 rows, expected 1"));
   const realized_stack net = realize(s, stream::root(1));
   CHECK(mentions(message_of<std::invalid_argument>([&] {
                    run_pass(s, net, Eigen::MatrixXd::Zero(5, 2), Eigen::MatrixXd::Zero(3, 2));
                  }),
-                 "'input' has 5 rows"));
+                 "argument 'input' = 5 x 2, expected 4 rows"));
   CHECK(mentions(message_of<std::invalid_argument>([&] {
                    run_pass(s, net, Eigen::MatrixXd::Zero(4, 2), Eigen::MatrixXd::Zero(3, 3));
                  }),
-                 "'output_gradient' is 3 x 3"));
+                 "argument 'output_gradient' = 3 x 3, expected 3 x 2"));
 }

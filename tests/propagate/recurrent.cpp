@@ -152,7 +152,8 @@ TEST_CASE("a cell with no steps, no hidden units or a non-finite forget bias is 
   CHECK(mentions(m2, "argument 'forget_bias' = nan"));
   const recurrent_cell a(cell_kind::lstm, 4, 8, 5, glorot_uniform{}), b(cell_kind::gru, 4, 8, 5, glorot_uniform{});
   CHECK(mentions(message_of<std::invalid_argument>([&] { compare_recurrent(a, b, 4, stream::root(1)); }),
-                 "argument 'predicted' is a gru cell"));
+                 "kindling::compare_recurrent: argument 'predicted' = a gru cell of hidden 8, expected the kind and sizes of "
+                 "argument 'measured' (lstm, hidden 8)"));
 }
 
 TEST_CASE("rate: false-alarm rate of the gate verdict on correct cells, at or below nominal") {

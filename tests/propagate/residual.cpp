@@ -121,15 +121,16 @@ TEST_CASE("residual blocks refuse a branch that does not fit its skip, with the 
   layer_stack wide(8);
   wide.add_dense(16, activation::relu(), he_normal{});
   CHECK(mentions(message_of<std::invalid_argument>([&] { s.add_residual(wide); }),
-                 "argument 'branch' ends in 16 channels over extent [], expected 8 over [] to match its identity skip"));
+                 "argument 'branch' = a branch ending in 16 channels over extent [], expected 8 over [] to match its identity "
+                 "skip"));
   CHECK(mentions(message_of<std::invalid_argument>([&] { s.add_residual(he_branch(4)); }),
-                 "argument 'branch' reads 4 channels over extent [], expected the top of the stack, 8 over []"));
+                 "argument 'branch' = a branch reading 4 channels over extent [], expected the top of the stack, 8 over []"));
   CHECK(mentions(message_of<std::invalid_argument>([&] { s.add_residual(layer_stack(8)); }),
-                 "argument 'branch' has no layers"));
+                 "kindling::layer_stack::add_residual: argument 'branch' = a branch of no layers, expected at least one layer"));
   layer_stack one(8);
   one.add_dense(8, activation::relu(), he_normal{});
   CHECK(mentions(message_of<std::invalid_argument>([&] { s.add_residual(one, residual_scaling::fixup(4)); }),
-                 "argument 'branch' has 1 layer, expected at least 2 for Fixup's rule"));
+                 "argument 'branch' = a branch of 1 layer, expected at least 2 layers for Fixup's rule"));
   CHECK(mentions(message_of<std::invalid_argument>([&] { s.add_residual(he_branch(8), residual_scaling::inverse_sqrt(0)); }),
                  "argument 'scaling.blocks' = 0"));
   layer_stack maps = layer_stack::feature_maps(4, {5});

@@ -96,13 +96,13 @@ TEST_CASE("bad input to the stack is refused with a message naming the argument"
   CHECK(mentions(message_of<std::invalid_argument>([] {
                    layer_stack(4).add_convolution(convolution(8, 8, {3}), activation::relu(), he_normal{});
                  }),
-                 "in_channels = 8"));
+                 "argument 'conv.in_channels' = 8"));
   CHECK(mentions(message_of<std::domain_error>([] {
                    layer_stack(4).add_dense(3, activation::relu(), fixed_normal{0.5, 1.0});
                  }),
-                 "expected mean 0"));
+                 "kindling::weight_variance_of: argument 'scheme.mean' = 0.5, expected 0"));
   CHECK(mentions(message_of<std::invalid_argument>([] { nonlinearity::custom("x", nullptr, [](double) { return 1.0; }); }),
-                 "'phi' is empty"));
+                 "argument 'phi' = an empty function, expected a callable"));
   // exp(x^2) has E[phi(x)^2] = infinity for Var x >= 1/4.
   const nonlinearity wild = nonlinearity::custom("exp_square", [](double x) { return std::exp(x * x); },
                                                  [](double x) { return 2 * x * std::exp(x * x); });

@@ -7,7 +7,6 @@
 #include "../support/layer_fill.hpp"
 
 #include <cstdint>
-#include <cstring>
 #include <limits>
 #include <string>
 #include <vector>
@@ -188,9 +187,9 @@ TEST_CASE("identity: a region of the weight equals that part of the whole") {
 
 TEST_CASE("identity: bad input throws a clear error before anything is written") {
   const auto st = kindling::make_stream(0, "unused");
-  std::vector<float> memory(96, 3.0f);
-  const std::vector<float> before = memory;
-  auto untouched = [&] { return std::memcmp(memory.data(), before.data(), memory.size() * sizeof(float)) == 0; };
+  kindling_test::guarded_memory<float> guard(96, 3.0f);
+  std::vector<float>& memory = guard.memory;
+  auto untouched = [&] { return guard.untouched(); };
 
   SUBCASE("a non-finite gain") {
     for (double gain : {std::numeric_limits<double>::quiet_NaN(), std::numeric_limits<double>::infinity()}) {

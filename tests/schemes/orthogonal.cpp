@@ -358,9 +358,9 @@ TEST_CASE("delta-orthogonal: with groups, each group's centre block is orthogona
 
 TEST_CASE("orthogonal and delta-orthogonal: bad input throws before anything is written") {
   const auto st = kindling::make_stream(1, "bad");
-  std::vector<float> memory(64, 7.0f);
-  const std::vector<float> before = memory;
-  auto untouched = [&] { return std::memcmp(memory.data(), before.data(), memory.size() * sizeof(float)) == 0; };
+  kindling_test::guarded_memory<float> guard(64, 7.0f);
+  std::vector<float>& memory = guard.memory;
+  auto untouched = [&] { return guard.untouched(); };
 
   SUBCASE("a rank-1 tensor for orthogonal") {
     const std::string m = message_of<std::invalid_argument>(

@@ -65,16 +65,24 @@ TEST_CASE("a registry scheme writes the bits of the scheme type it names") {
 }
 
 TEST_CASE("bad scheme text names the key, the value and what was expected") {
-  CHECK(message_of("he-norml").find("layers[3].scheme 'he-norml' is not a scheme, expected one of zeros") == 0);
-  CHECK(message_of("he-normal(std=1)").find("argument 'std' does not apply to scheme 'he-normal', expected one of gain, slope") !=
-        std::string::npos);
-  CHECK(message_of("normal").find("needs argument 'std'") != std::string::npos);
-  CHECK(message_of("normal(std=-1)").find("'std' of scheme 'normal' = -1, expected a finite number > 0") !=
-        std::string::npos);
-  CHECK(message_of("glorot-normal(gain=1e200)").find("whose square is finite") != std::string::npos);
-  CHECK(message_of("sparse(nonzero=2.5)").find("expected a whole number") != std::string::npos);
-  CHECK(message_of("constant(value=1,value=2)").find("given twice") != std::string::npos);
-  CHECK(message_of("constant(value=x)").find("is not key=number") != std::string::npos);
-  CHECK(message_of("constant(value=1").find("no closing ')'") != std::string::npos);
-  CHECK(message_of("(gain=1)").find("no scheme name") != std::string::npos);
+  const auto has = [](const std::string& text, const std::string& part) {
+    const std::string m = message_of(text);
+    INFO(m);
+    return m.find(part) != std::string::npos;
+  };
+  CHECK(message_of("he-norml").find("layers[3].scheme: kindling::make_scheme_value: argument 'name' = 'he-norml', "
+                                    "expected a scheme, one of zeros") == 0);
+  CHECK(has("he-normal(std=1)", "kindling::make_scheme_value: argument 'std' = 1, expected an argument of scheme "
+                                "'he-normal': one of gain, slope"));
+  CHECK(has("normal", "argument 'std' = (none), expected a finite number > 0: scheme 'normal' needs argument 'std'"));
+  CHECK(has("normal(std=-1)", "argument 'std' = -1, expected a finite number > 0 for scheme 'normal'"));
+  CHECK(has("glorot-normal(gain=1e200)", "whose square is finite"));
+  CHECK(has("sparse(nonzero=2.5)", "expected a whole number"));
+  CHECK(has("constant(value=1,value=2)", "argument 'value' = 2, expected one value for scheme 'constant' (the "
+                                         "argument is given twice)"));
+  CHECK(has("constant(value=x)", "layers[3].scheme: kindling::parse_scheme: argument 'text' = 'constant(value=x)', "
+                                 "expected a scheme name"));
+  CHECK(has("constant(value=x)", "is not key=number"));
+  CHECK(has("constant(value=1", "no closing ')'"));
+  CHECK(has("(gain=1)", "no scheme name"));
 }

@@ -420,7 +420,7 @@ elif CASE == "json":
         json.dump({"input": {"width": 3, "extent": [4]},
                    "layers": [{"width": 8, "activation": "relu", "scheme": "he-normal", "conv": {"kernel": [7]}}]}, f)
     _, err = expect_code(2, "plan", "belt_bad.json")
-    expect("layers[0].conv.kernel" in err and "larger than the padded input 4" in err,
+    expect("layers[0].conv.kernel" in err and "fits the padded input, 4" in err,
            f"expected the kernel's key and reason in the plan error, got {err!r}")
     # a GRU on the 1-D map (kindling/io/spec.hpp "recurrent"): measured, its gates judged at
     # every step, the head predicted from the measured state; bad cells are exit 2 by key

@@ -2,14 +2,10 @@
 # /usr/bin/python3 and python3-numpy): exit codes and one-line errors, an existing
 # output file untouched by a failed run, --region against the whole tensor, NumPy
 # reading our .npy files (and we NumPy's), and the JSON and SVG outputs.
-# The doctest binary (npy.cpp, spec.cpp) needs nlohmann-json for spec.hpp.
+# The doctest binary (spec.cpp, spec_kinds.cpp) needs nlohmann-json for spec.hpp.
 if(TARGET kindling_test_tool)
   find_package(nlohmann_json CONFIG REQUIRED)
   target_link_libraries(kindling_test_tool PRIVATE nlohmann_json::nlohmann_json)
-  if(NOT TARGET kindling_npz)
-    message(FATAL_ERROR "kindling's tests need zlib for .npz files (Debian zlib1g-dev)")
-  endif()
-  target_link_libraries(kindling_test_tool PRIVATE kindling_npz)  # npz.cpp
 endif()
 if(KINDLING_BUILD_EXAMPLES)
   foreach(_kindling_tool_case

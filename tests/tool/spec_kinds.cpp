@@ -81,11 +81,11 @@ TEST_CASE("a spec whose convolution or residual block cannot be built is refused
   const std::string input = R"({"input": {"width": 4, "extent": [6]}, "layers": [)";
   const std::vector<bad_case> cases{
       {"kernel larger than the padded input", R"({"width": 4, "activation": "relu", "scheme": "he-normal", "conv": {"kernel": [9], "padding": [1]}})",
-       "'layers[0].conv.kernel' is refused: kindling::convolution_map: argument 'conv' has kernel [9] spanning 9 positions on axis 0 (dilation 1), larger than the padded input 8"},
+       "'layers[0].conv.kernel' is refused: kindling::convolution_map: argument 'conv.kernel' = [9], spanning 9 positions on axis 0 (dilation 1), expected a kernel that fits the padded input, 8"},
       {"groups not dividing the channels", R"({"width": 6, "activation": "relu", "scheme": "he-normal", "conv": {"kernel": [3], "groups": 4}})",
        "'layers[0].conv.groups' is refused"},
       {"branch width not matching its skip", R"({"residual": {"layers": [{"width": 8, "activation": "relu", "scheme": "he-normal", "conv": {"kernel": [1]}}]}})",
-       "'layers[0].residual.layers' is refused: kindling::layer_stack::add_residual: argument 'branch' ends in 8 channels"},
+       "'layers[0].residual.layers' is refused: kindling::layer_stack::add_residual: argument 'branch' = a branch ending in 8 channels"},
       {"scaling without blocks", R"({"residual": {"layers": [{"width": 4, "activation": "relu", "scheme": "he-normal", "conv": {"kernel": [1]}}], "scaling": "fixup"}})",
        "'layers[0].residual' has scaling 'fixup' but no key 'blocks'"},
       {"unknown scaling", R"({"residual": {"layers": [{"width": 4, "activation": "relu", "scheme": "he-normal"}], "scaling": "half"}})",

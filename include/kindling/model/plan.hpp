@@ -79,6 +79,8 @@ using any_tensor_view =
 
 namespace detail {
 
+// The parameter's name before a message of the checks below (which name only their own
+// argument), so that a plan's error says which parameter it is about.
 [[noreturn]] inline void rethrow_for(const std::string& name, const std::exception& e) {
   throw std::invalid_argument("parameter '" + name + "': " + e.what());
 }
@@ -87,12 +89,13 @@ namespace detail {
 // shape and fans (of each block, for a packed layer).
 inline void check_parameter(const model_parameter& p) {
   try {
-    if (p.name.empty()) throw std::invalid_argument("the name is empty, expected a parameter name");
+    if (p.name.empty()) reject_argument<std::invalid_argument>("kindling::check_plan", "name", "''", "a parameter name");
     if (!p.gate_order.empty()) {
       const auto* packed = std::get_if<packed_dense>(&p.layer);
       if (packed == nullptr || p.gate_order.size() != packed->blocks()) {
-        throw std::invalid_argument("gate_order has " + std::to_string(p.gate_order.size()) +
-                                    " labels, expected one for each block of a packed layer");
+        reject_argument<std::invalid_argument>("kindling::check_plan", "gate_order",
+                                               std::to_string(p.gate_order.size()) + " labels",
+                                               "one label for each block of a packed layer");
       }
     }
     const std::vector<std::uint64_t> s = p.full_shape();
@@ -121,7 +124,8 @@ inline void check_plan(const model_plan& plan) {
   for (const model_parameter& p : plan.parameters) {
     detail::check_parameter(p);
     if (!seen.insert(p.name).second) {
-      throw std::invalid_argument("parameter '" + p.name + "' appears twice in the plan, expected each name once");
+      detail::reject_argument<std::invalid_argument>("kindling::check_plan", "name", "'" + p.name + "'",
+                                                     "each name once in the plan (it appears twice)");
     }
   }
 }
@@ -132,14 +136,16 @@ template <class E, class Exec = serial_executor>
 void initialize_parameter(const model_parameter& p, std::uint64_t seed, const strided_view<E>& v,
                           Exec&& exec = Exec{}) {
   if (element_kind_of<std::remove_const_t<E>>::value != p.element) {
-    throw std::invalid_argument("parameter '" + p.name + "': the storage holds " +
-                                element_kind_name(element_kind_of<std::remove_const_t<E>>::value) +
-                                " elements, expected " + element_kind_name(p.element));
+    detail::reject_argument<std::invalid_argument>(
+        "kindling::initialize_parameter", "v",
+        std::string("a view of ") + element_kind_name(element_kind_of<std::remove_const_t<E>>::value) + " elements",
+        std::string(element_kind_name(p.element)) + " elements, the element type of parameter '" + p.name + "'");
   }
   const std::vector<std::uint64_t> want = p.full_shape();
   if (detail::shape_vector(v.global_shape()) != want) {
-    throw std::invalid_argument("parameter '" + p.name + "': the storage's global shape is " +
-                                v.global_shape().text() + ", expected " + detail::shape_text(want));
+    detail::reject_argument<std::invalid_argument>(
+        "kindling::initialize_parameter", "v", "a view of global shape " + v.global_shape().text(),
+        "the global shape " + detail::shape_text(want) + " of parameter '" + p.name + "'");
   }
   std::visit([&](const auto& l) { initialize(v, l, p.scheme, make_stream(seed, p.name), exec); }, p.layer);
 }

@@ -55,7 +55,8 @@ class name_pattern {
  public:
   name_pattern() = default;
   explicit name_pattern(std::string text) : text_(std::move(text)) {
-    if (text_.empty()) throw std::invalid_argument("name pattern '': expected a non-empty pattern, e.g. **.weight");
+    constexpr const char* where = "kindling::name_pattern";
+    if (text_.empty()) detail::reject_argument<std::invalid_argument>(where, "text", "''", "a non-empty pattern, e.g. **.weight");
     for (std::size_t i = 0; i < text_.size();) {
       if (text_[i] != '*') {
         ++literal_;
@@ -65,8 +66,9 @@ class name_pattern {
       std::size_t run = 0;
       while (i + run < text_.size() && text_[i + run] == '*') ++run;
       if (run > 2) {
-        throw std::invalid_argument("name pattern '" + text_ + "': " + std::to_string(run) +
-                                    " '*' in a row, expected '*' (within one segment) or '**' (across segments)");
+        detail::reject_argument<std::invalid_argument>(
+            where, "text", "'" + text_ + "'",
+            "'*' (within one segment) or '**' (across segments), not " + std::to_string(run) + " '*' in a row");
       }
       (run == 1 ? single_ : double_) += 1;
       i += run;
@@ -155,16 +157,17 @@ struct layer_template {
 
   /// The layer whose weight has `s`; std::invalid_argument when it cannot have it.
   layer_description make(const std::vector<std::uint64_t>& s) const {
+    constexpr const char* where = "kindling::layer_template::make";
     const std::string what = std::string("a ") + layer_kind_name(kind) + " layer";
     const auto need_rank = [&](std::size_t lo, std::size_t hi) {
       if (s.size() < lo || s.size() > hi) {
-        throw std::invalid_argument("shape " + detail::shape_text(s) + " of rank " + std::to_string(s.size()) + " cannot be " +
-                                    what + ", expected rank " + std::to_string(lo) +
-                                    (hi != lo ? " to " + std::to_string(hi) : std::string()));
+        detail::reject_argument<std::invalid_argument>(
+            where, "shape", detail::shape_text(s) + " (rank " + std::to_string(s.size()) + ")",
+            "rank " + std::to_string(lo) + (hi != lo ? " to " + std::to_string(hi) : std::string()) + " for " + what);
       }
     };
-    const auto product = [](std::uint64_t a, std::uint64_t b, const char* where) {
-      return detail::checked_product(a, b, "kindling::layer_template::make", where);
+    const auto product = [where](std::uint64_t a, std::uint64_t b, const char* quantity) {
+      return detail::checked_product(a, b, where, quantity);
     };
     switch (kind) {
       case layer_kind::dense: {
@@ -177,16 +180,20 @@ struct layer_template {
         return embedding(s[0], s[1]);
       case layer_kind::bias:
         need_rank(1, 1);
-        if (s[0] == 0) throw std::invalid_argument("shape [0] cannot be a bias, expected a positive size");
+        if (s[0] == 0) detail::reject_argument<std::invalid_argument>(where, "shape", "[0]", "a positive size for a bias");
         return bias_vector{s[0]};
       case layer_kind::packed: {
         need_rank(2, 2);
-        if (blocks == 0) throw std::invalid_argument("a packed layer needs its number of blocks (3 for a GRU, 4 for an LSTM)");
+        if (blocks == 0) {
+          detail::reject_argument<std::invalid_argument>(where, "blocks", "0",
+                                                         "the number of blocks of a packed layer (3 for a GRU, 4 for an LSTM)");
+        }
         const weight_layout l = layout.value_or(weight_layout::out_in);
         const std::uint64_t rows = l == weight_layout::in_out ? s[1] : s[0];
         if (rows % blocks != 0) {
-          throw std::invalid_argument("shape " + detail::shape_text(s) + ": " + std::to_string(rows) +
-                                      " stacked rows do not split into " + std::to_string(blocks) + " equal blocks");
+          detail::reject_argument<std::invalid_argument>(
+              where, "shape", detail::shape_text(s) + " (" + std::to_string(rows) + " stacked rows)",
+              "stacked rows that split into " + std::to_string(blocks) + " equal blocks");
         }
         return packed_dense(blocks, l == weight_layout::in_out ? s[0] : s[1], rows / blocks, l);
       }
@@ -212,7 +219,8 @@ struct layer_template {
           b = s[r - 1];
           kernel.assign(s.begin() + 1, s.end() - 1);
         } else {
-          throw std::invalid_argument(std::string("layout ") + std::string(layout_name(l)) + " does not apply to " + what);
+          detail::reject_argument<std::invalid_argument>(where, "layout", std::string(layout_name(l)),
+                                                         "a layout of " + what);
         }
         // a is out (convolution) or in (transposed); b holds the other side per group.
         const std::uint64_t other = product(b, groups, "channels per group * groups");

@@ -71,24 +71,27 @@ class convolution_map {
     for (std::size_t d = 0; d < rank; ++d) {
       detail::require_positive(in_extent_[d], where, "in_extent");
       if (stride_[d] == 0 || dilation_[d] == 0) {
-        throw std::invalid_argument(std::string(where) + ": argument 'geometry." +
-                                    (stride_[d] == 0 ? "stride" : "dilation") + "' has 0 on axis " +
-                                    std::to_string(d) + ", expected at least 1");
+        detail::reject_argument<std::invalid_argument>(
+            where, std::string("geometry.") + (stride_[d] == 0 ? "stride" : "dilation") + "[" + std::to_string(d) + "]",
+            "0", "at least 1");
       }
       constexpr std::uint64_t limit = std::uint64_t{1} << 32;  // keeps every sum below exact
       if (in_extent_[d] > limit || padding_[d] > limit || dilation_[d] > limit || kernel_[d] > limit) {
-        throw std::length_error(std::string(where) + ": axis " + std::to_string(d) +
-                                " has an extent, padding, dilation or kernel above 2^32, expected smaller sizes");
+        detail::reject_argument<std::length_error>(
+            where, "in_extent[" + std::to_string(d) + "]",
+            std::to_string(in_extent_[d]) + " (padding " + std::to_string(padding_[d]) + ", dilation " +
+                std::to_string(dilation_[d]) + ", kernel " + std::to_string(kernel_[d]) + ")",
+            "an extent, padding, dilation and kernel of at most 2^32 on each axis");
       }
       const std::uint64_t span = dilation_[d] * (kernel_[d] - 1) + 1;
       const std::uint64_t padded = in_extent_[d] + 2 * padding_[d];
       if (span > padded) {
-        throw std::invalid_argument(std::string(where) + ": argument 'conv' has kernel " + detail::shape_text(kernel_) +
-                                    " spanning " + std::to_string(span) + " positions on axis " + std::to_string(d) +
-                                    " (dilation " + std::to_string(dilation_[d]) + "), larger than the padded input " +
-                                    std::to_string(padded) + " (extent " + std::to_string(in_extent_[d]) +
-                                    " + 2 x padding " + std::to_string(padding_[d]) +
-                                    "), expected a kernel that fits the padded input");
+        detail::reject_argument<std::invalid_argument>(
+            where, "conv.kernel",
+            detail::shape_text(kernel_) + ", spanning " + std::to_string(span) + " positions on axis " +
+                std::to_string(d) + " (dilation " + std::to_string(dilation_[d]) + ")",
+            "a kernel that fits the padded input, " + std::to_string(padded) + " (extent " +
+                std::to_string(in_extent_[d]) + " + 2 x padding " + std::to_string(padding_[d]) + ")");
       }
       out_extent_.push_back((padded - span) / stride_[d] + 1);
     }
@@ -99,8 +102,10 @@ class convolution_map {
     // asking for terabytes
     constexpr std::uint64_t max_pairs = std::uint64_t{1} << 26;
     if (detail::checked_product(out_positions_, taps_, where, "output positions x kernel taps") > max_pairs) {
-      throw std::length_error(std::string(where) + ": " + std::to_string(out_positions_) + " output positions x " +
-                              std::to_string(taps_) + " kernel taps, expected at most 2^26 pairs");
+      detail::reject_argument<std::length_error>(
+          where, "in_extent", detail::shape_text(in_extent_) + ", giving " + std::to_string(out_positions_) +
+                                  " output positions x " + std::to_string(taps_) + " kernel taps",
+          "at most 2^26 (position, tap) pairs");
     }
     build_sources();
   }

@@ -57,8 +57,7 @@ namespace detail {
 
 inline void check_diagnosis_options(const diagnosis_options& o, const char* where) {
   const auto bad = [where](const char* arg, double v, const char* expected) {
-    return std::domain_error(std::string(where) + ": argument 'options." + arg + "' = " + argument_text(v) +
-                             ", expected " + expected);
+    return std::domain_error(argument_message(where, std::string("options.") + arg, argument_text(v), expected));
   };
   if (!(std::isfinite(o.zero_gradient) && o.zero_gradient >= 0.0)) throw bad("zero_gradient", o.zero_gradient, "a finite number >= 0");
   if (!(std::isfinite(o.identical) && o.identical >= 0.0 && o.identical < 1.0)) throw bad("identical", o.identical, "a number in [0, 1)");
@@ -117,20 +116,174 @@ inline void check_pass_record(const layer_stack& stack, const Eigen::MatrixXd& i
                               const char* where) {
   const auto& layers = stack.layers();
   if (rec.pre.size() != layers.size() || rec.grad.size() != layers.size()) {
-    throw std::invalid_argument(std::string(where) + ": argument 'record' has " + std::to_string(rec.pre.size()) +
-                                " pre-activation and " + std::to_string(rec.grad.size()) +
-                                " gradient matrices, expected " + std::to_string(layers.size()) +
-                                " of each (one per layer of the stack)");
+    reject_argument<std::invalid_argument>(
+        where, "record",
+        std::to_string(rec.pre.size()) + " pre-activation and " + std::to_string(rec.grad.size()) + " gradient matrices",
+        std::to_string(layers.size()) + " of each (one per layer of the stack)");
   }
   for (std::size_t l = 0; l < layers.size(); ++l) {
     const Eigen::Index w = eigen_index(layers[l].width);
     if (rec.pre[l].rows() != w || rec.grad[l].rows() != w || rec.pre[l].cols() != input.cols() ||
         rec.grad[l].cols() != input.cols()) {
-      throw std::invalid_argument(std::string(where) + ": argument 'record' layer " + std::to_string(l) + " is " +
-                                  std::to_string(rec.pre[l].rows()) + " x " + std::to_string(rec.pre[l].cols()) +
-                                  ", expected " + std::to_string(w) + " x " + std::to_string(input.cols()));
+      reject_argument<std::invalid_argument>(
+          where, "record.pre[" + std::to_string(l) + "]",
+          std::to_string(rec.pre[l].rows()) + " x " + std::to_string(rec.pre[l].cols()) + " (gradient " +
+              std::to_string(rec.grad[l].rows()) + " x " + std::to_string(rec.grad[l].cols()) + ")",
+          std::to_string(w) + " x " + std::to_string(input.cols()) + " for both");
     }
   }
+}
+
+// The arguments of diagnose_pass, checked before any work.
+inline void check_diagnosis_arguments(const layer_stack& stack, const realized_stack& net, const Eigen::MatrixXd& input,
+                                      const pass_record& record, const diagnosis_options& options, const char* where) {
+  require_dense_stack(stack, where);
+  check_diagnosis_options(options, where);
+  if (input.rows() != eigen_index(stack.input_units()) || input.cols() == 0) {
+    reject_argument<std::invalid_argument>(where, "input",
+                                           std::to_string(input.rows()) + " x " + std::to_string(input.cols()),
+                                           std::to_string(stack.input_units()) + " rows and at least one column");
+  }
+  if (net.weights.size() != stack.depth()) {
+    reject_argument<std::invalid_argument>(where, "net", std::to_string(net.weights.size()) + " weights",
+                                           std::to_string(stack.depth()) + " (one per layer of the stack)");
+  }
+  check_pass_record(stack, input, record, where);
+}
+
+// zero-weight-gradients: dL/dW_l = delta_l a_{l-1}^T / B for each layer.
+inline audit_finding zero_gradient_finding(const layer_stack& stack, const Eigen::MatrixXd& input,
+                                           const pass_record& record, const diagnosis_options& options) {
+  const auto& layers = stack.layers();
+  const std::size_t n = layers.size();
+  std::vector<std::string> zero_layers;
+  for (std::size_t l = 0; l < n; ++l) {
+    const Eigen::MatrixXd a =
+        l == 0 ? input : Eigen::MatrixXd(record.pre[l - 1].unaryExpr([&](double v) { return layers[l - 1].act(v); }));
+    const Eigen::MatrixXd g = record.grad[l] * a.transpose() / static_cast<double>(input.cols());
+    if (g.cwiseAbs().maxCoeff() <= options.zero_gradient) zero_layers.push_back(layers[l].label);
+  }
+  audit_finding f;
+  f.check = "zero-weight-gradients";
+  f.statistic = static_cast<double>(zero_layers.size());
+  f.passed = zero_layers.empty();
+  if (f.passed) {
+    f.sentence = "every layer has a nonzero weight gradient";
+  } else if (zero_layers.size() == n) {
+    f.sentence = "every weight gradient is zero (all " + std::to_string(n) +
+                 " layers): the network sits on a saddle where gradient descent cannot move any weight -- "
+                 "with all-zero weights and an activation with phi(0) = 0 (tanh) no signal goes forward and "
+                 "no gradient comes back; draw the weights at random (Glorot, He)";
+  } else {
+    std::string names;
+    for (std::size_t k = 0; k < zero_layers.size(); ++k) names += (k ? ", " : "") + ("'" + zero_layers[k] + "'");
+    f.sentence = "the weight gradient is zero for the whole batch in layer" +
+                 std::string(zero_layers.size() > 1 ? "s " : " ") + names +
+                 ": these weights will not move (zero weights above them, or units that pass no gradient)";
+  }
+  return f;
+}
+
+// identical-units, on the hidden layers (the output units have different targets).
+inline audit_finding identical_units_finding(const layer_stack& stack, const pass_record& record,
+                                             const diagnosis_options& options) {
+  const auto& layers = stack.layers();
+  std::string details;
+  std::size_t affected = 0;
+  for (std::size_t l = 0; l + 1 < layers.size(); ++l) {
+    const auto groups = identical_groups(record.pre[l], record.grad[l], options.identical);
+    if (groups.empty()) continue;
+    std::size_t units = 0, largest = 0;
+    for (const auto& g : groups) {
+      units += g.size();
+      if (g.size() > groups[largest].size()) largest = static_cast<std::size_t>(&g - groups.data());
+    }
+    affected += units;
+    if (!details.empty()) details += "; ";
+    const std::uint64_t width = layers[l].width;
+    if (groups.size() == 1 && units == width) {
+      details += "in layer '" + layers[l].label + "' all " + std::to_string(width) +
+                 " units have the same pre-activation and gradient on every sample (the layer acts as one unit)";
+    } else {
+      details += "in layer '" + layers[l].label + "' " + std::to_string(units) + " of " + std::to_string(width) +
+                 " units fall in " + std::to_string(groups.size()) + " group" + (groups.size() > 1 ? "s" : "") +
+                 " of identical units (largest: units " + unit_list(groups[largest]) + ")";
+    }
+  }
+  audit_finding f;
+  f.check = "identical-units";
+  f.statistic = static_cast<double>(affected);
+  f.passed = affected == 0;
+  f.sentence = f.passed ? "no two hidden units compute the same function on the batch"
+                        : "symmetry not broken: " + details +
+                              "; identical units get identical updates and stay identical under gradient "
+                              "descent (equal or zero weights; draw them at random)";
+  return f;
+}
+
+// Units of one kind (dead or saturated) over the layers: their count and one text part a layer.
+struct unit_tally {
+  std::size_t total = 0;
+  std::string text;
+
+  void add(const stack_layer& layer, const std::vector<Eigen::Index>& units) {
+    if (units.empty()) return;
+    total += units.size();
+    if (!text.empty()) text += "; ";
+    text += "layer '" + layer.label + "' (" + layer.act.name() + "): " + std::to_string(units.size()) + " of " +
+            std::to_string(layer.width) + " units (" + percent(units.size(), layer.width) + ", units " +
+            unit_list(units) + ")";
+  }
+};
+
+// dead-units and saturated-units: the slope phi'(h) of each unit on each sample. A
+// saturating activation is checked for saturation, any other for dead units.
+inline std::pair<audit_finding, audit_finding> slope_findings(const layer_stack& stack, const pass_record& record,
+                                                              const diagnosis_options& options) {
+  const auto batch = static_cast<std::uint64_t>(record.pre.front().cols());
+  unit_tally dead_units, saturated_units;
+  for (std::size_t l = 0; l < stack.layers().size(); ++l) {
+    const stack_layer& layer = stack.layers()[l];
+    const nonlinearity& phi = layer.act;
+    const bool saturating = saturates(phi);
+    const double limit = options.saturation_slope * std::fabs(phi.slope(0.0));
+    std::vector<Eigen::Index> dead, saturated;
+    const Eigen::MatrixXd& h = record.pre[l];
+    for (Eigen::Index i = 0; i < h.rows(); ++i) {
+      std::uint64_t zero = 0, low = 0;
+      for (Eigen::Index b = 0; b < h.cols(); ++b) {
+        const double s = std::fabs(phi.slope(h(i, b)));
+        zero += s == 0.0;
+        low += s < limit;
+      }
+      if (saturating) {
+        if (static_cast<double>(low) >= options.saturated_fraction * static_cast<double>(batch)) saturated.push_back(i);
+      } else if (zero == batch) {
+        dead.push_back(i);
+      }
+    }
+    dead_units.add(layer, dead);
+    saturated_units.add(layer, saturated);
+  }
+  audit_finding dead;
+  dead.check = "dead-units";
+  dead.statistic = static_cast<double>(dead_units.total);
+  dead.passed = dead_units.total == 0;
+  dead.sentence = dead.passed ? "no unit is dead for the whole batch"
+                              : "dead units, slope phi'(h) = 0 on all " + std::to_string(batch) +
+                                    " samples, so they pass no gradient and their incoming weights never change: " +
+                                    dead_units.text + " (negative biases, or weights too large for the input scale)";
+  audit_finding sat;
+  sat.check = "saturated-units";
+  sat.statistic = static_cast<double>(saturated_units.total);
+  sat.passed = saturated_units.total == 0;
+  sat.sentence = sat.passed ? "no saturating unit is saturated on the batch"
+                            : "saturated units, |phi'(h)| below " + short_number(100.0 * options.saturation_slope) +
+                                  "% of phi'(0) on at least " + short_number(100.0 * options.saturated_fraction) +
+                                  "% of the batch, so their gradients nearly vanish: " + saturated_units.text +
+                                  " (the pre-activations are too large: standardize the inputs, or lower the "
+                                  "weight and bias scale)";
+  return {std::move(dead), std::move(sat)};
 }
 
 }  // namespace detail
@@ -139,152 +292,14 @@ inline void check_pass_record(const layer_stack& stack, const Eigen::MatrixXd& i
 /// trainer that has the pass at hand anyway.
 inline audit_report diagnose_pass(const layer_stack& stack, const realized_stack& net, const Eigen::MatrixXd& input,
                                   const pass_record& record, const diagnosis_options& options = {}) {
-  constexpr const char* where = "kindling::diagnose_pass";
-  detail::require_dense_stack(stack, where);
-  detail::check_diagnosis_options(options, where);
-  if (input.rows() != detail::eigen_index(stack.input_units()) || input.cols() == 0) {
-    throw std::invalid_argument(std::string(where) + ": argument 'input' is " + std::to_string(input.rows()) + " x " +
-                                std::to_string(input.cols()) + ", expected " + std::to_string(stack.input_units()) +
-                                " rows and at least one column");
-  }
-  if (net.weights.size() != stack.depth()) {
-    throw std::invalid_argument(std::string(where) + ": argument 'net' has " + std::to_string(net.weights.size()) +
-                                " weights, expected " + std::to_string(stack.depth()));
-  }
-  detail::check_pass_record(stack, input, record, where);
-
-  const auto& layers = stack.layers();
-  const std::size_t n = layers.size();
-  const auto batch = static_cast<std::uint64_t>(input.cols());
-  audit_report report("pass diagnostics of a " + std::to_string(n) + "-layer stack on a batch of " +
-                      std::to_string(batch));
-
-  // zero-weight-gradients
-  std::vector<std::string> zero_layers;
-  for (std::size_t l = 0; l < n; ++l) {
-    const Eigen::MatrixXd a =
-        l == 0 ? input : Eigen::MatrixXd(record.pre[l - 1].unaryExpr([&](double v) { return layers[l - 1].act(v); }));
-    const Eigen::MatrixXd g = record.grad[l] * a.transpose() / static_cast<double>(batch);
-    if (g.cwiseAbs().maxCoeff() <= options.zero_gradient) zero_layers.push_back(layers[l].label);
-  }
-  {
-    audit_finding f;
-    f.check = "zero-weight-gradients";
-    f.statistic = static_cast<double>(zero_layers.size());
-    f.passed = zero_layers.empty();
-    if (f.passed) {
-      f.sentence = "every layer has a nonzero weight gradient";
-    } else if (zero_layers.size() == n) {
-      f.sentence = "every weight gradient is zero (all " + std::to_string(n) +
-                   " layers): the network sits on a saddle where gradient descent cannot move any weight -- "
-                   "with all-zero weights and an activation with phi(0) = 0 (tanh) no signal goes forward and "
-                   "no gradient comes back; draw the weights at random (Glorot, He)";
-    } else {
-      std::string names;
-      for (std::size_t k = 0; k < zero_layers.size(); ++k) names += (k ? ", " : "") + ("'" + zero_layers[k] + "'");
-      f.sentence = "the weight gradient is zero for the whole batch in layer" +
-                   std::string(zero_layers.size() > 1 ? "s " : " ") + names +
-                   ": these weights will not move (zero weights above them, or units that pass no gradient)";
-    }
-    report.add(std::move(f));
-  }
-
-  // identical-units (hidden layers)
-  {
-    std::string details;
-    std::size_t affected = 0;
-    for (std::size_t l = 0; l + 1 < n; ++l) {
-      const auto groups = detail::identical_groups(record.pre[l], record.grad[l], options.identical);
-      if (groups.empty()) continue;
-      std::size_t units = 0, largest = 0;
-      for (const auto& g : groups) {
-        units += g.size();
-        if (g.size() > groups[largest].size()) largest = static_cast<std::size_t>(&g - groups.data());
-      }
-      affected += units;
-      if (!details.empty()) details += "; ";
-      const std::uint64_t width = layers[l].width;
-      if (groups.size() == 1 && units == width) {
-        details += "in layer '" + layers[l].label + "' all " + std::to_string(width) +
-                   " units have the same pre-activation and gradient on every sample (the layer acts as one unit)";
-      } else {
-        details += "in layer '" + layers[l].label + "' " + std::to_string(units) + " of " + std::to_string(width) +
-                   " units fall in " + std::to_string(groups.size()) + " group" + (groups.size() > 1 ? "s" : "") +
-                   " of identical units (largest: units " + detail::unit_list(groups[largest]) + ")";
-      }
-    }
-    audit_finding f;
-    f.check = "identical-units";
-    f.statistic = static_cast<double>(affected);
-    f.passed = affected == 0;
-    f.sentence = f.passed ? "no two hidden units compute the same function on the batch"
-                          : "symmetry not broken: " + details +
-                                "; identical units get identical updates and stay identical under gradient "
-                                "descent (equal or zero weights; draw them at random)";
-    report.add(std::move(f));
-  }
-
-  // dead-units and saturated-units
-  {
-    std::string dead_text, sat_text;
-    std::size_t dead_total = 0, sat_total = 0;
-    for (std::size_t l = 0; l < n; ++l) {
-      const nonlinearity& phi = layers[l].act;
-      const bool saturating = detail::saturates(phi);
-      const double limit = options.saturation_slope * std::fabs(phi.slope(0.0));
-      std::vector<Eigen::Index> dead, saturated;
-      const Eigen::MatrixXd& h = record.pre[l];
-      for (Eigen::Index i = 0; i < h.rows(); ++i) {
-        std::uint64_t zero = 0, low = 0;
-        for (Eigen::Index b = 0; b < h.cols(); ++b) {
-          const double s = std::fabs(phi.slope(h(i, b)));
-          zero += s == 0.0;
-          low += s < limit;
-        }
-        if (saturating) {
-          if (static_cast<double>(low) >= options.saturated_fraction * static_cast<double>(batch)) saturated.push_back(i);
-        } else if (zero == batch) {
-          dead.push_back(i);
-        }
-      }
-      const std::uint64_t width = layers[l].width;
-      if (!dead.empty()) {
-        dead_total += dead.size();
-        if (!dead_text.empty()) dead_text += "; ";
-        dead_text += "layer '" + layers[l].label + "' (" + phi.name() + "): " + std::to_string(dead.size()) + " of " +
-                     std::to_string(width) + " units (" + detail::percent(dead.size(), width) + ", units " +
-                     detail::unit_list(dead) + ")";
-      }
-      if (!saturated.empty()) {
-        sat_total += saturated.size();
-        if (!sat_text.empty()) sat_text += "; ";
-        sat_text += "layer '" + layers[l].label + "' (" + phi.name() + "): " + std::to_string(saturated.size()) +
-                    " of " + std::to_string(width) + " units (" + detail::percent(saturated.size(), width) + ", units " +
-                    detail::unit_list(saturated) + ")";
-      }
-    }
-    audit_finding dead;
-    dead.check = "dead-units";
-    dead.statistic = static_cast<double>(dead_total);
-    dead.passed = dead_total == 0;
-    dead.sentence = dead.passed ? "no unit is dead for the whole batch"
-                                : "dead units, slope phi'(h) = 0 on all " + std::to_string(batch) +
-                                      " samples, so they pass no gradient and their incoming weights never change: " +
-                                      dead_text + " (negative biases, or weights too large for the input scale)";
-    report.add(std::move(dead));
-    audit_finding sat;
-    sat.check = "saturated-units";
-    sat.statistic = static_cast<double>(sat_total);
-    sat.passed = sat_total == 0;
-    sat.sentence = sat.passed ? "no saturating unit is saturated on the batch"
-                              : "saturated units, |phi'(h)| below " + detail::short_number(100.0 * options.saturation_slope) +
-                                    "% of phi'(0) on at least " +
-                                    detail::short_number(100.0 * options.saturated_fraction) +
-                                    "% of the batch, so their gradients nearly vanish: " + sat_text +
-                                    " (the pre-activations are too large: standardize the inputs, or lower the "
-                                    "weight and bias scale)";
-    report.add(std::move(sat));
-  }
+  detail::check_diagnosis_arguments(stack, net, input, record, options, "kindling::diagnose_pass");
+  audit_report report("pass diagnostics of a " + std::to_string(stack.layers().size()) +
+                      "-layer stack on a batch of " + std::to_string(input.cols()));
+  report.add(detail::zero_gradient_finding(stack, input, record, options));
+  report.add(detail::identical_units_finding(stack, record, options));
+  auto slopes = detail::slope_findings(stack, record, options);
+  report.add(std::move(slopes.first));
+  report.add(std::move(slopes.second));
   return report;
 }
 
@@ -310,8 +325,8 @@ audit_report diagnose_initialization(const layer_stack& stack, const realized_st
   detail::require_dense_stack(stack, where);
   detail::check_diagnosis_options(options, where);
   if (batch < 2) {
-    throw std::invalid_argument(std::string(where) + ": argument 'batch' = " + std::to_string(batch) +
-                                ", expected at least 2 samples (one sample cannot tell a dead unit from a quiet one)");
+    detail::reject_argument<std::invalid_argument>(
+        where, "batch", std::to_string(batch), "at least 2 samples (one sample cannot tell a dead unit from a quiet one)");
   }
   Eigen::MatrixXd x(detail::eigen_index(stack.input_units()), detail::eigen_index(batch));
   fill(view_of(x), dist::normal{0.0, std::sqrt(stack.input_second_moment())}, s.named("input"));

@@ -87,8 +87,8 @@ class lsuv_layer {
   lsuv_layer(std::string label, const strided_view<E>& weight, const weight_info& info, Forward forward)
       : label_(std::move(label)), weight_(weight), info_(info), forward_(wrap(std::move(forward))) {
     if (label_.empty()) {
-      throw std::invalid_argument("kindling::lsuv_layer: argument 'label' is empty, expected a layer name "
-                                  "(the orthogonal start draws from stream label + \".weight\")");
+      detail::reject_argument<std::invalid_argument>(
+          "kindling::lsuv_layer", "label", "''", "a layer name (the orthogonal start draws from stream label + \".weight\")");
     }
   }
 
@@ -112,7 +112,10 @@ class lsuv_layer {
     static_assert(detail::is_eigen_result<result> || std::is_arithmetic<std::decay_t<result>>::value,
                   "the forward callable must return the layer's output (an Eigen object) or its variance (a number)");
     if constexpr (std::is_pointer<Forward>::value || detail::is_std_function<Forward>::value) {
-      if (!forward) throw std::invalid_argument("kindling::lsuv_layer: argument 'forward' is empty, expected a callable");
+      if (!forward) {
+        detail::reject_argument<std::invalid_argument>("kindling::lsuv_layer", "forward", "an empty function",
+                                                       "a callable");
+      }
     }
     if constexpr (detail::is_eigen_result<result>) {
       return [f = std::move(forward)]() mutable { return detail::entry_variance(f()); };
@@ -194,13 +197,13 @@ inline void check_lsuv_options(const lsuv_options& o, const char* where) {
 template <class E>
 void check_lsuv_layers(const std::vector<lsuv_layer<E>>& layers, const char* where) {
   if (layers.empty()) {
-    throw std::invalid_argument(std::string(where) + ": argument 'layers' is empty, expected at least one layer");
+    reject_argument<std::invalid_argument>(where, "layers", "an empty list", "at least one layer");
   }
   std::set<std::string> seen;
   for (const auto& l : layers) {
     if (!seen.insert(l.label()).second) {
-      throw std::invalid_argument(std::string(where) + ": argument 'layers' has the label '" + l.label() +
-                                  "' twice, expected distinct labels (each names its own weight stream)");
+      reject_argument<std::invalid_argument>(where, "layers", "a list with the label '" + l.label() + "' twice",
+                                             "distinct labels (each names its own weight stream)");
     }
   }
 }

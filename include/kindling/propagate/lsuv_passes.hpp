@@ -41,13 +41,14 @@ inline lsuv_report lsuv_rescale_stack(const layer_stack& stack, realized_stack& 
   detail::require_runnable_stack(stack, where);
   const auto& layers = stack.layers();
   if (net.weights.size() != layers.size() || net.biases.size() != layers.size()) {
-    throw std::invalid_argument(std::string(where) + ": argument 'net' has " + std::to_string(net.weights.size()) +
-                                " weights, expected " + std::to_string(layers.size()) + " (realize(stack, s))");
+    detail::reject_argument<std::invalid_argument>(
+        where, "net", std::to_string(net.weights.size()) + " weights and " + std::to_string(net.biases.size()) + " biases",
+        std::to_string(layers.size()) + " of each (realize(stack, s))");
   }
   if (batch.rows() != detail::eigen_index(stack.input_units()) || batch.cols() == 0) {
-    throw std::invalid_argument(std::string(where) + ": argument 'batch' has " + std::to_string(batch.rows()) +
-                                " rows and " + std::to_string(batch.cols()) + " columns, expected " +
-                                std::to_string(stack.input_units()) + " rows and at least one column");
+    detail::reject_argument<std::invalid_argument>(where, "batch",
+                                                   std::to_string(batch.rows()) + " x " + std::to_string(batch.cols()),
+                                                   std::to_string(stack.input_units()) + " rows and at least one column");
   }
   const Eigen::MatrixXd no_gradient = Eigen::MatrixXd::Zero(detail::eigen_index(layers.back().units()), batch.cols());
   std::vector<lsuv_layer<double>> calibrated;

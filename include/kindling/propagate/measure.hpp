@@ -102,9 +102,9 @@ inline void require_dense_stack(const layer_stack& stack, const char* where) {
   stack.require_layers(where);
   for (const stack_layer& l : stack.layers()) {
     if (!l.dense || !l.draw) {
-      throw std::invalid_argument(std::string(where) + ": layer '" + l.label +
-                                  "' of argument 'stack' is a convolution or a residual sum, expected dense "
-                                  "layers only");
+      reject_argument<std::invalid_argument>(where, "stack", "a stack whose layer '" + l.label +
+                                                                 "' is a convolution or a residual sum",
+                                             "dense layers only");
     }
   }
 }
@@ -113,11 +113,11 @@ inline void require_runnable_stack(const layer_stack& stack, const char* where) 
   stack.require_layers(where);
   for (const stack_layer& l : stack.layers()) {
     if (!l.draw) {
-      throw std::invalid_argument(std::string(where) + ": layer '" + l.label +
-                                  "' of argument 'stack' is a convolution without a spatial extent, expected dense "
-                                  "layers or convolutions placed on a feature map (build the stack with "
-                                  "layer_stack::feature_maps; a convolution without an extent is analysed through "
-                                  "its fans by predict())");
+      reject_argument<std::invalid_argument>(
+          where, "stack", "a stack whose layer '" + l.label + "' is a convolution without a spatial extent",
+          "dense layers or convolutions placed on a feature map (build the stack with "
+          "layer_stack::feature_maps; a convolution without an extent is analysed through "
+          "its fans by predict())");
     }
   }
 }
@@ -236,32 +236,32 @@ pass_record run_pass(const layer_stack& stack, const realized_stack& net, const 
   detail::require_runnable_stack(stack, where);
   const auto& layers = stack.layers();
   if (net.weights.size() != layers.size() || net.biases.size() != layers.size()) {
-    throw std::invalid_argument(std::string(where) + ": argument 'net' has " +
-                                std::to_string(net.weights.size()) + " weights, expected " +
-                                std::to_string(layers.size()));
+    detail::reject_argument<std::invalid_argument>(
+        where, "net", std::to_string(net.weights.size()) + " weights and " + std::to_string(net.biases.size()) + " biases",
+        std::to_string(layers.size()) + " of each (one per layer of the stack)");
   }
   for (std::size_t l = 0; l < layers.size(); ++l) {
     if (net.weights[l].rows() != detail::eigen_index(layers[l].width) ||
         net.weights[l].cols() != detail::weight_columns(layers[l]) ||
         net.biases[l].size() != detail::eigen_index(layers[l].width)) {
-      throw std::invalid_argument(std::string(where) + ": argument 'net' layer " + std::to_string(l) +
-                                  " has a weight of " + std::to_string(net.weights[l].rows()) + " x " +
-                                  std::to_string(net.weights[l].cols()) + ", expected " +
-                                  std::to_string(layers[l].width) + " x " +
-                                  std::to_string(detail::weight_columns(layers[l])));
+      detail::reject_argument<std::invalid_argument>(
+          where, "net.weights[" + std::to_string(l) + "]",
+          std::to_string(net.weights[l].rows()) + " x " + std::to_string(net.weights[l].cols()) + " (bias " +
+              std::to_string(net.biases[l].size()) + ")",
+          std::to_string(layers[l].width) + " x " + std::to_string(detail::weight_columns(layers[l])) + " (bias " +
+              std::to_string(layers[l].width) + ")");
     }
   }
   if (input.rows() != detail::eigen_index(stack.input_units()) || input.cols() == 0) {
-    throw std::invalid_argument(std::string(where) + ": argument 'input' has " + std::to_string(input.rows()) +
-                                " rows and " + std::to_string(input.cols()) + " columns, expected " +
-                                std::to_string(stack.input_units()) + " rows and at least one column");
+    detail::reject_argument<std::invalid_argument>(where, "input",
+                                                   std::to_string(input.rows()) + " x " + std::to_string(input.cols()),
+                                                   std::to_string(stack.input_units()) + " rows and at least one column");
   }
   if (output_gradient.rows() != detail::eigen_index(stack.layers().back().units()) ||
       output_gradient.cols() != input.cols()) {
-    throw std::invalid_argument(std::string(where) + ": argument 'output_gradient' is " +
-                                std::to_string(output_gradient.rows()) + " x " +
-                                std::to_string(output_gradient.cols()) + ", expected " +
-                                std::to_string(stack.layers().back().units()) + " x " + std::to_string(input.cols()));
+    detail::reject_argument<std::invalid_argument>(
+        where, "output_gradient", std::to_string(output_gradient.rows()) + " x " + std::to_string(output_gradient.cols()),
+        std::to_string(stack.layers().back().units()) + " x " + std::to_string(input.cols()));
   }
   const Eigen::Index batch = input.cols();
   pass_record rec;
@@ -513,14 +513,15 @@ propagation_report compare_propagation(const layer_stack& stack, const std::vect
   const auto& layers = stack.layers();
   const std::size_t n = layers.size();
   if (predicted.size() != n) {
-    throw std::invalid_argument(std::string(where) + ": argument 'predicted' has " + std::to_string(predicted.size()) +
-                                " rows, expected " + std::to_string(n) + " (one per layer of the stack)");
+    detail::reject_argument<std::invalid_argument>(where, "predicted", std::to_string(predicted.size()) + " rows",
+                                                   std::to_string(n) + " (one per layer of the stack)");
   }
   for (std::size_t l = 0; l < n; ++l) {
     if (predicted[l].width != layers[l].width) {
-      throw std::invalid_argument(std::string(where) + ": argument 'predicted' row " + std::to_string(l) +
-                                  " has width " + std::to_string(predicted[l].width) + ", expected " +
-                                  std::to_string(layers[l].width) + " (the stack's layer '" + layers[l].label + "')");
+      detail::reject_argument<std::invalid_argument>(where, "predicted[" + std::to_string(l) + "].width",
+                                                     std::to_string(predicted[l].width),
+                                                     std::to_string(layers[l].width) + " (the stack's layer '" +
+                                                         layers[l].label + "')");
     }
   }
   std::vector<detail::draw_moments> draws(options.trials);

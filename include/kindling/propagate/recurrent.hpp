@@ -243,23 +243,24 @@ inline recurrent_moments run_recurrent(const recurrent_cell& cell, const realize
   const auto T = static_cast<std::size_t>(cell.steps());
   if (net.input_weight.rows() != G * H || net.input_weight.cols() != n || net.recurrent_weight.rows() != G * H ||
       net.recurrent_weight.cols() != H || net.bias.size() != G * H) {
-    throw std::invalid_argument(std::string(where) + ": argument 'net' has weights of " +
-                                std::to_string(net.input_weight.rows()) + " x " + std::to_string(net.input_weight.cols()) +
-                                " and " + std::to_string(net.recurrent_weight.rows()) + " x " +
-                                std::to_string(net.recurrent_weight.cols()) + ", expected " + std::to_string(G * H) +
-                                " x " + std::to_string(n) + " and " + std::to_string(G * H) + " x " + std::to_string(H));
+    detail::reject_argument<std::invalid_argument>(
+        where, "net",
+        "weights of " + std::to_string(net.input_weight.rows()) + " x " + std::to_string(net.input_weight.cols()) +
+            " and " + std::to_string(net.recurrent_weight.rows()) + " x " + std::to_string(net.recurrent_weight.cols()) +
+            " and a bias of " + std::to_string(net.bias.size()),
+        std::to_string(G * H) + " x " + std::to_string(n) + " and " + std::to_string(G * H) + " x " +
+            std::to_string(H) + " and " + std::to_string(G * H));
   }
   if (input.rows() != n * static_cast<Eigen::Index>(T) || input.cols() == 0) {
-    throw std::invalid_argument(std::string(where) + ": argument 'input' has " + std::to_string(input.rows()) +
-                                " rows and " + std::to_string(input.cols()) + " columns, expected " +
-                                std::to_string(n * static_cast<Eigen::Index>(T)) + " rows (steps x input_width) and at "
-                                "least one column");
+    detail::reject_argument<std::invalid_argument>(
+        where, "input", std::to_string(input.rows()) + " x " + std::to_string(input.cols()),
+        std::to_string(n * static_cast<Eigen::Index>(T)) + " rows (steps x input_width) and at least one column");
   }
   const Eigen::Index B = input.cols();
   if (output_gradient.rows() != H || output_gradient.cols() != B) {
-    throw std::invalid_argument(std::string(where) + ": argument 'output_gradient' is " +
-                                std::to_string(output_gradient.rows()) + " x " + std::to_string(output_gradient.cols()) +
-                                ", expected " + std::to_string(H) + " x " + std::to_string(B));
+    detail::reject_argument<std::invalid_argument>(
+        where, "output_gradient", std::to_string(output_gradient.rows()) + " x " + std::to_string(output_gradient.cols()),
+        std::to_string(H) + " x " + std::to_string(B));
   }
   const bool lstm = cell.kind() == cell_kind::lstm;
   recurrent_moments m;
@@ -396,10 +397,11 @@ recurrent_report compare_recurrent(const recurrent_cell& measured, const recurre
   constexpr const char* where = "kindling::compare_recurrent";
   if (predicted.kind() != measured.kind() || predicted.hidden() != measured.hidden() ||
       predicted.input_width() != measured.input_width() || predicted.steps() != measured.steps()) {
-    throw std::invalid_argument(std::string(where) + ": argument 'predicted' is a " + cell_kind_name(predicted.kind()) +
-                                " cell of hidden " + std::to_string(predicted.hidden()) + ", expected the kind and sizes "
-                                "of argument 'measured' (" + cell_kind_name(measured.kind()) + ", hidden " +
-                                std::to_string(measured.hidden()) + ")");
+    detail::reject_argument<std::invalid_argument>(
+        where, "predicted",
+        std::string("a ") + cell_kind_name(predicted.kind()) + " cell of hidden " + std::to_string(predicted.hidden()),
+        std::string("the kind and sizes of argument 'measured' (") + cell_kind_name(measured.kind()) + ", hidden " +
+            std::to_string(measured.hidden()) + ")");
   }
   detail::check_measure_options(measure_options{{}, options.trials, options.false_alarm, options.finite_width_allowance},
                                 where);

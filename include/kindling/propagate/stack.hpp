@@ -70,10 +70,10 @@ double checked_moment(const F& f, std::optional<double> kink, double variance, c
     ok = std::isfinite(scale) && tail <= 1e-12 * scale;
   }
   if (!ok) {
-    throw std::domain_error(std::string(where) + ": " + what + " of activation '" + name +
-                            "' at variance " + argument_text(variance) +
-                            " does not exist (the integrand does not decay under the normal "
-                            "density), expected an activation with finite second moments");
+    reject_argument<std::domain_error>(where, "variance", argument_text(variance),
+                                       std::string("a variance at which ") + what + " of activation '" + name +
+                                           "' exists (here it does not exist: the integrand does not decay under the normal "
+                                           "density)");
   }
   return m;
 }
@@ -93,13 +93,12 @@ class nonlinearity {
                              std::function<double(double)> derivative,
                              std::optional<double> kink = std::nullopt) {
     if (!phi || !derivative) {
-      throw std::invalid_argument("kindling::nonlinearity::custom: argument '" +
-                                  std::string(!phi ? "phi" : "derivative") +
-                                  "' is empty, expected a callable");
+      detail::reject_argument<std::invalid_argument>("kindling::nonlinearity::custom", !phi ? "phi" : "derivative",
+                                                     "an empty function", "a callable");
     }
     if (kink && !std::isfinite(*kink)) {
-      throw std::domain_error("kindling::nonlinearity::custom: argument 'kink' = " +
-                              detail::argument_text(*kink) + ", expected a finite number");
+      detail::reject_argument<std::domain_error>("kindling::nonlinearity::custom", "kink", detail::argument_text(*kink),
+                                                 "a finite number");
     }
     return nonlinearity(std::move(name), std::move(phi), std::move(derivative), kink);
   }
@@ -343,10 +342,10 @@ class layer_stack {
     constexpr const char* where = "kindling::layer_stack::add_convolution";
     require_channels(conv, where);
     if (top_extent().empty()) {
-      throw std::invalid_argument(std::string(where) +
-                                  ": argument 'geometry' places the convolution on a feature map, but the top of "
-                                  "the stack has no spatial extent, expected a stack built with an input extent "
-                                  "and no dense layer below the convolution");
+      detail::reject_argument<std::invalid_argument>(
+          where, "geometry", "a placement on a feature map",
+          "a stack whose top has a spatial extent (built with an input extent and no dense layer below the "
+          "convolution)");
     }
     convolution_map placed(conv, top_extent(), geometry);
     const double v = weight_variance_of(scheme, conv.layer_fans());
@@ -381,9 +380,9 @@ class layer_stack {
                                       std::string label = {}) {
     constexpr const char* where = "kindling::layer_stack::add_projected_residual";
     if (!top_extent().empty() || (!branch.empty() && !branch.top_extent().empty())) {
-      throw std::invalid_argument(std::string(where) +
-                                  ": argument 'branch' starts or ends on a feature map, expected a projection skip "
-                                  "between features (use add_residual for an identity skip on maps)");
+      detail::reject_argument<std::invalid_argument>(
+          where, "branch", "a branch that starts or ends on a feature map",
+          "a projection skip between features (use add_residual for an identity skip on maps)");
     }
     const std::uint64_t in = top_features();
     const std::uint64_t out = branch.empty() ? 0 : branch.top_width();
@@ -433,8 +432,7 @@ class layer_stack {
   /// Throws std::invalid_argument naming `where` if the stack has no layers.
   void require_layers(const char* where) const {
     if (layers_.empty()) {
-      throw std::invalid_argument(std::string(where) +
-                                  ": argument 'stack' has no layers, expected at least one");
+      detail::reject_argument<std::invalid_argument>(where, "stack", "a stack of no layers", "at least one layer");
     }
   }
 
@@ -466,28 +464,30 @@ class layer_stack {
                        const stack_layer* projection) {
     const char* where = projection ? "kindling::layer_stack::add_projected_residual" : "kindling::layer_stack::add_residual";
     if (branch.empty()) {
-      throw std::invalid_argument(std::string(where) + ": argument 'branch' has no layers, expected at least one");
+      detail::reject_argument<std::invalid_argument>(where, "branch", "a branch of no layers", "at least one layer");
     }
     if (branch.input_width() != top_width() || branch.input_extent() != top_extent()) {
-      throw std::invalid_argument(std::string(where) + ": argument 'branch' reads " +
-                                  std::to_string(branch.input_width()) + " channels over extent " +
-                                  detail::shape_text(branch.input_extent()) + ", expected the top of the stack, " +
-                                  std::to_string(top_width()) + " over " + detail::shape_text(top_extent()));
+      detail::reject_argument<std::invalid_argument>(
+          where, "branch",
+          "a branch reading " + std::to_string(branch.input_width()) + " channels over extent " +
+              detail::shape_text(branch.input_extent()),
+          "the top of the stack, " + std::to_string(top_width()) + " over " + detail::shape_text(top_extent()));
     }
     if (!projection && (branch.top_width() != top_width() || branch.top_extent() != top_extent())) {
-      throw std::invalid_argument(std::string(where) + ": argument 'branch' ends in " +
-                                  std::to_string(branch.top_width()) + " channels over extent " +
-                                  detail::shape_text(branch.top_extent()) + ", expected " +
-                                  std::to_string(top_width()) + " over " + detail::shape_text(top_extent()) +
-                                  " to match its identity skip (add_projected_residual projects the skip)");
+      detail::reject_argument<std::invalid_argument>(
+          where, "branch",
+          "a branch ending in " + std::to_string(branch.top_width()) + " channels over extent " +
+              detail::shape_text(branch.top_extent()),
+          std::to_string(top_width()) + " over " + detail::shape_text(top_extent()) +
+              " to match its identity skip (add_projected_residual projects the skip)");
     }
     if (scaling.blocks == 0) {
-      throw std::invalid_argument(std::string(where) + ": argument 'scaling.blocks' = 0, expected at least 1");
+      detail::reject_argument<std::invalid_argument>(where, "scaling.blocks", "0", "at least 1");
     }
     const std::size_t m = branch.depth();
     if (scaling.kind == residual_scaling::rule::fixup && m < 2) {
-      throw std::invalid_argument(std::string(where) + ": argument 'branch' has 1 layer, expected at least 2 for "
-                                  "Fixup's rule (its exponent -1/(2m-2) needs m >= 2)");
+      detail::reject_argument<std::invalid_argument>(
+          where, "branch", "a branch of 1 layer", "at least 2 layers for Fixup's rule (its exponent -1/(2m-2) needs m >= 2)");
     }
     std::size_t blocks_so_far = 0;
     for (const stack_layer& l : layers_) blocks_so_far += l.residual;
@@ -538,10 +538,8 @@ class layer_stack {
 
   void require_channels(const convolution& conv, const char* where) const {
     if (conv.in_channels() != top_width()) {
-      throw std::invalid_argument(std::string(where) + ": argument 'conv' has in_channels = " +
-                                  std::to_string(conv.in_channels()) +
-                                  ", expected the width of the layer below, " +
-                                  std::to_string(top_width()));
+      detail::reject_argument<std::invalid_argument>(where, "conv.in_channels", std::to_string(conv.in_channels()),
+                                                     "the width of the layer below, " + std::to_string(top_width()));
     }
   }
 
@@ -554,18 +552,19 @@ class layer_stack {
 /// Fixed normal weights: stddev^2. The analyses assume zero-mean weights.
 inline double weight_variance_of(const fixed_normal& s, const fans&) {
   if (s.mean != 0.0) {
-    throw std::domain_error("kindling::weight_variance_of: argument 'scheme' is fixed_normal with mean = " +
-                            detail::argument_text(s.mean) + ", expected mean 0 (propagation assumes "
-                            "zero-mean weights)");
+    detail::reject_argument<std::domain_error>("kindling::weight_variance_of", "scheme.mean",
+                                               detail::argument_text(s.mean),
+                                               "0 (propagation assumes zero-mean weights)");
   }
   return s.stddev * s.stddev;
 }
 /// Fixed uniform weights on [lo, hi) with lo = -hi: (hi - lo)^2 / 12.
 inline double weight_variance_of(const fixed_uniform& s, const fans&) {
   if (s.lo != -s.hi) {
-    throw std::domain_error("kindling::weight_variance_of: argument 'scheme' is fixed_uniform on [" +
-                            detail::argument_text(s.lo) + ", " + detail::argument_text(s.hi) +
-                            "), expected a range symmetric about 0 (zero-mean weights)");
+    detail::reject_argument<std::domain_error>(
+        "kindling::weight_variance_of", "scheme",
+        "fixed_uniform on [" + detail::argument_text(s.lo) + ", " + detail::argument_text(s.hi) + ")",
+        "a range symmetric about 0 (zero-mean weights)");
   }
   return (s.hi - s.lo) * (s.hi - s.lo) / 12.0;
 }

@@ -24,9 +24,9 @@ namespace kindling {
 namespace detail {
 inline void require_vector(const shape& global, const char* rule) {
   if (global.rank() != 1) {
-    throw std::invalid_argument(std::string("kindling::") + rule + ": argument 'shape' = " + global.text() +
-                                ", expected a bias vector (rank 1, or for initialize_bias one row or one "
-                                "column, such as an Eigen vector)");
+    reject_argument<std::invalid_argument>(rule, "shape", global.text(),
+                                           "a bias vector (rank 1, or for initialize_bias one row or one "
+                                           "column, such as an Eigen vector)");
   }
 }
 
@@ -44,8 +44,7 @@ strided_view<E> as_bias_vector(const strided_view<E>& v) {
 }
 inline void require_probability(double p, const char* rule, const char* argument) {
   if (!std::isfinite(p) || !(p > 0) || !(p < 1)) {
-    throw std::domain_error(std::string("kindling::") + rule + ": argument '" + argument + "' = " +
-                            argument_text(p) + ", expected a probability strictly between 0 and 1");
+    reject_argument<std::domain_error>(rule, argument, argument_text(p), "a probability strictly between 0 and 1");
   }
 }
 // log(p / (1 - p)) with the library's own log, so the bias has the same bits everywhere.
@@ -105,13 +104,13 @@ struct forget_gate_bias {
     detail::require_vector(g, "forget_gate_bias");
     detail::require_finite_argument(value, "forget_gate_bias", "value");
     if (blocks == 0 || g[0] % blocks != 0) {
-      throw std::invalid_argument("kindling::forget_gate_bias: argument 'blocks' = " + std::to_string(blocks) +
-                                  ", expected a divisor >= 1 of the bias length " + std::to_string(g[0]));
+      detail::reject_argument<std::invalid_argument>("kindling::forget_gate_bias", "blocks", std::to_string(blocks),
+                                                     "a divisor >= 1 of the bias length " + std::to_string(g[0]));
     }
     if (forget_block >= blocks) {
-      throw std::invalid_argument("kindling::forget_gate_bias: argument 'forget_block' = " +
-                                  std::to_string(forget_block) + ", expected a block index below " +
-                                  std::to_string(blocks));
+      detail::reject_argument<std::invalid_argument>("kindling::forget_gate_bias", "forget_block",
+                                                     std::to_string(forget_block),
+                                                     "a block index below " + std::to_string(blocks));
     }
   }
   template <class E, class Exec>

@@ -133,10 +133,10 @@ struct he_arguments {};  // tag of every he_arguments_of
 inline double he_slope(const activation& a, const char* scheme) {
   if (a.kind() == activation_kind::relu) return 0;
   if (a.kind() == activation_kind::leaky_relu) return a.parameter();
-  throw std::invalid_argument(std::string("kindling::") + scheme + ": argument 'activation' = " +
-                              std::string(a.name()) +
-                              ", expected relu or leaky_relu (the rectifiers He et al. derive the variance for); "
-                              "for another activation use glorot_uniform or glorot_normal with that activation");
+  detail::reject_argument<std::invalid_argument>(
+      scheme, "activation", a.name(),
+      "relu or leaky_relu (the rectifiers He et al. derive the variance for); "
+      "for another activation use glorot_uniform or glorot_normal with that activation");
 }
 
 // Lets a catch-all constructor of the named schemes take what is neither a number nor an

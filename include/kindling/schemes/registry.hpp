@@ -237,32 +237,33 @@ inline bool rule_holds(argument_rule r, double x) {
 
 /// The scheme `name` with the `given` arguments, checked against the registry: an unknown
 /// name, an argument the scheme does not take, a repeated or missing one, or a value
-/// outside its rule is std::invalid_argument naming `what` (the user's key or option,
-/// e.g. "layers[2].scheme"), the value and what was expected.
+/// outside its rule is std::invalid_argument, "<what>: kindling::make_scheme_value:
+/// argument '<key>' = <value>, expected <what was>", `what` being the user's key or
+/// option (e.g. "layers[2].scheme").
 inline scheme_value make_scheme_value(const std::string& name, const scheme_arguments_list& given,
                                       const std::string& what = "scheme") {
+  // `what` (the user's key) stands before the message, as a plan's parameter name does.
+  const auto reject = [&](const std::string& key, const std::string& value, const std::string& expected) {
+    throw std::invalid_argument(what + ": " +
+                                detail::argument_message("kindling::make_scheme_value", key, value, expected));
+  };
   const scheme_entry* e = find_scheme_entry(name);
-  if (e == nullptr) {
-    throw std::invalid_argument(what + " '" + name + "' is not a scheme, expected one of " + scheme_names_text());
-  }
+  if (e == nullptr) reject("name", "'" + name + "'", "a scheme, one of " + scheme_names_text());
   for (std::size_t i = 0; i < given.size(); ++i) {
     const std::string& key = given[i].first;
+    const std::string value = detail::argument_text(given[i].second);
     const scheme_argument* a = e->argument(key);
     if (a == nullptr) {
       std::string keys;
       for (const scheme_argument& k : e->arguments) keys += (keys.empty() ? "" : ", ") + std::string(k.key);
-      throw std::invalid_argument(what + ": argument '" + key + "' does not apply to scheme '" + name +
-                                  "', expected " + (keys.empty() ? "no arguments" : "one of " + keys));
+      reject(key, value,
+             "an argument of scheme '" + name + "': " + (keys.empty() ? "it takes none" : "one of " + keys));
     }
     for (std::size_t j = 0; j < i; ++j) {
-      if (given[j].first == key) {
-        throw std::invalid_argument(what + ": argument '" + key + "' of scheme '" + name +
-                                    "' is given twice, expected it once");
-      }
+      if (given[j].first == key) reject(key, value, "one value for scheme '" + name + "' (the argument is given twice)");
     }
     if (!detail::rule_holds(a->rule, given[i].second)) {
-      throw std::invalid_argument(what + ": argument '" + key + "' of scheme '" + name + "' = " +
-                                  detail::argument_text(given[i].second) + ", expected " + detail::rule_text(a->rule));
+      reject(key, value, detail::rule_text(a->rule) + " for scheme '" + name + "'");
     }
   }
   scheme_arguments_list resolved;
@@ -270,8 +271,7 @@ inline scheme_value make_scheme_value(const std::string& name, const scheme_argu
     std::optional<double> v = detail::find_argument(given, a.key);
     if (!v) v = a.default_value;
     if (!v && a.required) {
-      throw std::invalid_argument(what + ": scheme '" + name + "' needs argument '" + a.key + "', expected " +
-                                  detail::rule_text(a.rule));
+      reject(a.key, "(none)", detail::rule_text(a.rule) + ": scheme '" + name + "' needs argument '" + a.key + "'");
     }
     if (v) resolved.emplace_back(a.key, *v);
   }
@@ -287,8 +287,10 @@ inline scheme_value parse_scheme(const std::string& text, const std::string& wha
     return s.substr(a, s.find_last_not_of(" \t") - a + 1);
   };
   const auto bad = [&](const std::string& why) {
-    return std::invalid_argument(what + " '" + text + "': " + why +
-                                 "; expected a scheme name, optionally with arguments, e.g. glorot-uniform(gain=1.5)");
+    return std::invalid_argument(
+        what + ": " +
+        detail::argument_message("kindling::parse_scheme", "text", "'" + text + "'",
+                                 "a scheme name, optionally with arguments, e.g. glorot-uniform(gain=1.5) (" + why + ")"));
   };
   const std::size_t open = text.find('(');
   const std::string name = trim(text.substr(0, open));

@@ -75,7 +75,8 @@ TEST_CASE("initialize_model gives every parameter the bits of its own initialize
   CHECK_THROWS_WITH_AS(initialize_model(plan, 42, [&](const model_parameter&) -> any_tensor_view {
                          return strided_view<double>(whh.data(), shape{48, 16});
                        }),
-                       doctest::Contains("parameter 'conv1.weight': the storage holds f64 elements, expected f32"),
+                       doctest::Contains("kindling::initialize_parameter: argument 'v' = a view of f64 elements, expected f32 "
+                                         "elements, the element type of parameter 'conv1.weight'"),
                        std::invalid_argument);
 }
 
@@ -148,12 +149,13 @@ TEST_CASE("bad plans are refused, naming the key, the value and what was expecte
   CHECK(has(plan_error(R"j({"parameters": [{"name": "a", "scheme": "zeros", "shape": [4, 2], )j" + dense + "}]}"),
             "'parameters[0].shape' = [4,2], expected the layer's shape [2,4]"));
   CHECK(has(plan_error(R"j({"parameters": [{"name": "a", "scheme": "he-normal(gain=0)", )j" + dense + "}]}"),
-            "'parameters[0].scheme': argument 'gain' of scheme 'he-normal' = 0"));
+            "'parameters[0].scheme': kindling::make_scheme_value: argument 'gain' = 0, expected a number > 0 whose "
+            "square is finite"));
   CHECK(has(plan_error(R"j({"parameters": [{"name": "a", "scheme": "zeros", "colour": 1, )j" + dense + "}]}"),
             "unknown key 'parameters[0].colour'"));
   CHECK(has(plan_error(R"j({"parameters": [{"name": "a", "scheme": "zeros", "dtype": "i8", )j" + dense + "}]}"),
             "'parameters[0].dtype' = \"i8\", expected f32, f64, f16 or bf16"));
   CHECK(has(plan_error(R"j({"parameters": [{"name": "a", "scheme": "zeros", "layer": {"kind": "packed", "blocks": 3, "in": 2, "block_out": 2, "order": ["r"]}}]})j"),
-            "gate_order has 1 labels, expected one for each block"));
+            "parameter 'a': kindling::check_plan: argument 'gate_order' = 1 labels, expected one label for each block"));
   CHECK(has(plan_error(R"j({"seed": -1, "parameters": []})j"), "'seed' = -1"));
 }

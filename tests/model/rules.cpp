@@ -146,7 +146,8 @@ TEST_CASE("apply_rules: a pattern that matches no parameter is an error naming t
   CHECK(has(e, "rules[1] '**.bais' matches no parameter"));
   CHECK(has(rules_error({{"a", {4}}}, {rule("a", nullptr)}), "rules[0] 'a' sets nothing"));
   CHECK(has(rules_error({{"a", {4}}}, {rule("a**", "zeros", layer_kind::bias), rule("***", "zeros")}),
-            "rules[1] '***': name pattern"));
+            "rules[1] '***': kindling::name_pattern: argument 'text' = '***', expected '*' (within one segment) or "
+            "'**' (across segments), not 3 '*' in a row"));
 }
 
 TEST_CASE("layer templates: the shape gives the sizes in every layout, or the error says why not") {
@@ -176,10 +177,12 @@ TEST_CASE("layer templates: the shape gives the sizes in every layout, or the er
   d.layout = weight_layout::in_out;
   CHECK(std::get<dense>(d.make({128, 64})).out_features() == 64);
   CHECK(std::get<embedding>(layer_template{layer_kind::embedding}.make({1000, 32})).vocabulary() == 1000);
-  CHECK_THROWS_WITH(layer_template{layer_kind::dense}.make({4, 4, 4}), doctest::Contains("rank 3 cannot be a dense layer"));
+  CHECK_THROWS_WITH(layer_template{layer_kind::dense}.make({4, 4, 4}), doctest::Contains("kindling::layer_template::make: argument 'shape' = [4, 4, 4] (rank 3), expected rank 2 "
+                                      "for a dense layer"));
   layer_template p{layer_kind::packed};
   p.blocks = 4;
-  CHECK_THROWS_WITH(p.make({30, 8}), doctest::Contains("30 stacked rows do not split into 4 equal blocks"));
+  CHECK_THROWS_WITH(p.make({30, 8}), doctest::Contains("argument 'shape' = [30, 8] (30 stacked rows), expected stacked rows that split into 4 "
+                                                   "equal blocks"));
   const std::string e = rules_error({{"x.weight", {4, 4, 4}}}, {rule("x.*", "he-normal", layer_kind::dense)});
   CHECK(has(e, "parameter 'x.weight' (layer from rules[0] 'x.*')"));
 }
