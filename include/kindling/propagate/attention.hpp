@@ -336,11 +336,8 @@ struct attention_report {
   /// A plain-text table with the columns of propagation_report::table() (the backward
   /// ones "-": forward only); the softmax row's moment is the concentration E[sum p^2].
   std::string table() const {
-    std::string s;
+    std::string s = detail::measured_table_header();
     char line[512];
-    std::snprintf(line, sizeof line, "%-10s %6s %11s %11s %7s %11s %11s %7s  %s\n", "layer", "width", "fwd_var",
-                  "fwd_med", "x/", "bwd_var", "bwd_med", "x/", "agrees");
-    s += line;
     for (const auto& r : rows) {
       char planned[32];
       if (std::isnan(r.planned)) std::snprintf(planned, sizeof planned, "measured");
@@ -407,16 +404,7 @@ attention_report compare_attention(const attention_block& measured, const attent
                                 ", " + std::to_string(measured.heads()) + " heads, length " +
                                 std::to_string(measured.length()) + ")");
   }
-  detail::check_measure_options(measure_options{{}, options.trials, options.false_alarm, options.finite_width_allowance},
-                                where);
-  if (!(std::isfinite(options.input_second_moment) && options.input_second_moment > 0.0)) {
-    throw std::domain_error(std::string(where) + ": argument 'options.input_second_moment' = " +
-                            detail::argument_text(options.input_second_moment) + ", expected a finite number > 0");
-  }
-  if (batch < 1) {
-    throw std::invalid_argument(std::string(where) + ": argument 'batch' = " + std::to_string(batch) +
-                                ", expected at least 1 sequence a draw");
-  }
+  detail::check_fed_pass_options(options, batch, "sequence", where);
   attention_report report;
   report.trials = options.trials;
   report.batch = batch;

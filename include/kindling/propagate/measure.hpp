@@ -308,6 +308,14 @@ inline std::string moment_verdict(const char* pass, const measured_moment& m) {
          ratio_text(m.median) + " against " + ratio_text(m.predicted) + "), outside the band x/" +
          ratio_text(std::exp(m.tolerance)) + " (one draw varies by x/" + ratio_text(std::exp(m.spread)) + ")";
 }
+// The header line of the measured tables (propagation, recurrent, attention).
+inline std::string measured_table_header() {
+  char line[160];
+  std::snprintf(line, sizeof line, "%-10s %6s %11s %11s %7s %11s %11s %7s  %s\n", "layer", "width", "fwd_var",
+                "fwd_med", "x/", "bwd_var", "bwd_med", "x/", "agrees");
+  return line;
+}
+
 }  // namespace detail
 
 struct propagation_report {
@@ -341,11 +349,8 @@ struct propagation_report {
   }
   /// A plain-text table, one row a layer, the same columns as `kindling plan --measure`.
   std::string table() const {
-    std::string s;
+    std::string s = detail::measured_table_header();
     char line[512];
-    std::snprintf(line, sizeof line, "%-10s %6s %11s %11s %7s %11s %11s %7s  %s\n", "layer", "width", "fwd_var",
-                  "fwd_med", "x/", "bwd_var", "bwd_med", "x/", "agrees");
-    s += line;
     for (std::size_t i = 0; i < layers.size(); ++i) {
       const layer_comparison& l = layers[i];
       std::snprintf(line, sizeof line, "%-10s %6llu %11.4g %11.4g %7.3g %11.4g %11.4g %7.3g  %s\n",
@@ -490,6 +495,22 @@ inline void check_measure_options(const measure_options& o, const char* where) {
   if (!(std::isfinite(o.finite_width_allowance) && o.finite_width_allowance >= 0.0)) {
     throw std::domain_error(std::string(where) + ": argument 'options.finite_width_allowance' = " +
                             argument_text(o.finite_width_allowance) + ", expected a finite number >= 0");
+  }
+}
+
+// The options of a pass fed one input moment (compare_recurrent, compare_attention):
+// those of every measured pass, the input's second moment, and the batch (`unit`: what
+// one element of the batch is, in the message).
+template <class Options>
+void check_fed_pass_options(const Options& o, std::uint64_t batch, const char* unit, const char* where) {
+  check_measure_options(measure_options{{}, o.trials, o.false_alarm, o.finite_width_allowance}, where);
+  if (!(std::isfinite(o.input_second_moment) && o.input_second_moment > 0.0)) {
+    throw std::domain_error(std::string(where) + ": argument 'options.input_second_moment' = " +
+                            argument_text(o.input_second_moment) + ", expected a finite number > 0");
+  }
+  if (batch < 1) {
+    throw std::invalid_argument(std::string(where) + ": argument 'batch' = " + std::to_string(batch) +
+                                ", expected at least 1 " + unit + " a draw");
   }
 }
 

@@ -403,16 +403,7 @@ recurrent_report compare_recurrent(const recurrent_cell& measured, const recurre
         std::string("the kind and sizes of argument 'measured' (") + cell_kind_name(measured.kind()) + ", hidden " +
             std::to_string(measured.hidden()) + ")");
   }
-  detail::check_measure_options(measure_options{{}, options.trials, options.false_alarm, options.finite_width_allowance},
-                                where);
-  if (!(std::isfinite(options.input_second_moment) && options.input_second_moment > 0.0)) {
-    throw std::domain_error(std::string(where) + ": argument 'options.input_second_moment' = " +
-                            detail::argument_text(options.input_second_moment) + ", expected a finite number > 0");
-  }
-  if (batch < 1) {
-    throw std::invalid_argument(std::string(where) + ": argument 'batch' = " + std::to_string(batch) +
-                                ", expected at least 1 sample a draw");
-  }
+  detail::check_fed_pass_options(options, batch, "sample", where);
   recurrent_report report;
   report.trials = options.trials;
   report.batch = batch;
