@@ -95,6 +95,13 @@ void checkpoint::read_into(const tensor& t, char* out) const {
   st_->read(*st_->index().find(t.name), 0, out, static_cast<std::size_t>(t.bytes));
 }
 
+std::shared_ptr<const char> checkpoint::map(const tensor& t) const {
+  if (!st_) return nullptr;
+  auto range = std::make_shared<mapped_range>(st_->map(*st_->index().find(t.name)));
+  if (!*range) return nullptr;
+  return std::shared_ptr<const char>(range, range->data());  // owns the mapping, points at the bytes
+}
+
 progress_line::progress_line(std::string command) : command_(std::move(command)), active_(::isatty(2) == 1) {}
 
 progress_line::~progress_line() { clear(); }

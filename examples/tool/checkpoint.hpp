@@ -46,6 +46,10 @@ class checkpoint {
   /// several threads at once). A safetensors tensor goes from the file straight into
   /// `out`, with no staging buffer; an .npz member through its checked stream.
   void read_into(const tensor& t, char* out) const;
+  /// Tensor t's little-endian bytes mapped read-only in place (no copy), kept mapped as
+  /// long as the pointer lives; null for an .npz member or when the system refuses the
+  /// mapping (then use read_into). Safe to call from several threads at once.
+  std::shared_ptr<const char> map(const tensor& t) const;
 
  private:
   std::unique_ptr<safetensors_reader> st_;

@@ -265,6 +265,13 @@ audit_report scheme_report(const model_parameter& p, std::uint64_t seed, const s
 // reused for every later one. A fresh tensor-sized allocation per tensor made the kernel
 // map, clear and unmap its pages each time (about a fifth of a whole-model audit's time,
 // bench/RESULTS.md); reused, its pages are touched once. Peak: the largest tensor.
+bool host_is_little_endian() noexcept {
+  const std::uint16_t one = 1;
+  unsigned char first = 0;
+  std::memcpy(&first, &one, 1);
+  return first == 1;
+}
+
 class tensor_buffer {
  public:
   // Storage for `bytes` bytes, suitably aligned for any element type (new[] of unsigned
@@ -288,13 +295,23 @@ void audit_values(const checkpoint& file, const checkpoint::tensor& t, const mod
                   tensor_buffer& buffer, double alpha, tensor_verdict* out) {
   const std::vector<std::uint64_t> s = p.full_shape();
   const auto count = static_cast<std::size_t>(t.bytes / sizeof(E));
-  // The tensor is read once, from the file straight into the thread's reused buffer as
-  // elements of type E, then put in the host's byte order in place (a no-op on a
-  // little-endian host): no staging copy, no per-tensor allocation.
-  E* values = reinterpret_cast<E*>(buffer.take(count * sizeof(E)));
-  std::uninitialized_default_construct_n(values, count);  // trivial: begins their lifetime, writes nothing
-  file.read_into(t, reinterpret_cast<char*>(values));
-  to_little_endian(reinterpret_cast<unsigned char*>(values), count, sizeof(E));
+  // On a little-endian host a safetensors tensor is audited in place, mapped from the
+  // file: no copy at all. Otherwise (an .npz member, a big-endian host, a mapping the
+  // system refuses or one not aligned for E) it is read once, from the file straight
+  // into the thread's reused buffer as elements of type E, then put in the host's byte
+  // order in place: no staging copy, no per-tensor allocation.
+  std::shared_ptr<const char> mapped;
+  if (host_is_little_endian()) mapped = file.map(t);
+  const E* values = nullptr;
+  if (mapped && reinterpret_cast<std::uintptr_t>(mapped.get()) % alignof(E) == 0) {
+    values = reinterpret_cast<const E*>(mapped.get());
+  } else {
+    E* read = reinterpret_cast<E*>(buffer.take(count * sizeof(E)));
+    std::uninitialized_default_construct_n(read, count);  // trivial: begins their lifetime, writes nothing
+    file.read_into(t, reinterpret_cast<char*>(read));
+    to_little_endian(reinterpret_cast<unsigned char*>(read), count, sizeof(E));
+    values = read;
+  }
   const strided_view<const E> v(values, shape(s.begin(), s.end()));
   const audit_report r = scheme_report<E>(p, seed, v, count, alpha);
   out->reports.push_back(report_json("scheme", r));

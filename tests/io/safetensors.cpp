@@ -13,6 +13,8 @@
 #include <string>
 #include <vector>
 
+#include <unistd.h>
+
 #include "kindling/io/safetensors.hpp"
 
 using namespace kindling;
@@ -81,6 +83,33 @@ TEST_CASE("safetensors: written tensors read back, byte for byte, in the format'
   std::uint64_t n = 0;
   for (int k = 7; k >= 0; --k) n = (n << 8) | len[k];
   CHECK(n + 8 == r.index().data_start);
+  std::remove(path.c_str());
+}
+
+TEST_CASE("safetensors: a tensor mapped in place holds the bytes read() gives, and a shrunk file is not mapped") {
+  const std::string path = "st_map.safetensors";
+  std::vector<double> b(300000);  // spans many pages, starting inside the header's page
+  for (std::size_t i = 0; i < b.size(); ++i) b[i] = static_cast<double>(i) * 0.25 - 7;
+  std::vector<safetensors_source> src(2);
+  src[0] = {"belt.bias", tensor_dtype::f32, {3}, [](std::uint64_t, char* buf, std::size_t n) { std::memset(buf, 1, n); }};
+  src[1] = {"belt.weight", tensor_dtype::f64, {300000},
+            [&](std::uint64_t off, char* buf, std::size_t n) { std::memcpy(buf, reinterpret_cast<char*>(b.data()) + off, n); }};
+  write_safetensors(path, src);
+  {
+    safetensors_reader r(path);
+    const safetensors_entry& w = *r.index().find("belt.weight");
+    const mapped_range m = r.map(w);
+    REQUIRE(static_cast<bool>(m));
+    std::vector<char> read(w.end - w.begin);
+    r.read(w, 0, read.data(), read.size());
+    CHECK(std::memcmp(m.data(), read.data(), read.size()) == 0);
+    // Shrunk by another process after opening: not mapped (a mapping would fault on the
+    // lost pages), and read() says the file shrank.
+    REQUIRE(::truncate(path.c_str(), static_cast<off_t>(r.index().data_start + w.begin + 8)) == 0);
+    CHECK_FALSE(static_cast<bool>(r.map(w)));
+    CHECK_THROWS_WITH_AS(r.read(w, 0, read.data(), read.size()), doctest::Contains("file shrank?"), std::invalid_argument);
+    CHECK(std::memcmp(m.data(), read.data(), 8) == 0);  // the first page of the old mapping is still there
+  }
   std::remove(path.c_str());
 }
 

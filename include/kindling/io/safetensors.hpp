@@ -35,6 +35,7 @@
 #include <vector>
 
 #include <fcntl.h>
+#include <sys/mman.h>
 #include <sys/stat.h>
 #include <unistd.h>
 
@@ -217,6 +218,51 @@ inline safetensors_index parse_safetensors_header(const std::string& text, std::
   return index;
 }
 
+/// A range of a file mapped read-only into memory (POSIX mmap), or nothing (false) when
+/// the system refuses the mapping. Reading a tensor in place this way costs no copy
+/// (the kernel's copy of each page was a tenth of a whole-checkpoint audit's time,
+/// bench/RESULTS.md). A file truncated by another process while it is mapped makes a
+/// later access to the lost pages raise SIGBUS; reads through read() report it instead.
+class mapped_range {
+ public:
+  mapped_range() = default;
+  mapped_range(int fd, std::uint64_t at, std::size_t size) {
+    const auto page = static_cast<std::uint64_t>(::sysconf(_SC_PAGESIZE));
+    if (size == 0 || page == 0) return;
+    const std::uint64_t start = at - at % page;
+    const std::size_t length = size + static_cast<std::size_t>(at - start);
+    int flags = MAP_PRIVATE;
+#ifdef MAP_POPULATE
+    flags |= MAP_POPULATE;  // map every page now: one call instead of a fault per page
+#endif
+    void* base = ::mmap(nullptr, length, PROT_READ, flags, fd, static_cast<off_t>(start));
+    if (base == MAP_FAILED) return;
+    base_ = base;
+    length_ = length;
+    data_ = static_cast<const char*>(base) + (at - start);
+  }
+  ~mapped_range() {
+    if (base_ != nullptr) ::munmap(base_, length_);
+  }
+  mapped_range(mapped_range&& o) noexcept : base_(o.base_), length_(o.length_), data_(o.data_) { o.base_ = nullptr; }
+  mapped_range& operator=(mapped_range&& o) noexcept {
+    std::swap(base_, o.base_);
+    std::swap(length_, o.length_);
+    std::swap(data_, o.data_);
+    return *this;
+  }
+  mapped_range(const mapped_range&) = delete;
+  mapped_range& operator=(const mapped_range&) = delete;
+
+  explicit operator bool() const noexcept { return base_ != nullptr; }
+  const char* data() const noexcept { return data_; }
+
+ private:
+  void* base_ = nullptr;
+  std::size_t length_ = 0;
+  const char* data_ = nullptr;
+};
+
 /// A safetensors file opened for reading: the header validated, tensors read by range.
 class safetensors_reader {
  public:
@@ -266,6 +312,15 @@ class safetensors_reader {
                               std::to_string(offset) + " outside tensor '" + e.name + "'");
     }
     read_at(index_.data_start + e.begin + offset, out, size);
+  }
+
+  /// Tensor `e`'s bytes mapped read-only in place (see mapped_range), or nothing when
+  /// the file is no longer as long as when it was opened or the system refuses the
+  /// mapping: then read() it.
+  mapped_range map(const safetensors_entry& e) const {
+    struct stat st {};
+    if (::fstat(fd_, &st) != 0 || static_cast<std::uint64_t>(st.st_size) < index_.data_start + e.end) return {};
+    return mapped_range(fd_, index_.data_start + e.begin, static_cast<std::size_t>(e.end - e.begin));
   }
 
  private:
