@@ -24,6 +24,7 @@
 
 #include "../../element.hpp"
 #include "../../fill.hpp"
+#include "../../random/detail/instruction_set.hpp"
 #include "../../view.hpp"
 
 namespace kindling::detail {
@@ -337,30 +338,55 @@ struct pattern_tally {
 // absolute sum, far below what the checks can see. NaNs are left out of the extremes
 // (x < lo is false for them) and counted by their keys. The caller corrects for the
 // rounded shift.
-inline void float_stretch(const float* p, std::ptrdiff_t step, std::uint64_t n, float shift, pattern_tally& out) {
+// The whole blocks of float_stretch from p[0] on, contiguous; returns how many values
+// they hold. Inlined into each caller, so the AVX2 caller below vectorizes it with
+// eight-float vectors: the same operations lane by lane (no fused multiply-add), so the
+// same sums bit for bit whichever runs.
+#if defined(__GNUC__)
+__attribute__((always_inline))
+#endif
+inline std::uint64_t float_stretch_blocks(const float* p, std::uint64_t n, float shift, pattern_tally& out) {
   constexpr std::size_t lanes = 16, block = 256;
   std::uint64_t k = 0;
-  if (step == 1 && n >= block) {
-    float lo[lanes], hi[lanes];
-    double d1[lanes] = {}, d2[lanes] = {};
-    for (std::size_t l = 0; l < lanes; ++l) lo[l] = std::numeric_limits<float>::infinity(), hi[l] = -lo[l];
-    for (; k + block <= n; k += block) {
-      float s1[lanes] = {}, s2[lanes] = {};
-      for (std::size_t i = 0; i < block; i += lanes) {
-        for (std::size_t l = 0; l < lanes; ++l) {
-          const float x = p[k + i + l], d = x - shift;
-          s1[l] += d;
-          s2[l] += d * d;
-          lo[l] = x < lo[l] ? x : lo[l];
-          hi[l] = hi[l] < x ? x : hi[l];
-        }
+  float lo[lanes], hi[lanes];
+  double d1[lanes] = {}, d2[lanes] = {};
+  for (std::size_t l = 0; l < lanes; ++l) lo[l] = std::numeric_limits<float>::infinity(), hi[l] = -lo[l];
+  for (; k + block <= n; k += block) {
+    float s1[lanes] = {}, s2[lanes] = {};
+    for (std::size_t i = 0; i < block; i += lanes) {
+      for (std::size_t l = 0; l < lanes; ++l) {
+        const float x = p[k + i + l], d = x - shift;
+        s1[l] += d;
+        s2[l] += d * d;
+        lo[l] = x < lo[l] ? x : lo[l];
+        hi[l] = hi[l] < x ? x : hi[l];
       }
-      for (std::size_t l = 0; l < lanes; ++l) d1[l] += static_cast<double>(s1[l]), d2[l] += static_cast<double>(s2[l]);
     }
-    for (std::size_t l = 0; l < lanes; ++l) {
-      out.sum1 += d1[l], out.sum2 += d2[l];
-      out.lo = std::min<double>(out.lo, lo[l]), out.hi = std::max<double>(out.hi, hi[l]);
-    }
+    for (std::size_t l = 0; l < lanes; ++l) d1[l] += static_cast<double>(s1[l]), d2[l] += static_cast<double>(s2[l]);
+  }
+  for (std::size_t l = 0; l < lanes; ++l) {
+    out.sum1 += d1[l], out.sum2 += d2[l];
+    out.lo = std::min<double>(out.lo, lo[l]), out.hi = std::max<double>(out.hi, hi[l]);
+  }
+  return k;
+}
+
+#if defined(KINDLING_LANES_X86)
+__attribute__((target("avx2"))) inline std::uint64_t float_stretch_blocks_avx2(const float* p, std::uint64_t n, float shift,
+                                                                               pattern_tally& out) {
+  return float_stretch_blocks(p, n, shift, out);
+}
+#endif
+
+inline void float_stretch(const float* p, std::ptrdiff_t step, std::uint64_t n, float shift, pattern_tally& out) {
+  std::uint64_t k = 0;
+  if (step == 1 && n >= 256) {
+#if defined(KINDLING_LANES_X86)
+    k = instruction_set_available(instruction_set::avx2) ? float_stretch_blocks_avx2(p, n, shift, out)
+                                                          : float_stretch_blocks(p, n, shift, out);
+#else
+    k = float_stretch_blocks(p, n, shift, out);
+#endif
   }
   for (; k < n; ++k) {
     const float x = p[static_cast<std::ptrdiff_t>(k) * step];
