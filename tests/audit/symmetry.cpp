@@ -295,3 +295,27 @@ TEST_CASE("few connections: 1-connection units and coarse types are not judged b
   // 30000 float values: about C(30000, 2) q chance-equal pairs, many; not decided.
   CHECK_MESSAGE(r1.find("duplicate-units")->passed, r1.explain());
 }
+
+#if defined(KINDLING_LANES_X86)
+TEST_CASE_TEMPLATE("the units' pass gives the same bits in its AVX2 form as in its generic form", E, float, bfloat16) {
+  // The pass is taken in its AVX2 form on CPUs that have it; the verdict must not depend
+  // on the CPU. 70 units of 1000 connections: whole sketch blocks and a remainder.
+  if (!detail::instruction_set_available(detail::instruction_set::avx2)) return;
+  std::vector<E> w(70 * 1000);
+  fill(strided_view<E>(w.data(), shape(70, 1000)), dist::normal{0, 0.05}, make_stream(9, "conveyor.belt.weight"));
+  for (std::size_t j = 0; j < 1000; ++j) w[5 * 1000 + j] = w[5 * 1000];  // one flat unit
+  const detail::unit_reader<const E> reader(strided_view<const E>(w.data(), shape(70, 1000)), weight_layout::out_in);
+  detail::unit_summary generic, wide;
+  for (detail::unit_summary* s : {&generic, &wide}) {
+    s->rows = reader.rows(), s->cols = reader.cols(), s->width = std::min(s->cols, detail::sketch_width);
+    s->sketch.assign(static_cast<std::size_t>(s->rows * s->width), 0.0f);
+    s->sketch_norm.assign(static_cast<std::size_t>(s->rows), 0.0f);
+  }
+  detail::summarize_unit_rows(reader, generic);
+  detail::summarize_unit_rows_avx2(reader, wide);
+  CHECK(generic.sketch == wide.sketch);
+  CHECK(generic.sketch_norm == wide.sketch_norm);
+  CHECK(generic.flat_units == wide.flat_units);
+  CHECK(generic.flat_units == std::vector<std::uint64_t>{5});
+}
+#endif
