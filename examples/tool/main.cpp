@@ -149,8 +149,9 @@ int main(int argc, char** argv) {
   CLI::App* plan_cmd = app.add_subcommand("plan", "Variance through depth for a layer stack (a JSON spec)");
   plan_cmd->add_option("SPEC", plan.spec, "Network spec .json (default: a built-in pump vibration classifier)");
   plan_cmd->add_flag("--measure", plan.measure, "Also measure over independent draws of the stack");
-  add(plan_cmd, plan_batch, "Samples a draw for --measure (default 256; streamed, memory does not grow with it)");
-  add(plan_cmd, plan_trials, "Independent draws of the weights for --measure (default 16)");
+  add(plan_cmd, plan_batch, "Samples a draw for --measure, and for the recurrent cells and attention blocks, which are always measured "
+                "(default 256; streamed through layer stacks, memory does not grow with it there)");
+  add(plan_cmd, plan_trials, "Independent draws of the weights for --measure, cells and attention blocks (default 16)");
   add(plan_cmd, plan_seed, "Seed of the weights and inputs for --measure, 0 to 2^64 - 1 (default 0)");
   add(plan_cmd, plan_threads, "Threads for --measure (default 1)");
   plan_cmd->add_flag("--json", plan.json, "Print the table as JSON");

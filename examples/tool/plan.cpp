@@ -3,8 +3,10 @@
 // pre-activation variance (forward) and of the variance of the gradient with respect
 // to the pre-activation (backward), and with --measure the same measured over --trials
 // independent draws of the stack, --batch samples each, with the library's verdict
-// (kindling/propagate/measure.hpp): the columns and sentences are those of
-// propagation_report::table(). --json for scripts, --svg for a picture.
+// (kindling/propagate/measure.hpp). Recurrent cells and attention blocks in the spec
+// are always measured (neither has a closed form) and cut the stack into sections.
+// The verdicts and warnings are the library's; the table adds each layer's fans,
+// activation and scheme. --json for scripts, --svg for a picture.
 #include <algorithm>
 #include <atomic>
 #include <cmath>
@@ -22,6 +24,7 @@
 #include <kindling/io/npy.hpp>
 #include <kindling/propagate/mean_field.hpp>
 #include <kindling/propagate/measure.hpp>
+#include <kindling/propagate/attention.hpp>
 #include <kindling/propagate/recurrent.hpp>
 
 #include "output.hpp"
@@ -96,16 +99,33 @@ void check_measure_memory(const layer_stack& stack, std::uint64_t batch) {
   }
 }
 
-// A cell keeps, for a batch, its gates, states and inputs at every step (doubles).
-void check_cell_memory(const recurrent_cell& c, std::uint64_t batch) {
+// A cell keeps, for a batch, its gates, states and inputs at every step (doubles); the
+// executor runs up to `threads` draws at once.
+void check_cell_memory(const recurrent_cell& c, std::uint64_t batch, std::size_t threads) {
   const double steps = static_cast<double>(c.steps()), h = static_cast<double>(c.hidden());
   const double per_sample = steps * (static_cast<double>(c.gates()) * h + 4.0 * h + static_cast<double>(c.input_width()));
   const double weights = static_cast<double>(c.gates()) * h * (h + static_cast<double>(c.input_width()));
-  const double peak = 8.0 * (weights + static_cast<double>(batch) * per_sample);
+  const double peak = 8.0 * (weights + static_cast<double>(batch) * per_sample) * static_cast<double>(threads);
   if (peak > static_cast<double>(memory_budget)) {
     throw std::length_error("--batch " + std::to_string(batch) + " needs about " + bytes_text(peak) +
                             " of memory for the recurrent cell '" + c.label() + "' over " + std::to_string(c.steps()) +
                             " steps; expected at most " + bytes_text(static_cast<double>(memory_budget)) +
+                            " (the tool's memory cap): give a smaller --batch");
+  }
+}
+
+// An attention draw keeps its four [d, d] weights and, for `batch` sequences of L
+// tokens, the input, queries, keys, values, mix and output (d x L batch each, doubles),
+// and one head's scores and softmax weights (L x L); up to `threads` draws at once.
+void check_attention_memory(const attention_block& a, std::uint64_t batch, std::size_t threads) {
+  const double d = static_cast<double>(a.width()), l = static_cast<double>(a.length());
+  const double peak = 8.0 * (4.0 * d * d + 7.0 * d * l * static_cast<double>(batch) + 3.0 * l * l) *
+                      static_cast<double>(threads);
+  if (peak > static_cast<double>(memory_budget)) {
+    throw std::length_error("--batch " + std::to_string(batch) + " needs about " + bytes_text(peak) +
+                            " of memory for the attention block '" + a.label() + "' (width " +
+                            std::to_string(a.width()) + ", " + std::to_string(a.length()) +
+                            " tokens); expected at most " + bytes_text(static_cast<double>(memory_budget)) +
                             " (the tool's memory cap): give a smaller --batch");
   }
 }
@@ -120,26 +140,158 @@ void check_plan_options(const plan_options& o, const network_sections& sections)
   if (o.measure && o.trials < 2) {
     throw std::invalid_argument("--trials " + std::to_string(o.trials) + ": expected at least 2 draws");
   }
-  if (!sections.attention.empty()) {
-    // The spec reader checks attention blocks (examples/tool/spec.hpp); the library
-    // measures them (compare_attention, kindling/propagate/attention.hpp), but this table
-    // does not hold them yet: refused rather than predicted as if they were absent.
-    throw std::invalid_argument("SPEC: '" + sections.attention_paths[0] + ".attention' is an attention block, expected "
-                                "dense layers, convolutions, residual blocks or recurrent cells: `kindling plan` does "
-                                "not yet measure attention blocks (the library does: compare_attention)");
-  }
-  if (!sections.cells.empty() && (o.batch < 1 || o.trials < 2)) {
+  if (!sections.cuts.empty() && (o.batch < 1 || o.trials < 2)) {
     throw std::invalid_argument("--batch " + std::to_string(o.batch) + " --trials " + std::to_string(o.trials) +
-                                ": expected at least 1 sample and 2 draws (a recurrent cell's state is measured)");
+                                ": expected at least 1 sample and 2 draws (a recurrent cell's state and an attention "
+                                "block's output are measured)");
   }
   for (const layer_stack& stack : sections.stacks) {
     if (o.measure && !stack.empty()) check_measure_memory(stack, o.batch);
   }
-  for (const recurrent_cell& c : sections.cells) check_cell_memory(c, o.batch);
+  const std::size_t concurrent = std::max<std::size_t>(1, std::min(o.threads, o.trials));
+  for (const recurrent_cell& c : sections.cells) check_cell_memory(c, o.batch, concurrent);
+  for (const attention_block& a : sections.attention) check_attention_memory(a, o.batch, concurrent);
   if (!o.svg.empty()) check_output("--svg", o.svg, {{"SPEC", o.spec}});
 }
 
+// The table being built: one entry a row in each of its forms (JSON, text, SVG).
+struct plan_rows {
+  json layers = json::array();
+  json warnings = json::array();
+  std::vector<plot_series> series;
+  std::vector<std::string> names, lines;
+  std::vector<bool> warned;
+  bool agrees = true;
+  std::size_t index = 0;
+  int label_width = 9;  // the layer column: the longest label, at most 32
+};
+
+// An attention block's rows (propagate/attention.hpp): its four projections, the scaled
+// scores, the softmax weights (their concentration E[sum_j p_ij^2]; measured only), the
+// mix and the output.  fwd_var is the prediction from the schemes where there is one
+// (projections, scores); each judged row's verdict compares the draws with the
+// prediction given each draw (compare_attention), so the mix and output rows are
+// judged although they have no prediction from the schemes alone.
+void add_attention_rows(const attention_block& a, const attention_report& r, double input_moment, bool measure,
+                        plan_rows& t) {
+  for (const attention_row& row : r.rows) {
+    ++t.index;
+    const std::string label = a.label() + "." + row.name;
+    const bool projection = row.name == "query" || row.name == "key" || row.name == "value" || row.name == "output";
+    const std::size_t which = row.name == "query" ? 0 : row.name == "key" ? 1 : row.name == "value" ? 2 : 3;
+    const std::string scheme = projection ? a.scheme(which) : "-";
+    const std::string act = projection ? "identity" : row.name == "softmax" ? "softmax" : "-";
+    const json fan_in = projection ? json(a.width()) : json(nullptr), fan_out = fan_in;
+    const std::string fan_text = projection ? std::to_string(a.width()) : "-";
+    const bool planned = !std::isnan(row.planned);
+    std::vector<double> draws;
+    for (const attention_moments& m : r.draws) {
+      const std::size_t i = static_cast<std::size_t>(&row - r.rows.data());
+      const double values[] = {m.query, m.key, m.value, m.score, m.concentration, m.mix, m.output};
+      draws.push_back(values[i]);
+    }
+    json j = {{"index", t.index},
+              {"label", label},
+              {"kind", "attention"},
+              {"block", a.label()},
+              {"part", row.name},
+              {"heads", a.heads()},
+              {"tokens", a.length()},
+              {"fan_in", fan_in},
+              {"fan_out", fan_out},
+              {"scheme", scheme},
+              {"activation", act},
+              {"weight_std", projection ? json(std::sqrt(a.weight_variance(which))) : json(nullptr)},
+              {"input_variance", input_moment},
+              {"forward_variance", planned ? json(row.planned) : json(nullptr)},
+              {"backward_variance", nullptr},
+              {"measured_forward_variance", row.median},
+              {"measured_backward_variance", nullptr},
+              {"measured_only", !row.judged ? json({"measured_forward_variance"}) : json::array()}};
+    if (row.judged) {
+      j["measured_forward"] = {{"median", row.median},
+                               {"spread_factor", std::exp(row.spread)},
+                               {"mean_over_predicted", std::exp(row.verdict.deviation)},  // given each draw
+                               {"band_factor", std::exp(row.verdict.tolerance)},
+                               {"agrees", row.verdict.agrees},
+                               {"draws", draws}};
+      j["agrees"] = row.verdict.agrees;
+    }
+    t.layers.push_back(j);
+    const double x = static_cast<double>(t.index);
+    if (planned) t.series[0].points.push_back({x, row.planned});
+    if (measure) t.series[2].points.push_back({x, row.median});
+    char line[512];
+    std::snprintf(line, sizeof line, "%-3zu %-*s %6s %7s %-10s %-14s %9s %11s %11s", t.index, t.label_width,
+                  label.c_str(), fan_text.c_str(), fan_text.c_str(), act.c_str(), scheme.c_str(), projection ? std_text(a.weight_variance(which)).c_str() : "-",
+                  planned ? number_text(row.planned).c_str() : "measured", "-");
+    std::string text = line;
+    if (measure) {
+      std::snprintf(line, sizeof line, " %11s %7s %11s %7s  %s", number_text(row.median).c_str(),
+                    number_text(std::exp(row.spread), 3).c_str(), "-", "-",
+                    !row.judged ? "-" : row.verdict.agrees ? "yes" : "NO");
+      text += line;
+    }
+    const bool bad = row.judged && !row.verdict.agrees;
+    if (bad) {
+      t.warnings.push_back("layer " + std::to_string(t.index) + " (" + label + "): disagrees: mean/predicted = " +
+                           number_text(std::exp(row.verdict.deviation)) + " given the draw, outside the band x/" +
+                           number_text(std::exp(row.verdict.tolerance)));
+      if (measure) t.agrees = false;
+    }
+    if (row.name == "output") {
+      char info[512];
+      std::snprintf(info, sizeof info,
+                    "\n    attention: %llu heads of %llu features over %llu tokens, fed E[x^2] = %s; measured only: "
+                    "softmax E[sum p^2] = %s (uniform attention: %s), output E[y^2] = %s (fed to the layers above)",
+                    static_cast<unsigned long long>(a.heads()), static_cast<unsigned long long>(a.head_width()),
+                    static_cast<unsigned long long>(a.length()), number_text(input_moment).c_str(),
+                    number_text(r.row("softmax").median).c_str(), number_text(1.0 / static_cast<double>(a.length())).c_str(),
+                    number_text(row.median).c_str());
+      text += info;
+    }
+    t.lines.push_back(text);
+    t.names.push_back(label);
+    t.warned.push_back(bad);
+  }
+}
+
+// The label of cut k, for the stream of the stack above it.
+const std::string& cut_label(const network_sections& sections, std::size_t k) {
+  const network_sections::cut& c = sections.cuts[k];
+  return c.attention ? sections.attention[c.index].label() : sections.cells[c.index].label();
+}
+
 }  // namespace
+
+// How one measured stack between cuts (rows first..last) was judged: each such stack
+// has its own false-alarm budget.
+struct judged_part {
+  std::size_t first, last;
+  std::string method;
+};
+
+// The lines under the table: one stack's method as the library words it; with cuts,
+// each stack's method under its rows and the budgets of every judged part (stacks,
+// cells, blocks) summed for the whole table (Bonferroni).
+std::vector<std::string> method_lines(const std::vector<judged_part>& parts, std::size_t cells, std::size_t blocks) {
+  if (parts.empty()) return {};
+  if (parts.size() + cells + blocks < 2) return {parts[0].method};
+  std::vector<std::string> out;
+  const std::string whole = "for the whole table";
+  for (const judged_part& p : parts) {
+    std::string m = p.method;
+    const std::size_t at = m.find(whole);
+    if (at != std::string::npos) m.replace(at, whole.size(), "for these rows");
+    out.push_back("rows " + std::to_string(p.first) + (p.last > p.first ? "-" + std::to_string(p.last) : "") + ": " + m);
+  }
+  const double sum = measure_options{}.false_alarm * static_cast<double>(parts.size()) +
+                     recurrent_options{}.false_alarm * static_cast<double>(cells) +
+                     attention_options{}.false_alarm * static_cast<double>(blocks);
+  out.push_back("the whole table: false alarm <= " + number_text(sum) + ", the sum over its " +
+                std::to_string(parts.size() + cells + blocks) + " judged parts");
+  return out;
+}
 
 int run_plan(const plan_options& o) {
   const network_spec spec =
@@ -148,38 +300,59 @@ int run_plan(const plan_options& o) {
   check_plan_options(o, sections);
   const bool tty = isatty(STDERR_FILENO) != 0;
   const stream plan_stream = make_stream(o.seed, "kindling.plan");
-  // A cell's state has no closed form (kindling/propagate/recurrent.hpp): each cell is
-  // measured, fed the second moment predicted for the layer below it, and the stack
-  // above it is predicted from the state moment measured at its last step.
-  std::vector<double> state_moments, cell_inputs;
+  // Neither a cell's state nor an attention block's output has a closed form
+  // (kindling/propagate/recurrent.hpp, attention.hpp): each cut is measured, fed the
+  // second moment predicted for the layer below it, and the stack above it is predicted
+  // from the moment measured at its top (the cell's last state, the block's output).
+  std::vector<double> cut_moments, cut_inputs;
   std::vector<recurrent_report> cell_reports;
-  for (std::size_t k = 0; k < sections.cells.size(); ++k) {
-    sections = build_sections(spec, state_moments);
+  std::vector<attention_report> attention_reports;
+  const progress_executor progress{thread_executor(o.threads), tty};
+  for (std::size_t k = 0; k < sections.cuts.size(); ++k) {
+    sections = build_sections(spec, cut_moments);
     const layer_stack& below = sections.stacks[k];
     const double x2 = below.empty() ? below.input_second_moment() : predict(below).back().activation_moment;
-    const recurrent_cell& cell = sections.cells[k];
-    recurrent_options ro;
-    ro.trials = o.trials;
-    ro.input_second_moment = x2;
-    cell_inputs.push_back(x2);
-    cell_reports.push_back(compare_recurrent(cell, o.batch, plan_stream.named(cell.label()), ro,
-                                             progress_executor{thread_executor(o.threads), tty}));
-    state_moments.push_back(cell_reports.back().median(&recurrent_moments::state, cell.steps() - 1));
+    cut_inputs.push_back(x2);
+    const network_sections::cut& cut = sections.cuts[k];
+    if (cut.attention) {
+      const attention_block& a = sections.attention[cut.index];
+      attention_options ao;
+      ao.trials = o.trials;
+      ao.input_second_moment = x2;
+      attention_reports.push_back(compare_attention(a, o.batch, plan_stream.named(a.label()), ao, progress));
+      cut_moments.push_back(attention_reports.back().row("output").median);
+    } else {
+      const recurrent_cell& cell = sections.cells[cut.index];
+      recurrent_options ro;
+      ro.trials = o.trials;
+      ro.input_second_moment = x2;
+      cell_reports.push_back(compare_recurrent(cell, o.batch, plan_stream.named(cell.label()), ro, progress));
+      cut_moments.push_back(cell_reports.back().median(&recurrent_moments::state, cell.steps() - 1));
+    }
   }
-  sections = build_sections(spec, state_moments);
+  sections = build_sections(spec, cut_moments);
 
-  bool agrees = true;
-  json layers = json::array();
-  json warnings = json::array();
-  std::vector<plot_series> series(4);
-  series[0] = {"forward (pre-activation), predicted", "#1f5fa8", true, {}};
-  series[1] = {"backward (gradient), predicted", "#c8501e", true, {}};
-  series[2] = {"forward, measured", "#1f5fa8", false, {}};
-  series[3] = {"backward, measured", "#c8501e", false, {}};
-  std::vector<std::string> names, lines;
-  std::vector<bool> warned;
-  std::vector<std::string> methods;
-  std::size_t index = 0;
+  plan_rows t;
+  t.series.resize(4);
+  t.series[0] = {"forward (pre-activation), predicted", "#1f5fa8", true, {}};
+  t.series[1] = {"backward (gradient), predicted", "#c8501e", true, {}};
+  t.series[2] = {"forward, measured", "#1f5fa8", false, {}};
+  t.series[3] = {"backward, measured", "#c8501e", false, {}};
+  for (const layer_stack& stack : sections.stacks)
+    for (std::size_t l = 0; l < stack.depth(); ++l) t.label_width = std::max(t.label_width, static_cast<int>(stack[l].label.size()));
+  for (const recurrent_cell& c : sections.cells) t.label_width = std::max(t.label_width, static_cast<int>(c.label().size()));
+  for (const attention_block& a : sections.attention)  // + ".softmax", the longest part
+    t.label_width = std::max(t.label_width, static_cast<int>(a.label().size() + 8));
+  t.label_width = std::min(t.label_width, 32);
+  // The rows of stacks and cells are written here; attention rows by add_attention_rows.
+  bool& agrees = t.agrees;
+  json& layers = t.layers;
+  json& warnings = t.warnings;
+  std::vector<plot_series>& series = t.series;
+  std::vector<std::string>&names = t.names, &lines = t.lines;
+  std::vector<bool>& warned = t.warned;
+  std::size_t& index = t.index;
+  std::vector<judged_part> methods;
   for (std::size_t section = 0; section < sections.stacks.size(); ++section) {
     const layer_stack& stack = sections.stacks[section];
     std::vector<layer_prediction> predicted;
@@ -192,9 +365,9 @@ int run_plan(const plan_options& o) {
         // Each draw streams the batch in slices of 32 samples: memory does not grow with
         // --batch (no batch x batch matrix), only the time does.  (The stack below the
         // first cell keeps the stream of a spec without cells.)
-        const stream s = section == 0 ? plan_stream : plan_stream.named("above " + sections.cells[section - 1].label());
-        measured = compare_propagation(stack, predicted, o.batch, s, mo, progress_executor{thread_executor(o.threads), tty});
-        if (methods.empty() || methods.back() != measured.method()) methods.push_back(measured.method());
+        const stream s = section == 0 ? plan_stream : plan_stream.named("above " + cut_label(sections, section - 1));
+        measured = compare_propagation(stack, predicted, o.batch, s, mo, progress);
+        methods.push_back({index + 1, index + stack.depth(), measured.method()});
       }
     }
     for (std::size_t l = 0; l < stack.depth(); ++l) {
@@ -217,7 +390,8 @@ int run_plan(const plan_options& o) {
       series[1].points.push_back({x, p.gradient_variance});
       for (const std::string& w : p.warnings) warnings.push_back("layer " + std::to_string(index) + " (" + L.label + "): " + w);
       char line[512];
-      std::snprintf(line, sizeof line, "%-3zu %-9s %6llu %7llu %-10s %-14s %9s %11s %11s", index, L.label.c_str(),
+      std::snprintf(line, sizeof line, "%-3zu %-*s %6llu %7llu %-10s %-14s %9s %11s %11s", index, t.label_width,
+                    L.label.c_str(),
                     static_cast<unsigned long long>(L.fans.fan_in), static_cast<unsigned long long>(L.fans.fan_out),
                     std::string(L.act.name()).c_str(), L.scheme.c_str(), std_text(L.weight_variance).c_str(),
                     number_text(p.preactivation_variance).c_str(), number_text(p.gradient_variance).c_str());
@@ -255,11 +429,16 @@ int run_plan(const plan_options& o) {
       names.push_back(L.label);
       warned.push_back(!p.warnings.empty() || !row_agrees);
     }
-    if (section == sections.cells.size()) break;
+    if (section == sections.cuts.size()) break;
+    const network_sections::cut& cut = sections.cuts[section];
+    if (cut.attention) {
+      add_attention_rows(sections.attention[cut.index], attention_reports[cut.index], cut_inputs[section], o.measure, t);
+      continue;
+    }
     // The cell above this stack: its gates at the last step (predicted from the measured
     // state, Chen, Pennington & Schoenholz 2018), its state and gradients measured only.
-    const recurrent_cell& cell = sections.cells[section];
-    const recurrent_report& r = cell_reports[section];
+    const recurrent_cell& cell = sections.cells[cut.index];
+    const recurrent_report& r = cell_reports[cut.index];
     const std::size_t last = cell.steps() - 1;
     ++index;
     std::vector<double> reads, gates;
@@ -269,9 +448,9 @@ int run_plan(const plan_options& o) {
     }
     std::sort(reads.begin(), reads.end());
     std::sort(gates.begin(), gates.end());
-    const double gate_predicted = cell.gate_moment(cell_inputs[section], reads[reads.size() / 2]);
+    const double gate_predicted = cell.gate_moment(cut_inputs[section], reads[reads.size() / 2]);
     const double gate_measured = gates[gates.size() / 2];
-    const double state = state_moments[section];
+    const double state = cut_moments[section];
     const double memory = r.median(&recurrent_moments::state_gradient, 0) /
                           r.median(&recurrent_moments::state_gradient, last);
     const measured_moment& g0 = r.gates[last][0];
@@ -288,7 +467,7 @@ int run_plan(const plan_options& o) {
                 {"recurrent_scheme", cell.recurrent_scheme()},
                 {"weight_std", std::sqrt(cell.input_weight_variance())},
                 {"recurrent_weight_std", std::sqrt(cell.recurrent_weight_variance())},
-                {"input_variance", cell_inputs[section]},
+                {"input_variance", cut_inputs[section]},
                 {"forward_variance", gate_predicted},
                 {"backward_variance", nullptr},
                 {"measured_forward_variance", gate_measured},
@@ -302,7 +481,8 @@ int run_plan(const plan_options& o) {
     series[0].points.push_back({x, gate_predicted});
     if (o.measure) series[2].points.push_back({x, gate_measured});
     char line[512];
-    std::snprintf(line, sizeof line, "%-3zu %-9s %6llu %7llu %-10s %-14s %9s %11s %11s", index, cell.label().c_str(),
+    std::snprintf(line, sizeof line, "%-3zu %-*s %6llu %7llu %-10s %-14s %9s %11s %11s", index, t.label_width,
+                  cell.label().c_str(),
                   static_cast<unsigned long long>(cell.input_width()), static_cast<unsigned long long>(cell.hidden()),
                   cell_kind_name(cell.kind()), cell.input_scheme().c_str(), std_text(cell.input_weight_variance()).c_str(),
                   number_text(gate_predicted).c_str(), "-");
@@ -346,14 +526,14 @@ int run_plan(const plan_options& o) {
   if (o.json) {
     json out = {{"layers", layers}, {"warnings", warnings}};
     if (!spec.name.empty()) out["name"] = spec.name;
-    if (o.measure || !sections.cells.empty()) {
+    if (o.measure || !sections.cuts.empty()) {
       out["batch"] = o.batch;
       out["trials"] = o.trials;
     }
     if (o.measure) {
       out["false_alarm"] = measure_options{}.false_alarm;
       std::string method;
-      for (const std::string& m : methods) method += (method.empty() ? "" : "; ") + m;
+      for (const std::string& m : method_lines(methods, sections.cells.size(), sections.attention.size())) method += (method.empty() ? "" : "; ") + m;
       out["method"] = method;
     }
     std::printf("%s\n", out.dump(2).c_str());
@@ -364,7 +544,7 @@ int run_plan(const plan_options& o) {
                 static_cast<unsigned long long>(spec.input_width),
                 extent.empty() ? "features" : ("channels over " + extent + " positions").c_str(),
                 number_text(spec.input_variance).c_str());
-    std::printf("%-3s %-9s %6s %7s %-10s %-14s %9s %11s %11s", "#", "layer", "fan_in", "fan_out", "activation",
+    std::printf("%-3s %-*s %6s %7s %-10s %-14s %9s %11s %11s", "#", t.label_width, "layer", "fan_in", "fan_out", "activation",
                 "scheme", "weight_sd", "fwd_var", "bwd_var");
     if (o.measure) std::printf(" %11s %7s %11s %7s  %s", "fwd_med", "x/", "bwd_med", "x/", "agrees");
     std::printf("\n");
@@ -373,7 +553,13 @@ int run_plan(const plan_options& o) {
       std::printf("recurrent cells: %zu draws of %llu samples; the layers above a cell are predicted from its measured "
                   "state, and each part's bwd columns start from its own unit loss gradient\n", o.trials, static_cast<unsigned long long>(o.batch));
     }
-    for (const std::string& m : methods) std::printf("%s\n", m.c_str());
+    if (!sections.attention.empty()) {
+      std::printf("attention blocks: %zu draws of %llu sequences, forward only; a row agrees when its mean ratio to the "
+                  "prediction given each draw is within the band (compare_attention, false alarm <= %g a block); the "
+                  "layers above a block are predicted from its measured output\n",
+                  o.trials, static_cast<unsigned long long>(o.batch), attention_options{}.false_alarm);
+    }
+    for (const std::string& m : method_lines(methods, sections.cells.size(), sections.attention.size())) std::printf("%s\n", m.c_str());
     for (const auto& w : warnings) std::printf("warning: %s\n", w.get<std::string>().c_str());
     if (!o.svg.empty()) std::printf("wrote %s\n", o.svg.c_str());
   }

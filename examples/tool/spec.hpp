@@ -66,8 +66,9 @@
 // and equal to it if given).  "scheme" draws the query, key and value projections and
 // "output_scheme" the output one (default: "scheme", itself glorot-uniform by default):
 // glorot-*, he-* or lecun-* (elementwise schemes, which the attention prediction needs).
-// A block is a top-level layer.  build_sections checks it and lists it (attention,
-// attention_paths); `kindling plan` does not yet measure blocks and refuses such specs.
+// A block is a top-level layer; what follows it reads its output tokens: a 1-D map of
+// `width` channels over `length` positions when the layer below was a 1-D map, else
+// `width` features (each token a sample of the dense layers above; build_sections).
 //
 // Needs nlohmann-json (Debian nlohmann-json3-dev) and, for the orthogonal scheme's
 // variance, Eigen; the core of kindling needs neither.
@@ -642,19 +643,27 @@ inline layer_stack build_stack(const network_spec& spec) {
   return stack;
 }
 
-/// A spec cut at its recurrent cells: stacks[k] is the part below cells[k] (it may have
-/// no layers) and stacks.back() the part above the last cell, which reads the cell's last
-/// state (hidden features).  The state's second moment has no closed form
-/// (propagate/recurrent.hpp): the stack above cell k is built with input second moment
-/// state_moments[k] (1 when not given; `kindling plan` passes the moment it measured).
+/// A spec cut at its recurrent cells and attention blocks, in spec order: stacks[k] is
+/// the part below cut k (it may have no layers) and stacks.back() the part above the
+/// last cut.  Neither a cell's last state nor an attention block's output has a closed
+/// form for its second moment (propagate/recurrent.hpp, propagate/attention.hpp): the
+/// stack above cut k is built with input second moment cut_moments[k] (1 when not given;
+/// `kindling plan` passes the moment it measured).
 /// A cell reads the map below it as a sequence when it is 1-D (channels the features,
 /// the axis the steps: "steps" may be left out, or must equal its length); on features
-/// it reads a fresh input of that width at each of its "steps" steps.
+/// it reads a fresh input of that width at each of its "steps" steps; above it: its
+/// hidden features.  An attention block reads the 1-D map below as its tokens (or
+/// "length" tokens of the features below); above it: the same map, or features.
 struct network_sections {
+  /// One cut: a recurrent cell (cells[index]) or an attention block (attention[index]).
+  struct cut {
+    bool attention = false;
+    std::size_t index = 0;
+  };
   std::vector<layer_stack> stacks;
+  std::vector<cut> cuts;
   std::vector<recurrent_cell> cells;
   std::vector<std::string> cell_paths;  // e.g. "layers[3]", for messages
-  /// The attention blocks, checked and built (propagate/attention.hpp), in spec order.
   std::vector<attention_block> attention;
   std::vector<std::string> attention_paths;
 };
@@ -704,19 +713,28 @@ inline attention_block spec_attention_block(const layer_spec& l, const layer_sta
 }
 }  // namespace detail
 
-inline network_sections build_sections(const network_spec& spec, const std::vector<double>& state_moments = {}) {
+inline network_sections build_sections(const network_spec& spec, const std::vector<double>& cut_moments = {}) {
   network_sections out;
   layer_stack current = spec.input_extent.empty()
                             ? layer_stack(spec.input_width, spec.input_variance)
                             : layer_stack::feature_maps(spec.input_width, spec.input_extent, spec.input_variance);
   std::vector<layer_spec> pending;
   for (const layer_spec& l : spec.layers) {
+    const auto moment_above = [&] {
+      const std::size_t k = out.cuts.size() - 1;
+      return k < cut_moments.size() ? cut_moments[k] : 1.0;
+    };
     if (l.attention) {
-      // Checked on what is below it (the layers since the last cut, added to a copy).
-      layer_stack below = current;
-      detail::spec_add_layers(below, pending);
-      out.attention.push_back(detail::spec_attention_block(l, below, out.attention.size()));
+      detail::spec_add_layers(current, pending);
+      pending.clear();
+      out.attention.push_back(detail::spec_attention_block(l, current, out.attention.size()));
       out.attention_paths.push_back(l.path);
+      out.cuts.push_back({true, out.attention.size() - 1});
+      const attention_block& a = out.attention.back();
+      const bool map = current.top_extent().size() == 1;
+      out.stacks.push_back(std::move(current));
+      current = map ? layer_stack::feature_maps(a.width(), {a.length()}, moment_above())
+                    : layer_stack(a.width(), moment_above());
       continue;
     }
     if (!l.recurrent) {
@@ -764,8 +782,8 @@ inline network_sections build_sections(const network_spec& spec, const std::vect
     out.stacks.push_back(std::move(current));
     out.cells.emplace_back(kind, in, l.hidden, steps, std::move(input), std::move(recurrent), l.forget_bias, label);
     out.cell_paths.push_back(l.path);
-    const std::size_t k = out.cells.size() - 1;
-    current = layer_stack(l.hidden, k < state_moments.size() ? state_moments[k] : 1.0);
+    out.cuts.push_back({false, out.cells.size() - 1});
+    current = layer_stack(l.hidden, moment_above());
   }
   detail::spec_add_layers(current, pending);
   out.stacks.push_back(std::move(current));

@@ -446,6 +446,53 @@ elif CASE == "json":
             json.dump(bad, f)
         _, err = expect_code(2, "plan", "bad_cell.json")
         expect(expected in err, f"expected {expected!r} in the plan error, got {err!r}")
+    # an attention block between 1-D convolutions (kindling/propagate/attention.hpp, the
+    # spec key "attention"): its seven rows measured (the projections and scores judged
+    # against Var q = d Var W E[x^2] and Var q Var k (1 + 2/(d L)), Vaswani et al. 2017
+    # sec. 3.2.1), and the layers above predicted from its measured output moment
+    with open("belt_attention.json", "w") as f:
+        json.dump({"input": {"width": 3, "extent": [24]},
+                   "layers": [{"width": 16, "activation": "relu", "scheme": "he-normal",
+                               "conv": {"kernel": [5], "padding": "same"}, "label": "taps"},
+                              {"attention": {"heads": 4, "scheme": "glorot-uniform"}, "label": "attend"},
+                              {"width": 4, "activation": "identity", "scheme": "glorot-uniform", "label": "head"}]},
+                  f)
+    out, _ = expect_code(0, "plan", "belt_attention.json", "--measure", "--batch", "16", "--trials", "6",
+                         "--json", "--threads", "2")
+    doc = json.loads(out)
+    rows = [l for l in doc["layers"] if l.get("kind") == "attention"]
+    expect([r["part"] for r in rows] == ["query", "key", "value", "score", "softmax", "mix", "output"]
+           and [l["label"] for l in doc["layers"]][0] == "taps" and doc["layers"][-1]["label"] == "head",
+           f"the attention rows: {[l['label'] for l in doc['layers']]}")
+    taps, head = doc["layers"][0], doc["layers"][-1]
+    # the block is fed the ReLU output of taps: E[a^2] = q / 2 (He et al. 2015); d = 16, Glorot: Var W = 1/16
+    fed = taps["forward_variance"] / 2
+    query = rows[0]
+    expect(abs(query["input_variance"] - fed) < 1e-12 and abs(query["forward_variance"] - 16 * fed / 16) < 1e-12,
+           f"the query row's prediction: {query}")
+    score = rows[3]
+    expect(abs(score["forward_variance"] - fed * fed * (1 + 2 / (16 * 24))) < 1e-12, f"the score row: {score}")
+    expect(all(r["agrees"] for r in rows if "agrees" in r) and "agrees" not in rows[4]
+           and len(rows[0]["measured_forward"]["draws"]) == 6,
+           f"the attention rows should agree (softmax: measured only): {rows}")
+    # the head reads the 16 x 24 map above the block: fan_in 384, fed the measured output moment
+    expect(head["fan_in"] == 384 and head.get("agrees") is True, f"the head above the block: {head}")
+    output = rows[6]["measured_forward_variance"]
+    expect(abs(head["forward_variance"] - output * 384 * 2 / (384 + 4)) < 1e-9 * output,
+           f"the head's prediction should start from the block's measured output {output}: {head}")
+    same = expect_code(0, "plan", "belt_attention.json", "--measure", "--batch", "16", "--trials", "6", "--json")[0]
+    expect(json.loads(same) == doc, "plan with an attention block should give the same numbers on 1 and 2 threads")
+    text = expect_code(0, "plan", "belt_attention.json")[0]
+    expect("attend.softmax" in text and "measured only: softmax" in text, f"the attention rows in the table: {text}")
+    # --measure: the stack below the block (row 1) and the one above it (row 9) each say how
+    # they were judged, and the table's false-alarm budget is the sum over its three parts
+    # (two stacks and the block, 0.001 each: Bonferroni)
+    text = expect_code(0, "plan", "belt_attention.json", "--measure", "--batch", "16", "--trials", "6")[0]
+    expect("rows 1: " in text and "rows 9: " in text and "false alarm <= 0.001 for these rows" in text
+           and "the whole table: false alarm <= 0.003" in text, f"the method lines of a cut table: {text}")
+    _, err = expect_code(2, "plan", "belt_attention.json", "--batch", "100000000")
+    expect("--batch 100000000" in err and "attention block 'attend'" in err,
+           f"expected the memory refusal to name --batch and the block: {err!r}")
     svg = ET.parse("net.svg").getroot()
     texts = " ".join(t.text or "" for t in svg.iter("{http://www.w3.org/2000/svg}text"))
     for word in ("layer (depth)", "variance (log scale)", "predicted", "measured"):

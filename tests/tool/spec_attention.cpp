@@ -41,6 +41,44 @@ TEST_CASE("an attention block in a spec: its width from the layer below, its len
   CHECK(m.attention[0].label() == "attention1");
 }
 
+TEST_CASE("a spec is cut at its attention blocks: the stack above reads the block's tokens") {
+  // On a 1-D map: the stack above is the same map (channels = the model width, its
+  // length the tokens), fed the second moment given for the cut.
+  const network_spec belt = parse_network_spec(R"({"input": {"width": 3, "extent": [20]}, "layers": [
+      {"width": 8, "activation": "relu", "scheme": "he-normal", "conv": {"kernel": [3], "padding": "same"}},
+      {"attention": {"heads": 2}, "label": "attend"},
+      {"width": 8, "activation": "relu", "scheme": "he-normal", "conv": {"kernel": [3], "padding": "same"}},
+      {"recurrent": {"cell": "gru", "hidden": 6}},
+      {"width": 2, "activation": "identity", "scheme": "glorot-uniform", "label": "head"}]})");
+  const network_sections s = build_sections(belt, {0.3, 0.7});
+  REQUIRE(s.cuts.size() == 2);
+  REQUIRE(s.stacks.size() == 3);
+  CHECK(s.cuts[0].attention);
+  CHECK(s.cuts[0].index == 0);
+  CHECK_FALSE(s.cuts[1].attention);
+  CHECK(s.cuts[1].index == 0);
+  CHECK(s.attention[0].width() == 8);
+  CHECK(s.attention[0].length() == 20);
+  CHECK(s.stacks[0].depth() == 1);
+  CHECK(s.stacks[1].input_width() == 8);
+  CHECK(s.stacks[1].input_extent() == std::vector<std::uint64_t>{20});
+  CHECK(s.stacks[1].input_second_moment() == 0.3);
+  CHECK(s.cells[0].input_width() == 8);  // the map above the block
+  CHECK(s.cells[0].steps() == 20);
+  CHECK(s.stacks[2].input_second_moment() == 0.7);
+  CHECK(s.stacks[2][0].label == "head");
+  // On features: the layers above read `width` features a token; 1 when no moment is given.
+  const network_sections f = build_sections(parse_network_spec(R"({"input": {"width": 8}, "layers": [
+      {"attention": {"heads": 2, "length": 5}},
+      {"width": 3, "activation": "identity", "scheme": "lecun-normal"}]})"));
+  REQUIRE(f.stacks.size() == 2);
+  CHECK(f.stacks[0].empty());
+  CHECK(f.stacks[1].input_width() == 8);
+  CHECK(f.stacks[1].input_extent().empty());
+  CHECK(f.stacks[1].input_second_moment() == 1.0);
+  CHECK(f.stacks[1][0].fans.fan_in == 8);
+}
+
 TEST_CASE("a spec whose attention block cannot be built is refused under its key, naming the value") {
   const std::string features = R"({"input": {"width": 12}, "layers": [)";
   const std::string map = R"({"input": {"width": 12, "extent": [6]}, "layers": [)";
