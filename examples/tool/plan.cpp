@@ -163,7 +163,7 @@ struct plan_rows {
   std::vector<bool> warned;
   bool agrees = true;
   std::size_t index = 0;
-  int label_width = 9;  // the layer column: the longest label, at most 32
+  int label_width = 9;  // the layer column (detail::table_label_width)
 };
 
 // An attention block's rows (propagate/attention.hpp): its four projections, the scaled
@@ -177,12 +177,8 @@ void add_attention_rows(const attention_block& a, const attention_report& r, dou
   for (const attention_row& row : r.rows) {
     ++t.index;
     const std::string label = a.label() + "." + row.name;
-    const bool projection = row.name == "query" || row.name == "key" || row.name == "value" || row.name == "output";
-    const std::size_t which = row.name == "query" ? 0 : row.name == "key" ? 1 : row.name == "value" ? 2 : 3;
-    const std::string scheme = projection ? a.scheme(which) : "-";
-    const std::string act = projection ? "identity" : row.name == "softmax" ? "softmax" : "-";
-    const json fan_in = projection ? json(a.width()) : json(nullptr), fan_out = fan_in;
-    const std::string fan_text = projection ? std::to_string(a.width()) : "-";
+    const detail::table_cells cells = detail::attention_cells(row, label);
+    const json fan_in = row.projection ? json(row.width) : json(nullptr), fan_out = fan_in;
     const bool planned = !std::isnan(row.planned);
     std::vector<double> draws;
     for (const attention_moments& m : r.draws) {
@@ -199,9 +195,9 @@ void add_attention_rows(const attention_block& a, const attention_report& r, dou
               {"tokens", a.length()},
               {"fan_in", fan_in},
               {"fan_out", fan_out},
-              {"scheme", scheme},
-              {"activation", act},
-              {"weight_std", projection ? json(std::sqrt(a.weight_variance(which))) : json(nullptr)},
+              {"scheme", cells.scheme},
+              {"activation", cells.activation},
+              {"weight_std", row.projection ? json(std::sqrt(row.weight_variance)) : json(nullptr)},
               {"input_variance", input_moment},
               {"forward_variance", planned ? json(row.planned) : json(nullptr)},
               {"backward_variance", nullptr},
@@ -221,17 +217,7 @@ void add_attention_rows(const attention_block& a, const attention_report& r, dou
     const double x = static_cast<double>(t.index);
     if (planned) t.series[0].points.push_back({x, row.planned});
     if (measure) t.series[2].points.push_back({x, row.median});
-    char line[512];
-    std::snprintf(line, sizeof line, "%-3zu %-*s %6s %7s %-10s %-14s %9s %11s %11s", t.index, t.label_width,
-                  label.c_str(), fan_text.c_str(), fan_text.c_str(), act.c_str(), scheme.c_str(), projection ? std_text(a.weight_variance(which)).c_str() : "-",
-                  planned ? number_text(row.planned).c_str() : "measured", "-");
-    std::string text = line;
-    if (measure) {
-      std::snprintf(line, sizeof line, " %11s %7s %11s %7s  %s", number_text(row.median).c_str(),
-                    number_text(std::exp(row.spread), 3).c_str(), "-", "-",
-                    !row.judged ? "-" : row.verdict.agrees ? "yes" : "NO");
-      text += line;
-    }
+    std::string text = detail::table_line(t.index, cells, t.label_width, measure);
     const bool bad = row.judged && !row.verdict.agrees;
     if (bad) {
       t.warnings.push_back("layer " + std::to_string(t.index) + " (" + label + "): disagrees: mean/predicted = " +
@@ -338,12 +324,12 @@ int run_plan(const plan_options& o) {
   t.series[1] = {"backward (gradient), predicted", "#c8501e", true, {}};
   t.series[2] = {"forward, measured", "#1f5fa8", false, {}};
   t.series[3] = {"backward, measured", "#c8501e", false, {}};
+  std::size_t longest = 0;
   for (const layer_stack& stack : sections.stacks)
-    for (std::size_t l = 0; l < stack.depth(); ++l) t.label_width = std::max(t.label_width, static_cast<int>(stack[l].label.size()));
-  for (const recurrent_cell& c : sections.cells) t.label_width = std::max(t.label_width, static_cast<int>(c.label().size()));
-  for (const attention_block& a : sections.attention)  // + ".softmax", the longest part
-    t.label_width = std::max(t.label_width, static_cast<int>(a.label().size() + 8));
-  t.label_width = std::min(t.label_width, 32);
+    for (std::size_t l = 0; l < stack.depth(); ++l) longest = std::max(longest, stack[l].label.size());
+  for (const recurrent_cell& c : sections.cells) longest = std::max(longest, c.label().size());
+  for (const attention_block& a : sections.attention) longest = std::max(longest, a.label().size() + 8);  // ".softmax"
+  t.label_width = detail::table_label_width(longest);
   // The rows of stacks and cells are written here; attention rows by add_attention_rows.
   bool& agrees = t.agrees;
   json& layers = t.layers;
@@ -389,13 +375,6 @@ int run_plan(const plan_options& o) {
       series[0].points.push_back({x, p.preactivation_variance});
       series[1].points.push_back({x, p.gradient_variance});
       for (const std::string& w : p.warnings) warnings.push_back("layer " + std::to_string(index) + " (" + L.label + "): " + w);
-      char line[512];
-      std::snprintf(line, sizeof line, "%-3zu %-*s %6llu %7llu %-10s %-14s %9s %11s %11s", index, t.label_width,
-                    L.label.c_str(),
-                    static_cast<unsigned long long>(L.fans.fan_in), static_cast<unsigned long long>(L.fans.fan_out),
-                    std::string(L.act.name()).c_str(), L.scheme.c_str(), std_text(L.weight_variance).c_str(),
-                    number_text(p.preactivation_variance).c_str(), number_text(p.gradient_variance).c_str());
-      std::string text = line;
       bool row_agrees = true;
       if (o.measure) {
         const layer_comparison& c = measured.layers[l];
@@ -414,10 +393,6 @@ int run_plan(const plan_options& o) {
         row["agrees"] = c.agrees;
         series[2].points.push_back({x, c.preactivation.median});
         series[3].points.push_back({x, c.gradient.median});
-        std::snprintf(line, sizeof line, " %11s %7s %11s %7s  %s", number_text(c.preactivation.median).c_str(),
-                      number_text(std::exp(c.preactivation.spread), 3).c_str(), number_text(c.gradient.median).c_str(),
-                      number_text(std::exp(c.gradient.spread), 3).c_str(), c.agrees ? "yes" : "NO");
-        text += line;
         row_agrees = c.agrees;
         if (!c.agrees) {
           agrees = false;
@@ -425,7 +400,8 @@ int run_plan(const plan_options& o) {
         }
       }
       layers.push_back(row);
-      lines.push_back(text);
+      lines.push_back(detail::table_line(index, o.measure ? detail::comparison_cells(measured.layers[l])
+                                                          : detail::prediction_cells(p), t.label_width, o.measure));
       names.push_back(L.label);
       warned.push_back(!p.warnings.empty() || !row_agrees);
     }
@@ -480,20 +456,20 @@ int run_plan(const plan_options& o) {
     const double x = static_cast<double>(index);
     series[0].points.push_back({x, gate_predicted});
     if (o.measure) series[2].points.push_back({x, gate_measured});
+    detail::table_cells cells;
+    cells.label = cell.label();
+    cells.fan_in = std::to_string(cell.input_width());
+    cells.fan_out = std::to_string(cell.hidden());
+    cells.activation = cell_kind_name(cell.kind());
+    cells.scheme = cell.input_scheme();
+    cells.weight_sd = std_text(cell.input_weight_variance());
+    cells.fwd_var = number_text(gate_predicted);
+    cells.fwd_med = number_text(gate_measured);
+    cells.fwd_spread = number_text(std::exp(g0.spread), 3);
+    cells.bwd_med = number_text(r.median(&recurrent_moments::state_gradient, 0));
+    cells.agrees = r.gates_agree() ? "yes" : "NO";
+    std::string text = detail::table_line(index, cells, t.label_width, o.measure);
     char line[512];
-    std::snprintf(line, sizeof line, "%-3zu %-*s %6llu %7llu %-10s %-14s %9s %11s %11s", index, t.label_width,
-                  cell.label().c_str(),
-                  static_cast<unsigned long long>(cell.input_width()), static_cast<unsigned long long>(cell.hidden()),
-                  cell_kind_name(cell.kind()), cell.input_scheme().c_str(), std_text(cell.input_weight_variance()).c_str(),
-                  number_text(gate_predicted).c_str(), "-");
-    std::string text = line;
-    if (o.measure) {
-      std::snprintf(line, sizeof line, " %11s %7s %11s %7s  %s", number_text(gate_measured).c_str(),
-                    number_text(std::exp(g0.spread), 3).c_str(),
-                    number_text(r.median(&recurrent_moments::state_gradient, 0)).c_str(), "-",
-                    r.gates_agree() ? "yes" : "NO");
-      text += line;
-    }
     std::snprintf(line, sizeof line,
                   "\n    cell: %s over %llu steps, forget bias %s, recurrent %s (sd %s); fwd: the %s gate's "
                   "pre-activation at the last step; gates %s the mean field at every step; measured only: state "
@@ -544,10 +520,7 @@ int run_plan(const plan_options& o) {
                 static_cast<unsigned long long>(spec.input_width),
                 extent.empty() ? "features" : ("channels over " + extent + " positions").c_str(),
                 number_text(spec.input_variance).c_str());
-    std::printf("%-3s %-*s %6s %7s %-10s %-14s %9s %11s %11s", "#", t.label_width, "layer", "fan_in", "fan_out", "activation",
-                "scheme", "weight_sd", "fwd_var", "bwd_var");
-    if (o.measure) std::printf(" %11s %7s %11s %7s  %s", "fwd_med", "x/", "bwd_med", "x/", "agrees");
-    std::printf("\n");
+    std::printf("%s\n", detail::table_header(t.label_width, o.measure).c_str());
     for (const std::string& line : lines) std::printf("%s\n", line.c_str());
     if (!sections.cells.empty()) {
       std::printf("recurrent cells: %zu draws of %llu samples; the layers above a cell are predicted from its measured "

@@ -15,7 +15,9 @@
 #include <doctest/doctest.h>
 
 #include <cmath>
+#include <sstream>
 #include <string>
+#include <vector>
 
 #include "../support/errors.hpp"
 
@@ -160,4 +162,39 @@ TEST_CASE("rate: false-alarm rate of the attention verdict on correct blocks, at
   // 240 tables: a binomial at 0.2 stays below 0.29 with probability > 0.999.
   CHECK(table_rate <= 0.29);
   CHECK(default_no == 0);
+}
+
+// The table has the columns of propagation_report::table() and `kindling plan` (one
+// formatter, detail::table_line): a projection row is a dense layer of fans (d, d)
+// without an activation, its weights' sd LeCun's sqrt(1/fan_in) (LeCun et al. 1998,
+// sec. 4.6; common practice) = sqrt(1/32); the softmax row has no prediction
+// ("measured") and no verdict ("-").
+TEST_CASE("an attention table has the propagation table's columns") {
+  const attention_block block(32, 2, 8, lecun_normal{}, lecun_normal{});
+  attention_options o;
+  o.trials = 4;
+  const attention_report r = compare_attention(block, 5, stream::root(5), o);
+  const auto words = [](const std::string& line) {
+    std::istringstream in(line);
+    std::vector<std::string> w;
+    for (std::string x; in >> x;) w.push_back(x);
+    return w;
+  };
+  std::istringstream text(r.table());
+  std::vector<std::vector<std::string>> lines;
+  for (std::string line; std::getline(text, line);) lines.push_back(words(line));
+  REQUIRE(lines.size() >= 8);
+  CHECK(lines[0] == std::vector<std::string>{"#", "layer", "fan_in", "fan_out", "activation", "scheme", "weight_sd",
+                                             "fwd_var", "bwd_var", "fwd_med", "x/", "bwd_med", "x/", "agrees"});
+  REQUIRE(lines[1].size() == 14);
+  CHECK(lines[1][1] == "query");
+  CHECK(lines[1][2] == "32");
+  CHECK(lines[1][3] == "32");
+  CHECK(lines[1][4] == "identity");
+  CHECK(lines[1][5] == block.scheme(0));
+  CHECK(std::stod(lines[1][6]) == doctest::Approx(std::sqrt(1.0 / 32)).epsilon(1e-3));
+  REQUIRE(lines[5].size() == 14);
+  CHECK(lines[5][1] == "softmax");
+  CHECK(lines[5][7] == "measured");
+  CHECK(lines[5][13] == "-");
 }

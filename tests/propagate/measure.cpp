@@ -16,6 +16,10 @@
 #include "kindling/propagate/criticality.hpp"
 #include "kindling/schemes/fan_scaled.hpp"
 
+#include <sstream>
+#include <string>
+#include <vector>
+
 #include <doctest/doctest.h>
 
 #include "../support/errors.hpp"
@@ -269,6 +273,42 @@ TEST_CASE("Student's t two-sided quantiles match closed forms and scipy.stats.t.
     CAPTURE(r.p);
     CHECK(detail::student_t_two_sided(r.p, r.nu) == doctest::Approx(r.t).epsilon(1e-8));
   }
+}
+
+// The table's columns are those of `kindling plan --measure` (the same formatter,
+// detail::table_header / table_line): a row says what the layer is -- its fans, its
+// activation, its scheme and the weights' standard deviation, here Glorot & Bengio
+// (2010) eq. 16's normal form, Var W = 2 / (fan_in + fan_out) = 2/128, sd 0.125 -- next to
+// what is predicted and measured.
+TEST_CASE("the table has the tool's columns: fans, activation, scheme and weight sd beside the variances") {
+  layer_stack s(64);
+  for (int i = 0; i < 2; ++i) s.add_dense(64, activation::tanh(), glorot_normal{}, 0.1);
+  measure_options o;
+  o.trials = 4;
+  const propagation_report r = compare_propagation(s, 50, stream::root(5), o);
+  std::istringstream lines(r.table());
+  std::string header, row;
+  std::getline(lines, header);
+  std::getline(lines, row);
+  const auto words = [](const std::string& line) {
+    std::istringstream in(line);
+    std::vector<std::string> w;
+    for (std::string x; in >> x;) w.push_back(x);
+    return w;
+  };
+  CHECK(words(header) == std::vector<std::string>{"#", "layer", "fan_in", "fan_out", "activation", "scheme", "weight_sd",
+                                                  "fwd_var", "bwd_var", "fwd_med", "x/", "bwd_med", "x/", "agrees"});
+  const std::vector<std::string> first = words(row);
+  REQUIRE(first.size() == 14);
+  CHECK(first[0] == "1");
+  CHECK(first[1] == "layer1");
+  CHECK(first[2] == "64");
+  CHECK(first[3] == "64");
+  CHECK(first[4] == "tanh");
+  CHECK(first[5] == r.layers[0].predicted.scheme);
+  CHECK(std::stod(first[6]) == doctest::Approx(0.125).epsilon(1e-3));
+  CHECK(std::stod(first[7]) == doctest::Approx(r.layers[0].predicted.preactivation_variance).epsilon(1e-3));
+  CHECK(first[13] == (r.layers[0].agrees ? "yes" : "NO"));
 }
 
 // The draws are the documented streams: draw k is realize(stack, s.indexed(k)) with the

@@ -488,6 +488,10 @@ elif CASE == "json":
     # they were judged, and the table's false-alarm budget is the sum over its three parts
     # (two stacks and the block, 0.001 each: Bonferroni)
     text = expect_code(0, "plan", "belt_attention.json", "--measure", "--batch", "16", "--trials", "6")[0]
+    # the columns of the library's tables (propagation_report::table, attention_report::table)
+    columns = ["#", "layer", "fan_in", "fan_out", "activation", "scheme", "weight_sd", "fwd_var", "bwd_var",
+               "fwd_med", "x/", "bwd_med", "x/", "agrees"]
+    expect(text.splitlines()[1].split() == columns, f"plan --measure's columns: {text.splitlines()[1]!r}")
     expect("rows 1: " in text and "rows 9: " in text and "false alarm <= 0.001 for these rows" in text
            and "the whole table: false alarm <= 0.003" in text, f"the method lines of a cut table: {text}")
     _, err = expect_code(2, "plan", "belt_attention.json", "--batch", "100000000")

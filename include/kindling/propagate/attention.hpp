@@ -313,7 +313,33 @@ struct attention_row {
   double spread = 0;         // standard deviation over draws of ln(moment)
   bool judged = false;       // has a prediction given the draw (not the softmax row)
   measured_moment verdict;   // over the ratios m_k / p_k (predicted 1), when judged
+  bool projection = false;   // query, key, value, output: a dense layer, fans (width, width)
+  std::string scheme;        // a projection's scheme
+  double weight_variance = 0;  // a projection's Var W per element
 };
+
+namespace detail {
+// A row's cells in the columns of every propagation table (measure.hpp): the
+// projections are dense layers without an activation; fwd_var is the prediction from
+// the schemes, "measured" where there is none; no backward columns (forward only).
+inline table_cells attention_cells(const attention_row& r, std::string label) {
+  table_cells c;
+  c.label = std::move(label);
+  if (r.projection) {
+    c.fan_in = c.fan_out = std::to_string(r.width);
+    c.activation = "identity";
+    c.scheme = r.scheme;
+    c.weight_sd = table_number(std::sqrt(r.weight_variance));
+  } else if (r.name == "softmax") {
+    c.activation = "softmax";
+  }
+  c.fwd_var = std::isnan(r.planned) ? "measured" : table_number(r.planned);
+  c.fwd_med = table_number(r.median);
+  c.fwd_spread = table_number(std::exp(r.spread), 3);
+  c.agrees = !r.judged ? "-" : r.verdict.agrees ? "yes" : "NO";
+  return c;
+}
+}  // namespace detail
 
 struct attention_report {
   std::vector<attention_row> rows;        // query, key, value, score, softmax, mix, output
@@ -336,16 +362,12 @@ struct attention_report {
   /// A plain-text table with the columns of propagation_report::table() (the backward
   /// ones "-": forward only); the softmax row's moment is the concentration E[sum p^2].
   std::string table() const {
-    std::string s = detail::measured_table_header();
+    const int width = detail::table_label_width(7);
+    std::string s = detail::table_header(width, true) + "\n";
     char line[512];
-    for (const auto& r : rows) {
-      char planned[32];
-      if (std::isnan(r.planned)) std::snprintf(planned, sizeof planned, "measured");
-      else std::snprintf(planned, sizeof planned, "%.4g", r.planned);
-      std::snprintf(line, sizeof line, "%-10s %6llu %11s %11.4g %7.3g %11s %11s %7s  %s\n", r.name.c_str(),
-                    static_cast<unsigned long long>(r.width), planned, r.median, std::exp(r.spread), "-", "-", "-",
-                    !r.judged ? "-" : r.verdict.agrees ? "yes" : "NO");
-      s += line;
+    for (std::size_t i = 0; i < rows.size(); ++i) {
+      const attention_row& r = rows[i];
+      s += detail::table_line(i + 1, detail::attention_cells(r, r.name), width, true) + "\n";
       if (r.judged && !r.verdict.agrees) {
         std::snprintf(line, sizeof line, "    disagrees: mean/predicted = %.4g given the draw, outside the band x/%.4g\n",
                       std::exp(r.verdict.deviation), std::exp(r.verdict.tolerance));
@@ -455,6 +477,12 @@ attention_report compare_attention(const attention_block& measured, const attent
     r.name = sp.name;
     r.width = sp.width;
     r.planned = sp.planned;
+    const int which = &sp - specs < 3 ? static_cast<int>(&sp - specs) : &sp - specs == 6 ? 3 : -1;
+    if (which >= 0) {  // query, key, value, output: the projections' schemes
+      r.projection = true;
+      r.scheme = measured.scheme(static_cast<std::size_t>(which));  // the weights drawn
+      r.weight_variance = measured.weight_variance(static_cast<std::size_t>(which));
+    }
     std::vector<double> values;
     for (const auto& m : report.draws) values.push_back(m.*(sp.moment));
     r.median = detail::median_of(values);

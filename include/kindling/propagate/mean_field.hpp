@@ -146,6 +146,10 @@ inline fixed_point_result length_fixed_point(const nonlinearity& phi, double sig
 struct layer_prediction {
   std::string label;
   std::uint64_t width = 0;
+  kindling::fans fans;               // of W_l (a residual sum: its projection's, or the skip's)
+  std::string activation;            // phi_l's name
+  std::string scheme;                // as the stack names it
+  double weight_variance = 0;        // Var W_l per element
   double forward_scale = 0;          // fan_in Var W
   double backward_scale = 0;         // fan_out Var W
   double preactivation_variance = 0; // q_l = E[h_l^2]
@@ -310,6 +314,10 @@ inline std::vector<layer_prediction> predict(const layer_stack& stack,
     layer_prediction& r = rows[l];
     r.label = L.label;
     r.width = L.width;
+    r.fans = L.fans;
+    r.activation = std::string(L.act.name());
+    r.scheme = L.scheme;
+    r.weight_variance = L.weight_variance;
     r.forward_scale = L.forward_scale();
     r.backward_scale = L.backward_scale();
     std::vector<double> q;

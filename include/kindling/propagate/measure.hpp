@@ -308,12 +308,78 @@ inline std::string moment_verdict(const char* pass, const measured_moment& m) {
          ratio_text(m.median) + " against " + ratio_text(m.predicted) + "), outside the band x/" +
          ratio_text(std::exp(m.tolerance)) + " (one draw varies by x/" + ratio_text(std::exp(m.spread)) + ")";
 }
-// The header line of the measured tables (propagation, recurrent, attention).
-inline std::string measured_table_header() {
-  char line[160];
-  std::snprintf(line, sizeof line, "%-10s %6s %11s %11s %7s %11s %11s %7s  %s\n", "layer", "width", "fwd_var",
-                "fwd_med", "x/", "bwd_var", "bwd_med", "x/", "agrees");
-  return line;
+// The columns of every propagation table, the library's (propagation_report::table,
+// attention_report::table) and `kindling plan`'s: what the layer is (fans, activation,
+// scheme, weight_sd), what the mean field predicts (fwd_var, bwd_var) and, measured,
+// the median over the draws with how much one draw varies (x/) and the verdict.  "-"
+// where a column does not apply.
+struct table_cells {
+  std::string label, fan_in = "-", fan_out = "-", activation = "-", scheme = "-", weight_sd = "-";
+  std::string fwd_var = "-", bwd_var = "-";
+  std::string fwd_med = "-", fwd_spread = "-", bwd_med = "-", bwd_spread = "-", agrees = "-";
+};
+
+inline std::string table_number(double x, int digits = 4) {
+  char text[48];
+  std::snprintf(text, sizeof text, "%.*g", digits, x);
+  return text;
+}
+
+// The layer column is as wide as the longest label, from 9 to 32 characters.
+inline int table_label_width(std::size_t longest) {
+  return static_cast<int>(std::min<std::size_t>(std::max<std::size_t>(longest, 9), 32));
+}
+
+inline std::string table_header(int label_width, bool measured) {
+  char line[256];
+  std::snprintf(line, sizeof line, "%-3s %-*s %6s %7s %-10s %-14s %9s %11s %11s", "#", label_width, "layer", "fan_in",
+                "fan_out", "activation", "scheme", "weight_sd", "fwd_var", "bwd_var");
+  std::string s = line;
+  if (measured) {
+    std::snprintf(line, sizeof line, " %11s %7s %11s %7s  %s", "fwd_med", "x/", "bwd_med", "x/", "agrees");
+    s += line;
+  }
+  return s;
+}
+
+// One row, without its newline; `index` counts from 1.
+inline std::string table_line(std::size_t index, const table_cells& c, int label_width, bool measured) {
+  char line[640];
+  std::snprintf(line, sizeof line, "%-3zu %-*s %6s %7s %-10s %-14s %9s %11s %11s", index, label_width, c.label.c_str(),
+                c.fan_in.c_str(), c.fan_out.c_str(), c.activation.c_str(), c.scheme.c_str(), c.weight_sd.c_str(),
+                c.fwd_var.c_str(), c.bwd_var.c_str());
+  std::string s = line;
+  if (measured) {
+    std::snprintf(line, sizeof line, " %11s %7s %11s %7s  %s", c.fwd_med.c_str(), c.fwd_spread.c_str(),
+                  c.bwd_med.c_str(), c.bwd_spread.c_str(), c.agrees.c_str());
+    s += line;
+  }
+  return s;
+}
+
+// A predicted layer's cells (the measured ones "-").
+inline table_cells prediction_cells(const layer_prediction& p) {
+  table_cells c;
+  c.label = p.label;
+  c.fan_in = std::to_string(p.fans.fan_in);
+  c.fan_out = std::to_string(p.fans.fan_out);
+  c.activation = p.activation;
+  c.scheme = p.scheme;
+  c.weight_sd = table_number(std::sqrt(p.weight_variance));
+  c.fwd_var = table_number(p.preactivation_variance);
+  c.bwd_var = table_number(p.gradient_variance);
+  return c;
+}
+
+// The same with the measured cells of a comparison.
+inline table_cells comparison_cells(const layer_comparison& l) {
+  table_cells c = prediction_cells(l.predicted);
+  c.fwd_med = table_number(l.preactivation.median);
+  c.fwd_spread = table_number(std::exp(l.preactivation.spread), 3);
+  c.bwd_med = table_number(l.gradient.median);
+  c.bwd_spread = table_number(std::exp(l.gradient.spread), 3);
+  c.agrees = l.agrees ? "yes" : "NO";
+  return c;
 }
 
 }  // namespace detail
@@ -347,18 +413,16 @@ struct propagation_report {
                   false_alarm);
     return line;
   }
-  /// A plain-text table, one row a layer, the same columns as `kindling plan --measure`.
+  /// A plain-text table, one row a layer, with the columns of `kindling plan --measure`
+  /// (detail::table_header), each row's warnings and disagreement under it.
   std::string table() const {
-    std::string s = detail::measured_table_header();
-    char line[512];
+    std::size_t longest = 0;
+    for (const layer_comparison& l : layers) longest = std::max(longest, l.predicted.label.size());
+    const int width = detail::table_label_width(longest);
+    std::string s = detail::table_header(width, true) + "\n";
     for (std::size_t i = 0; i < layers.size(); ++i) {
       const layer_comparison& l = layers[i];
-      std::snprintf(line, sizeof line, "%-10s %6llu %11.4g %11.4g %7.3g %11.4g %11.4g %7.3g  %s\n",
-                    l.predicted.label.c_str(), static_cast<unsigned long long>(l.predicted.width),
-                    l.predicted.preactivation_variance, l.preactivation.median, std::exp(l.preactivation.spread),
-                    l.predicted.gradient_variance, l.gradient.median, std::exp(l.gradient.spread),
-                    l.agrees ? "yes" : "NO");
-      s += line;
+      s += detail::table_line(i + 1, detail::comparison_cells(l), width, true) + "\n";
       for (const auto& w : l.predicted.warnings) s += "    warning: " + w + "\n";
       if (!l.agrees) s += "    disagrees: " + disagreement(i) + "\n";
     }
