@@ -37,7 +37,9 @@
 // "layers" are the branch (read from the top of the stack), "scaling" is none
 // (default), inverse-sqrt (1/sqrt(blocks)), fixup or fixup-keep-last (Fixup's rule,
 // with or without the last branch layer zeroed), "blocks" the L of those rules
-// (required by them), "projection" a scheme for a dense projection skip.  What only the
+// (required by them), or normalization-free (x + alpha branch(x / beta), beta the
+// stream's predicted standard deviation below the block; "alpha" >= 0, default 0.2),
+// "projection" a scheme for a dense projection skip.  What only the
 // stack can check -- a kernel larger than the padded input, groups that do not divide
 // the channels, a branch whose width does not match its skip -- is refused naming the
 // key (layers[2].conv.kernel, layers[0].residual.layers) with the library's reason.
@@ -120,6 +122,7 @@ struct layer_spec {
   std::vector<layer_spec> branch;
   std::string scaling = "none";
   std::uint64_t blocks = 1;
+  double alpha = 0.2;  // normalization-free: the branch output's scale
   std::string projection;
   /// A recurrent cell ("recurrent"): its kind, hidden units, steps, forget bias, schemes.
   bool recurrent = false;
@@ -302,7 +305,7 @@ inline std::vector<std::uint64_t> spec_sizes(const nlohmann::json& v, const std:
 }
 
 inline const std::vector<std::string>& spec_scaling_names() {
-  static const std::vector<std::string> names{"none", "inverse-sqrt", "fixup", "fixup-keep-last"};
+  static const std::vector<std::string> names{"none", "inverse-sqrt", "fixup", "fixup-keep-last", "normalization-free"};
   return names;
 }
 
@@ -320,13 +323,21 @@ inline void spec_residual(const nlohmann::json& l, const std::string& source, co
   spec_keys(l, source, path, {"residual", "label"});
   const nlohmann::json& r = l["residual"];
   const std::string rpath = path + ".residual";
-  spec_keys(r, source, rpath, {"layers", "scaling", "blocks", "projection"});
+  spec_keys(r, source, rpath, {"layers", "scaling", "blocks", "alpha", "projection"});
   s.residual = true;
   s.branch = spec_layers(spec_required(r, source, rpath, "layers"), source, rpath + ".layers");
   if (r.contains("scaling")) s.scaling = spec_name(r["scaling"], source, rpath + ".scaling", spec_scaling_names());
+  const bool nf = s.scaling == "normalization-free";
+  if (r.contains("alpha")) {
+    if (!nf) {
+      throw std::invalid_argument("kindling network spec " + source + ": '" + rpath + ".alpha' is given with scaling '" +
+                                  s.scaling + "', expected it only with scaling 'normalization-free'");
+    }
+    s.alpha = spec_number(r["alpha"], source, rpath + ".alpha", false, true);
+  }
   if (r.contains("blocks")) {
     s.blocks = spec_width(r["blocks"], source, rpath + ".blocks");
-  } else if (s.scaling != "none") {
+  } else if (s.scaling != "none" && !nf) {
     throw std::invalid_argument("kindling network spec " + source + ": '" + rpath + "' has scaling '" + s.scaling +
                                 "' but no key 'blocks', expected the number of residual blocks L of the rule");
   }
@@ -584,7 +595,9 @@ inline void spec_add_layers(layer_stack& stack, const std::vector<layer_spec>& l
         const residual_scaling scaling = l.scaling == "inverse-sqrt"      ? residual_scaling::inverse_sqrt(l.blocks)
                                          : l.scaling == "fixup"           ? residual_scaling::fixup(l.blocks)
                                          : l.scaling == "fixup-keep-last" ? residual_scaling::fixup(l.blocks, false)
-                                                                          : residual_scaling::none();
+                                         : l.scaling == "normalization-free"
+                                             ? normalization_free_scaling(stack, l.alpha)
+                                             : residual_scaling::none();
         if (l.projection.empty()) {
           stack.add_residual(branch, scaling, l.label);
         } else {

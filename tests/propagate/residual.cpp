@@ -4,7 +4,8 @@
 // Sources: Hanin & Rolnick, NeurIPS 2018 (residual streams: without branch scaling the
 // second moment grows with depth, a summable series of scales bounds it); Zhang, Dauphin
 // & Ma, ICLR 2019 (Fixup: the first m - 1 branch layers scaled by L^(-1/(2m-2)), the last
-// zero); He et al., ICCV 2015 (He weights keep E[h^2] through ReLU).  The recursion is
+// zero); Brock, De & Smith, ICLR 2021 (normalizer-free: x + alpha branch(x / beta), from
+// memory); He et al., ICCV 2015 (He weights keep E[h^2] through ReLU).  The recursion is
 // derived beside predict(): for a branch independent of the stream and zero-mean last
 // weights, Var(x_{l+1}) = Var(x_l) + s^2 Var(branch(x_l)).
 #include "kindling/propagate/measure.hpp"
@@ -63,6 +64,8 @@ TEST_CASE("20 residual ReLU blocks scaled by 1/sqrt(blocks) or by Fixup's rule s
     const auto p = predict(s);
     CHECK(p.back().preactivation_variance == doctest::Approx(std::pow(1.1, 20.0)).epsilon(1e-12));
     for (std::size_t b = 0; b < 20; ++b) CHECK(p[3 * b + 2].preactivation_variance <= std::exp(2.0));  // the stream
+    // the branches' gradients are s^2 = 1/20 of the stream's by design: no drift warning
+    for (const auto& row : p) CHECK(row.warnings.empty());
     for (std::uint64_t seed : {4u, 5u, 6u}) check_every_row_agrees(compare_propagation(s, 16, stream::root(seed)));
   }
   SUBCASE("Fixup with its last branch layer zero: the stream stays at its input variance") {
@@ -81,6 +84,74 @@ TEST_CASE("20 residual ReLU blocks scaled by 1/sqrt(blocks) or by Fixup's rule s
     CHECK(p.back().preactivation_variance == doctest::Approx(std::pow(1.1, 20.0)).epsilon(1e-12));
     for (std::uint64_t seed : {8u, 9u, 10u}) check_every_row_agrees(compare_propagation(s, 16, stream::root(seed)));
   }
+}
+
+// Normalizer-free blocks (Brock, De & Smith, ICLR 2021, from memory): x + alpha
+// branch(x / beta), beta the stream's expected standard deviation at the block.  With a
+// variance-preserving branch -- a He ReLU layer (E[relu(h)^2] = q / 2 = E[x^2], He et al.
+// 2015 eq. 10) then a LeCun linear layer (fan_in Var W = 1) -- the stream grows by exactly
+// alpha^2 a block: Var(x_i) = 1 + i alpha^2, linear in depth instead of 3^i unscaled.
+namespace {
+layer_stack preserving_branch(std::uint64_t width) {
+  layer_stack b(width);
+  b.add_dense(width, activation::relu(), he_normal{}).add_dense(width, activation::identity(), lecun_normal{});
+  return b;
+}
+}  // namespace
+
+TEST_CASE("20 normalizer-free blocks: the stream grows by alpha^2 a block, as predicted and measured") {
+  const double alpha = 0.2;
+  layer_stack s(64);
+  for (int i = 0; i < 20; ++i) s.add_residual(preserving_branch(64), normalization_free_scaling(s, alpha));
+  const auto p = predict(s);
+  for (std::size_t b = 0; b < 20; ++b) {
+    CAPTURE(b);
+    const double before = 1.0 + alpha * alpha * static_cast<double>(b);  // Var(x_b), the block's input
+    CHECK(s[3 * b].weight_variance == doctest::Approx(2.0 / 64 / before).epsilon(1e-12));  // He / beta^2
+    CHECK(s[3 * b + 2].branch_scale == alpha);
+    CHECK(p[3 * b].preactivation_variance == doctest::Approx(2.0).epsilon(1e-12));  // the branch reads unit variance
+    CHECK(p[3 * b + 2].preactivation_variance == doctest::Approx(before + alpha * alpha).epsilon(1e-12));
+  }
+  for (const auto& row : p) CHECK(row.warnings.empty());
+  for (std::uint64_t seed : {11u, 12u, 13u}) check_every_row_agrees(compare_propagation(s, 16, stream::root(seed)));
+
+  SUBCASE("a beta left at 1 (the input not divided) is caught: measured grows as (1 + alpha^2)^i") {
+    const double a = 0.5;  // 1.25^20 = 87 against the 1 + 20/4 = 6 predicted
+    layer_stack right(64), wrong(64);
+    for (int i = 0; i < 20; ++i) {
+      right.add_residual(preserving_branch(64), normalization_free_scaling(right, a));
+      wrong.add_residual(preserving_branch(64), residual_scaling::normalization_free(a, 1.0));
+    }
+    CHECK(predict(wrong).back().preactivation_variance == doctest::Approx(std::pow(1.25, 20.0)).epsilon(1e-12));
+    const propagation_report r = compare_propagation(wrong, predict(right), 16, stream::root(14));
+    CHECK_FALSE(r.layers.back().preactivation.agrees);
+  }
+  SUBCASE("on feature maps with convolution branches: predicted and measured agree") {
+    layer_stack m = layer_stack::feature_maps(16, {8});
+    const convolution_geometry same{{}, same_padding({3}), {}};
+    for (int i = 0; i < 4; ++i) {
+      layer_stack b = layer_stack::feature_maps(16, {8});
+      b.add_convolution(convolution(16, 16, {3}), same, activation::relu(), he_normal{})
+          .add_convolution(convolution(16, 16, {3}), same, activation::identity(), lecun_normal{});
+      m.add_residual(b, normalization_free_scaling(m, alpha));
+    }
+    check_every_row_agrees(compare_propagation(m, 16, stream::root(15)));
+  }
+}
+
+// Drift warnings compare the stream with the stream and a branch with itself: a deep
+// branch of Glorot ReLU layers halves E[a^2] a layer (He et al. 2015, eq. 10 with
+// n Var W = 1), 2^6 = 64 over six layers, and is warned about inside the branch.
+TEST_CASE("drift inside a residual branch is still warned about") {
+  layer_stack s(64);
+  layer_stack deep(64);
+  for (int i = 0; i < 6; ++i) deep.add_dense(64, activation::relu(), glorot_normal{});
+  s.add_residual(deep, residual_scaling::none(), "deep");
+  const auto p = predict(s);
+  std::size_t inside = 0;
+  for (std::size_t l = 0; l < 6; ++l)
+    for (const auto& w : p[l].warnings) inside += w.find("forward") == 0 && w.find("vanishes") != std::string::npos;
+  CHECK(inside >= 1);
 }
 
 TEST_CASE("the unscaled prediction is caught when the branch scale is wrong") {
@@ -133,6 +204,12 @@ TEST_CASE("residual blocks refuse a branch that does not fit its skip, with the 
                  "argument 'branch' = a branch of 1 layer, expected at least 2 layers for Fixup's rule"));
   CHECK(mentions(message_of<std::invalid_argument>([&] { s.add_residual(he_branch(8), residual_scaling::inverse_sqrt(0)); }),
                  "argument 'scaling.blocks' = 0"));
+  CHECK(mentions(message_of<std::invalid_argument>(
+                     [&] { s.add_residual(he_branch(8), residual_scaling::normalization_free(0.2, 0.0)); }),
+                 "argument 'scaling.beta' = 0, expected a finite number > 0"));
+  CHECK(mentions(message_of<std::invalid_argument>(
+                     [&] { s.add_residual(he_branch(8), residual_scaling::normalization_free(-1.0, 1.0)); }),
+                 "argument 'scaling.alpha' = -1, expected a finite number >= 0"));
   layer_stack maps = layer_stack::feature_maps(4, {5});
   layer_stack conv_branch = layer_stack::feature_maps(4, {5});
   conv_branch.add_convolution(convolution(4, 4, {1}), activation::relu(), he_normal{});

@@ -89,7 +89,9 @@ TEST_CASE("a spec whose convolution or residual block cannot be built is refused
       {"scaling without blocks", R"({"residual": {"layers": [{"width": 4, "activation": "relu", "scheme": "he-normal", "conv": {"kernel": [1]}}], "scaling": "fixup"}})",
        "'layers[0].residual' has scaling 'fixup' but no key 'blocks'"},
       {"unknown scaling", R"({"residual": {"layers": [{"width": 4, "activation": "relu", "scheme": "he-normal"}], "scaling": "half"}})",
-       "'layers[0].residual.scaling' = \"half\", expected one of none, inverse-sqrt, fixup, fixup-keep-last"},
+       "'layers[0].residual.scaling' = \"half\", expected one of none, inverse-sqrt, fixup, fixup-keep-last, normalization-free"},
+      {"alpha with another scaling", R"({"residual": {"layers": [{"width": 4, "activation": "relu", "scheme": "he-normal"}], "scaling": "fixup", "blocks": 2, "alpha": 0.2}})",
+       "'layers[0].residual.alpha' is given with scaling 'fixup', expected it only with scaling 'normalization-free'"},
       {"residual with a width", R"({"residual": {"layers": [{"width": 4, "activation": "relu", "scheme": "he-normal"}]}, "width": 4})",
        "unknown key 'layers[0].width'"},
       {"kernel of the wrong rank", R"({"width": 4, "activation": "relu", "scheme": "he-normal", "conv": {"kernel": [3, 3]}})",
@@ -108,10 +110,40 @@ TEST_CASE("a spec whose convolution or residual block cannot be built is refused
   std::vector<bad_spec> whole;
   for (const bad_case& c : cases) whole.push_back({c.what, input + c.layers + "]}", c.expected});
   check_refused(whole);
+  CHECK(kindling_test::message_of<std::domain_error>([&] {
+          parse_network_spec(input + R"({"residual": {"layers": [{"width": 4, "activation": "relu", "scheme": "he-normal"}], )"
+                                     R"("scaling": "normalization-free", "alpha": -0.5}}]})", "'belt.json'");
+        }).find("'layers[0].residual.alpha' = -0.5, expected a finite number >= 0") != std::string::npos);
   CHECK(message_of(R"({"input": {"width": 4}, "layers": [{"width": 4, "activation": "relu", "scheme": "he-normal", "conv": {"kernel": [3]}}]})")
             .find("'layers[0].conv' is refused: a convolution needs a feature map below it") != std::string::npos);
   CHECK(message_of(R"({"input": {"width": 4, "extent": [0]}, "layers": [{"width": 4, "activation": "relu", "scheme": "he-normal"}]})")
             .find("'input.extent' = [0], expected an array of 1 to 3 positive integers") != std::string::npos);
+}
+
+// Normalizer-free blocks (Brock, De & Smith, ICLR 2021, from memory): the branch input
+// divided by beta, the stream's predicted standard deviation below the block (folded into
+// the branch's first weights: He's 2 / fan_in over beta^2), the branch output times alpha.
+// Over a unit-variance input, after a first block of a He ReLU layer and a LeCun linear
+// layer, the stream has E[x^2] = 1 + alpha^2 (the branch preserves the unit variance it reads).
+TEST_CASE("a spec's normalization-free residual blocks divide by the stream's predicted deviation") {
+  const network_spec spec = parse_network_spec(R"({
+    "input": {"width": 16},
+    "layers": [
+      {"residual": {"layers": [{"width": 16, "activation": "relu", "scheme": "he-normal"},
+                               {"width": 16, "activation": "identity", "scheme": "lecun-normal"}],
+                    "scaling": "normalization-free", "alpha": 0.5}},
+      {"residual": {"layers": [{"width": 16, "activation": "relu", "scheme": "he-normal"},
+                               {"width": 16, "activation": "identity", "scheme": "lecun-normal"}],
+                    "scaling": "normalization-free"}}
+    ]})");
+  const layer_stack s = build_stack(spec);
+  REQUIRE(s.depth() == 6);
+  CHECK(s[0].weight_variance == doctest::Approx(2.0 / 16).epsilon(1e-12));           // beta = 1
+  CHECK(s[2].branch_scale == 0.5);
+  CHECK(s[3].weight_variance == doctest::Approx(2.0 / 16 / 1.25).epsilon(1e-12));    // beta^2 = 1 + 0.5^2
+  CHECK(s[5].branch_scale == 0.2);                                                    // the default alpha
+  const auto p = predict(s);
+  CHECK(p[5].preactivation_variance == doctest::Approx(1.25 + 0.04).epsilon(1e-12));
 }
 
 TEST_CASE("a spec with 1-D convolutions, a GRU and a dense head is cut at the cell") {

@@ -209,14 +209,20 @@ inline double drift_amount(const std::vector<double>& unit, const std::vector<do
   return 0.0;
 }
 
-// Disjoint windows beyond log(limit), largest first, then on each side (greedy).
-inline void find_drifts(const std::vector<double>& unit, const std::vector<double>& layer, std::size_t lo,
-                        std::size_t hi, double log_limit, std::vector<drift_window>& out) {
+// Disjoint windows beyond log(limit), largest first, then on each side (greedy).  A
+// window joins two points of the same part (part[i] == part[j]): both on the residual
+// stream, or both inside one branch.  A branch's moments differ from the stream's by
+// its scale by design (a normalizer-free alpha = 0.2 or Fixup's factors make its
+// gradients 25x smaller or more), which is not drift with depth.
+inline void find_drifts(const std::vector<double>& unit, const std::vector<double>& layer,
+                        const std::vector<std::size_t>& part, std::size_t lo, std::size_t hi, double log_limit,
+                        std::vector<drift_window>& out) {
   if (hi <= lo) return;
   double best = 0.0;
   std::size_t bi = 0, bj = 0;
   for (std::size_t i = lo; i < hi; ++i) {
     for (std::size_t j = i + 1; j <= hi; ++j) {
+      if (part[i] != part[j]) continue;
       const double d = drift_amount(unit, layer, i, j);
       if (std::fabs(d) > std::fabs(best) * (1.0 + 1e-9)) {  // ties: the earliest start, then the shortest run
         best = d;
@@ -233,8 +239,8 @@ inline void find_drifts(const std::vector<double>& unit, const std::vector<doubl
   w.per_unit = unit[bj] / unit[bi];
   w.per_layer = layer[bj] / layer[bi];
   out.push_back(w);
-  find_drifts(unit, layer, lo, bi, log_limit, out);
-  find_drifts(unit, layer, bj, hi, log_limit, out);
+  find_drifts(unit, layer, part, lo, bi, log_limit, out);
+  find_drifts(unit, layer, part, bj, hi, log_limit, out);
 }
 
 inline std::string drift_sentence(const char* pass, const char* what, const drift_window& w,
@@ -408,9 +414,23 @@ inline std::vector<layer_prediction> predict(const layer_stack& stack,
     bwd_layer[n - k] = rows[k].gradient_variance * static_cast<double>(L.units());
   }
 
+  // The part of each layer: 0 on the stream, else 1 + the index of the residual sum
+  // whose branch holds it (the innermost one: outer sums come later, so are seen first).
+  std::vector<std::size_t> part_of(n, 0);
+  for (std::size_t j = n; j-- > 0;) {
+    if (!layers[j].residual) continue;
+    for (std::size_t k = layers[j].skip_from; k < j; ++k) part_of[k] = j + 1;
+  }
+  // Points of the passes: forward point l + 1 is layer l's output, backward point p >= 1
+  // layer n - p's delta; point 0 (the input, the loss gradient) is on the stream.
+  std::vector<std::size_t> fwd_part(n + 1, 0), bwd_part(n + 1, 0);
+  for (std::size_t l = 0; l < n; ++l) {
+    fwd_part[l + 1] = part_of[l];
+    bwd_part[n - l] = part_of[l];
+  }
   const double log_limit = std::log(options.warn_factor);
   std::vector<detail::drift_window> found;
-  detail::find_drifts(fwd_unit, fwd_layer, 0, n, log_limit, found);
+  detail::find_drifts(fwd_unit, fwd_layer, fwd_part, 0, n, log_limit, found);
   std::sort(found.begin(), found.end(), [](const auto& a, const auto& b) { return a.from < b.from; });
   const auto layer_name = [&](std::size_t i) {
     const std::string number = "layer " + std::to_string(i + 1);
@@ -423,7 +443,7 @@ inline std::vector<layer_prediction> predict(const layer_stack& stack,
                                                            options.warn_factor));
   }
   found.clear();
-  detail::find_drifts(bwd_unit, bwd_layer, 0, n, log_limit, found);
+  detail::find_drifts(bwd_unit, bwd_layer, bwd_part, 0, n, log_limit, found);
   std::sort(found.begin(), found.end(), [](const auto& a, const auto& b) { return a.from < b.from; });
   for (const auto& w : found) {
     // The run starts where the pass enters it: the top layer for the loss gradient
@@ -435,6 +455,20 @@ inline std::vector<layer_prediction> predict(const layer_stack& stack,
                                "down to the pre-activations of " + layer_name(n - w.to), options.warn_factor));
   }
   return rows;
+}
+
+/// The normalizer-free scaling (residual_scaling::normalization_free) of a block about to
+/// be added on top of `stack`: beta = sqrt(E[x^2]) of the stack's top as predicted (its
+/// input when it has no layers; on a feature map the mean over positions), so that the
+/// branch reads inputs of unit second moment, and the branch output times alpha.
+inline residual_scaling normalization_free_scaling(const layer_stack& stack, double alpha) {
+  const double x2 = stack.empty() ? stack.input_second_moment() : predict(stack).back().activation_moment;
+  if (!(std::isfinite(x2) && x2 > 0.0)) {
+    detail::reject_argument<std::domain_error>("kindling::normalization_free_scaling", "stack",
+                                               "a stack whose top has E[x^2] = " + detail::argument_text(x2),
+                                               "a finite, positive second moment to divide the branch input by");
+  }
+  return residual_scaling::normalization_free(alpha, std::sqrt(x2));
 }
 
 }  // namespace kindling

@@ -28,6 +28,7 @@
 
 #include <cmath>
 #include <cstdint>
+#include <cstdio>
 #include <functional>
 #include <optional>
 #include <stdexcept>
@@ -176,16 +177,29 @@ double weight_variance_of(const Scheme& scheme, const fans& f) {
 ///                  m - 1 weight layers of a branch of m scaled by blocks^(-1/(2m-2))
 ///                  (fixup_factor), the last one zero; zero_last = false keeps the last
 ///                  layer as drawn (the scaling alone, to see what it does).
+///   normalization_free: x_{l+1} = x_l + alpha branch(x_l / beta), the rule of
+///                  normalizer-free residual networks (Brock, De & Smith, ICLR 2021, from
+///                  memory): beta the stream's expected standard deviation at the block's
+///                  input, so the branch reads unit-variance inputs, and with a
+///                  variance-preserving branch Var(x_{l+1}) = Var(x_l) + alpha^2.  The
+///                  1/beta is folded into the branch's first weight layer (it is linear in
+///                  its input); normalization_free_scaling(stack, alpha) in mean_field.hpp
+///                  takes beta from the prediction of the stack below the block.
 struct residual_scaling {
-  enum class rule { none, inverse_sqrt, fixup };
+  enum class rule { none, inverse_sqrt, fixup, normalization_free };
   rule kind = rule::none;
   std::uint64_t blocks = 1;
   bool zero_last = true;
+  double alpha = 1.0;  // normalization_free: the branch output's scale
+  double beta = 1.0;   // normalization_free: the branch input is divided by it
 
   static residual_scaling none() { return {}; }
   static residual_scaling inverse_sqrt(std::uint64_t blocks) { return {rule::inverse_sqrt, blocks, true}; }
   static residual_scaling fixup(std::uint64_t blocks, bool zero_last = true) {
     return {rule::fixup, blocks, zero_last};
+  }
+  static residual_scaling normalization_free(double alpha, double beta) {
+    return {rule::normalization_free, 1, true, alpha, beta};
   }
 };
 
@@ -460,6 +474,13 @@ class layer_stack {
     return layer;
   }
 
+  // beta in a scheme's name: four digits are enough to read (weight_sd has the value).
+  static std::string nf_beta_text(double beta) {
+    char text[32];
+    std::snprintf(text, sizeof text, "%.4g", beta);
+    return text;
+  }
+
   void append_residual(const layer_stack& branch, const residual_scaling& scaling, std::string label,
                        const stack_layer* projection) {
     const char* where = projection ? "kindling::layer_stack::add_projected_residual" : "kindling::layer_stack::add_residual";
@@ -484,6 +505,16 @@ class layer_stack {
     if (scaling.blocks == 0) {
       detail::reject_argument<std::invalid_argument>(where, "scaling.blocks", "0", "at least 1");
     }
+    if (scaling.kind == residual_scaling::rule::normalization_free) {
+      if (!(std::isfinite(scaling.alpha) && scaling.alpha >= 0.0)) {
+        detail::reject_argument<std::invalid_argument>(where, "scaling.alpha", detail::argument_text(scaling.alpha),
+                                                       "a finite number >= 0");
+      }
+      if (!(std::isfinite(scaling.beta) && scaling.beta > 0.0)) {
+        detail::reject_argument<std::invalid_argument>(where, "scaling.beta", detail::argument_text(scaling.beta),
+                                                       "a finite number > 0 (the stream's expected standard deviation)");
+      }
+    }
     const std::size_t m = branch.depth();
     if (scaling.kind == residual_scaling::rule::fixup && m < 2) {
       detail::reject_argument<std::invalid_argument>(
@@ -500,11 +531,15 @@ class layer_stack {
     for (std::size_t k = 0; k < m; ++k) {
       stack_layer l = branch.layers()[k];
       l.label = label + "." + l.label;
-      if (scaling.kind == residual_scaling::rule::fixup && (k + 1 < m || scaling.zero_last)) {
-        const bool zero = k + 1 == m;
-        const double factor = zero ? 0.0 : f;
+      const bool fixup = scaling.kind == residual_scaling::rule::fixup && (k + 1 < m || scaling.zero_last);
+      const bool nf_input = scaling.kind == residual_scaling::rule::normalization_free && k == 0;
+      if (fixup || nf_input) {
+        const bool zero = fixup && k + 1 == m;
+        const double factor = zero ? 0.0 : fixup ? f : 1.0 / scaling.beta;
         l.weight_variance *= factor * factor;
-        l.scheme += zero ? " zeroed (Fixup)" : " x " + detail::argument_text(factor) + " (Fixup)";
+        l.scheme += zero     ? " zeroed (Fixup)"
+                    : fixup ? " x " + detail::argument_text(factor) + " (Fixup)"
+                            : " / " + nf_beta_text(scaling.beta) + " (NF)";
         if (l.draw) {
           auto inner = l.draw;
           l.draw = [inner, factor](const strided_view<double>& w, const stream& st) {
@@ -530,7 +565,8 @@ class layer_stack {
     sum.skip_from = source;
     sum.branch_scale = scaling.kind == residual_scaling::rule::inverse_sqrt
                            ? 1.0 / std::sqrt(static_cast<double>(scaling.blocks))
-                           : 1.0;
+                       : scaling.kind == residual_scaling::rule::normalization_free ? scaling.alpha
+                                                                                    : 1.0;
     sum.extent_positions = projection ? 1 : positions;
     sum.sum_extent = projection ? std::vector<std::uint64_t>{} : extent;
     layers_.push_back(std::move(sum));
