@@ -20,8 +20,10 @@
 #include <vector>
 
 #include "../support/errors.hpp"
+#include "same_draws.hpp"
 
 using namespace kindling;
+using kindling_test::check_same_draws;
 using kindling_test::mentions;
 using kindling_test::message_of;
 
@@ -110,14 +112,8 @@ TEST_CASE("an attention block's measured draws are the same bits on any executor
   const attention_block block(32, 2, 8, lecun_normal{}, lecun_normal{});
   attention_options o;
   o.trials = 4;
-  const attention_report a = compare_attention(block, 5, stream::root(5), o);
-  const attention_report b = compare_attention(block, 5, stream::root(5), o, thread_executor(2));
-  for (std::size_t k = 0; k < 4; ++k) {
-    CHECK(a.draws[k].score == b.draws[k].score);
-    CHECK(a.draws[k].mix == b.draws[k].mix);
-    CHECK(a.draws[k].output == b.draws[k].output);
-  }
-  CHECK(a.draws[0].output != a.draws[1].output);  // derived streams, not one reused
+  check_same_draws([&](auto executor) { return compare_attention(block, 5, stream::root(5), o, executor); }, o.trials,
+                   &attention_moments::output, &attention_moments::score, &attention_moments::mix);
 }
 
 TEST_CASE("an attention block with heads not dividing the width, no tokens or no width is refused, naming it") {

@@ -9,12 +9,11 @@ concatenated, then the output projection) with numpy.einsum and a softmax over t
 every moment must agree to 1e-6 relative.
 Usage: check_attention.py <kindling_propagate_print_attention>
 """
-import json
-import subprocess
 import sys
-import tempfile
 
 import numpy as np
+
+from exported_draw import exported_draw
 
 
 def forward(Wq, Wk, Wv, Wo, x, heads, length):
@@ -48,9 +47,8 @@ def forward(Wq, Wk, Wv, Wo, x, heads, length):
 
 def main():
     failures = 0
-    with tempfile.TemporaryDirectory() as directory:
-        out = subprocess.run([sys.argv[1], directory], check=True, capture_output=True, text=True).stdout
-        for block in json.loads(out):
+    with exported_draw(sys.argv[1]) as (directory, blocks):
+        for block in blocks:
             stem = f"{directory}/{block['name']}"
             W = [np.load(f"{stem}.{p}_weight.npy") for p in ("query", "key", "value", "output")]
             x = np.load(stem + ".input.npy")

@@ -11,12 +11,11 @@ relative.
 Usage: check_convolution.py <kindling_propagate_print_convolution>
 """
 import itertools
-import json
-import subprocess
 import sys
-import tempfile
 
 import numpy as np
+
+from exported_draw import exported_draw
 
 # relu'(0) = 1, the derivative from the right (kindling's gain.hpp convention): exact
 # zeros do occur, where every tap a depthwise unit reads is a zero from the ReLU below.
@@ -109,9 +108,7 @@ def check_stack(directory, s):
 
 
 def main():
-    with tempfile.TemporaryDirectory() as directory:
-        out = subprocess.run([sys.argv[1], directory], check=True, capture_output=True, text=True).stdout
-        stacks = json.loads(out)
+    with exported_draw(sys.argv[1]) as (directory, stacks):
         ok = all([check_stack(directory, s) for s in stacks])
     sys.exit(0 if ok and len(stacks) == 4 else 1)
 

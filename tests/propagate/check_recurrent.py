@@ -10,12 +10,11 @@ candidate], h = u h_prev + (1 - u) n), forward and back through time by the chai
 step by step; every moment must agree to 1e-6 relative.
 Usage: check_recurrent.py <kindling_propagate_print_recurrent>
 """
-import json
-import subprocess
 import sys
-import tempfile
 
 import numpy as np
+
+from exported_draw import exported_draw
 
 
 def sigmoid(z):
@@ -90,9 +89,8 @@ def gru(W, U, b, xs, g):
 
 def main():
     failures = 0
-    with tempfile.TemporaryDirectory() as directory:
-        out = subprocess.run([sys.argv[1], directory], check=True, capture_output=True, text=True).stdout
-        for cell in json.loads(out):
+    with exported_draw(sys.argv[1]) as (directory, cells):
+        for cell in cells:
             stem = f"{directory}/{cell['kind']}"
             W, U = np.load(stem + ".input_weight.npy"), np.load(stem + ".recurrent_weight.npy")
             b = np.load(stem + ".bias.npy").reshape(-1)

@@ -18,8 +18,10 @@
 #include <string>
 
 #include "../support/errors.hpp"
+#include "same_draws.hpp"
 
 using namespace kindling;
+using kindling_test::check_same_draws;
 using kindling_test::mentions;
 using kindling_test::message_of;
 
@@ -81,15 +83,8 @@ TEST_CASE("a cell's measured draws are the same bits on any executor") {
   const recurrent_cell cell(cell_kind::gru, 8, 16, 20, lecun_normal{}, orthogonal{}, 1.0);
   recurrent_options o;
   o.trials = 4;
-  const recurrent_report a = compare_recurrent(cell, 10, stream::root(5), o);
-  const recurrent_report b = compare_recurrent(cell, 10, stream::root(5), o, thread_executor(2));
-  for (std::size_t k = 0; k < 4; ++k) {
-    CHECK(a.draws[k].state == b.draws[k].state);
-    CHECK(a.draws[k].gates == b.draws[k].gates);
-    CHECK(a.draws[k].state_gradient == b.draws[k].state_gradient);
-  }
-  // And the draws differ from each other (derived streams, not one stream reused).
-  CHECK(a.draws[0].state != a.draws[1].state);
+  check_same_draws([&](auto executor) { return compare_recurrent(cell, 10, stream::root(5), o, executor); }, o.trials,
+                   &recurrent_moments::state, &recurrent_moments::gates, &recurrent_moments::state_gradient);
 }
 
 TEST_CASE("a forget bias of 1 against 0: a larger LSTM cell state and gradients that reach further back in time") {

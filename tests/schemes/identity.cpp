@@ -4,6 +4,7 @@
 #include <doctest/doctest.h>
 
 #include "../support/errors.hpp"
+#include "../support/gain_refusal.hpp"
 #include "../support/layer_fill.hpp"
 
 #include <cstdint>
@@ -187,18 +188,13 @@ TEST_CASE("identity: a region of the weight equals that part of the whole") {
 
 TEST_CASE("identity: bad input throws a clear error before anything is written") {
   const auto st = kindling::make_stream(0, "unused");
-  kindling_test::guarded_memory<float> guard(96, 3.0f);
-  std::vector<float>& memory = guard.memory;
-  auto untouched = [&] { return guard.untouched(); };
+  kindling_test::guarded_memory<float> memory(96, 3.0f);
 
   SUBCASE("a non-finite gain") {
-    for (double gain : {std::numeric_limits<double>::quiet_NaN(), std::numeric_limits<double>::infinity()}) {
-      const std::string m = message_of<std::domain_error>([&] {
-        kindling::initialize(strided_view<float>(memory.data(), shape{8, 12}), kindling::dense(12, 8),
-                             kindling::identity{gain}, st);
-      });
-      CHECK_MESSAGE(mentions(m, "kindling::identity: argument 'gain'"), m);
-    }
+    kindling_test::check_non_finite_gains_refused("identity", [&](double gain) {
+      kindling::initialize(strided_view<float>(memory.data(), shape{8, 12}), kindling::dense(12, 8),
+                           kindling::identity{gain}, st);
+    });
   }
   SUBCASE("a convolution whose output and input channels differ") {
     const std::string m = message_of<std::invalid_argument>([&] {
@@ -239,5 +235,5 @@ TEST_CASE("identity: bad input throws a clear error before anything is written")
     CHECK_MESSAGE(mentions(m, "argument 'fans' = (fan_in 4, fan_out 4, receptive_field 1)"), m);
     CHECK(mentions(m, "expected receptive_field 6, fan_in 24"));
   }
-  CHECK_MESSAGE(untouched(), "expected the memory unchanged after a failed call");
+  CHECK_MESSAGE(memory.untouched(), "expected the memory unchanged after a failed call");
 }

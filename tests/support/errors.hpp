@@ -17,6 +17,7 @@ struct guarded_memory {
   std::vector<T> memory;
   std::vector<T> before;
   guarded_memory(std::size_t n, T value) : memory(n, value), before(memory) {}
+  T* data() { return memory.data(); }
   bool untouched() const { return std::memcmp(memory.data(), before.data(), memory.size() * sizeof(T)) == 0; }
 };
 

@@ -8,20 +8,15 @@
 #include <string>
 #include <vector>
 
-#include "kindling/io/npy.hpp"
 #include "kindling/propagate/attention.hpp"
 #include "kindling/schemes/fan_scaled.hpp"
 
+#include "export.hpp"
+
 using namespace kindling;
+using kindling_test::save_npy;
 
 namespace {
-void save(const std::string& path, const Eigen::MatrixXd& m) {
-  std::vector<double> values;  // row-major
-  for (Eigen::Index i = 0; i < m.rows(); ++i)
-    for (Eigen::Index j = 0; j < m.cols(); ++j) values.push_back(m(i, j));
-  write_npy(path, make_npy({static_cast<std::uint64_t>(m.rows()), static_cast<std::uint64_t>(m.cols())}, values));
-}
-
 void export_block(const std::string& dir, const std::string& name, const attention_block& block, std::uint64_t batch,
                   std::uint64_t seed, bool first) {
   attention_options o;
@@ -33,8 +28,8 @@ void export_block(const std::string& dir, const std::string& name, const attenti
   Eigen::MatrixXd x(static_cast<Eigen::Index>(block.width()), static_cast<Eigen::Index>(block.length() * batch));
   fill(view_of(x), dist::normal{0.0, std::sqrt(1.5)}, t.named("input"));
   const std::string stem = dir + "/" + name;
-  for (std::size_t i = 0; i < 4; ++i) save(stem + "." + projection_names()[i] + "_weight.npy", net.weight[i]);
-  save(stem + ".input.npy", x);
+  for (std::size_t i = 0; i < 4; ++i) save_npy(stem + "." + projection_names()[i] + "_weight.npy", net.weight[i]);
+  save_npy(stem + ".input.npy", x);
   const attention_moments& m = r.draws[0];
   std::printf("%s{\"name\": \"%s\", \"heads\": %llu, \"length\": %llu, \"variances\": [%.17g, %.17g, %.17g, %.17g], "
               "\"input\": %.17g, \"query\": %.17g, \"key\": %.17g, \"value\": %.17g, \"score\": %.17g, "
@@ -48,15 +43,11 @@ void export_block(const std::string& dir, const std::string& name, const attenti
 }  // namespace
 
 int main(int argc, char** argv) {
-  if (argc != 2) {  // one directory, where the .npy files go
-    std::fprintf(stderr, "usage: %s DIRECTORY\n", argv[0]);
-    return 2;
-  }
-  const std::string dir(argv[1]);
-  export_block(dir, "one_head", attention_block(24, 1, 10, glorot_uniform{}, lecun_normal{}), 6, 7, true);
-  export_block(dir, "four_heads", attention_block(32, 4, 12, lecun_normal{}, glorot_normal{}), 5, 8, false);
-  // Gain 3: a saturated softmax, where the subtraction of the row maximum matters.
-  export_block(dir, "saturated", attention_block(32, 2, 12, glorot_uniform{3.0}, glorot_uniform{}), 5, 9, false);
-  std::printf("]\n");
-  return 0;
+  return kindling_test::export_to_directory(argc, argv, [](const std::string& dir) {
+    export_block(dir, "one_head", attention_block(24, 1, 10, glorot_uniform{}, lecun_normal{}), 6, 7, true);
+    export_block(dir, "four_heads", attention_block(32, 4, 12, lecun_normal{}, glorot_normal{}), 5, 8, false);
+    // Gain 3: a saturated softmax, where the subtraction of the row maximum matters.
+    export_block(dir, "saturated", attention_block(32, 2, 12, glorot_uniform{3.0}, glorot_uniform{}), 5, 9, false);
+    std::printf("]\n");
+  });
 }

@@ -9,20 +9,15 @@
 #include <string>
 #include <vector>
 
-#include "kindling/io/npy.hpp"
 #include "kindling/propagate/recurrent.hpp"
 #include "kindling/schemes/fan_scaled.hpp"
 
+#include "export.hpp"
+
 using namespace kindling;
+using kindling_test::save_npy;
 
 namespace {
-void save(const std::string& path, const Eigen::MatrixXd& m) {
-  std::vector<double> values;  // row-major
-  for (Eigen::Index i = 0; i < m.rows(); ++i)
-    for (Eigen::Index j = 0; j < m.cols(); ++j) values.push_back(m(i, j));
-  write_npy(path, make_npy({static_cast<std::uint64_t>(m.rows()), static_cast<std::uint64_t>(m.cols())}, values));
-}
-
 void series(const char* name, const std::vector<double>& v) {
   std::printf(", \"%s\": [", name);
   for (std::size_t t = 0; t < v.size(); ++t) std::printf("%s%.17g", t ? ", " : "", v[t]);
@@ -41,11 +36,11 @@ void export_cell(const std::string& dir, const recurrent_cell& cell, std::uint64
   Eigen::MatrixXd g(static_cast<Eigen::Index>(cell.hidden()), static_cast<Eigen::Index>(batch));
   fill(view_of(g), dist::normal{0.0, 1.0}, t.named("output_gradient"));
   const std::string stem = dir + "/" + cell_kind_name(cell.kind());
-  save(stem + ".input_weight.npy", net.input_weight);
-  save(stem + ".recurrent_weight.npy", net.recurrent_weight);
-  save(stem + ".bias.npy", net.bias);
-  save(stem + ".input.npy", x);
-  save(stem + ".output_gradient.npy", g);
+  save_npy(stem + ".input_weight.npy", net.input_weight);
+  save_npy(stem + ".recurrent_weight.npy", net.recurrent_weight);
+  save_npy(stem + ".bias.npy", net.bias);
+  save_npy(stem + ".input.npy", x);
+  save_npy(stem + ".output_gradient.npy", g);
   const recurrent_moments& m = r.draws[0];
   std::printf("%s{\"kind\": \"%s\", \"steps\": %llu, \"gates\": [", first ? "[" : ",\n", cell_kind_name(cell.kind()),
               static_cast<unsigned long long>(cell.steps()));
@@ -64,13 +59,9 @@ void export_cell(const std::string& dir, const recurrent_cell& cell, std::uint64
 }  // namespace
 
 int main(int argc, char** argv) {
-  if (argc != 2) {  // one directory, where the .npy files go
-    std::fprintf(stderr, "usage: %s DIRECTORY\n", argv[0]);
-    return 2;
-  }
-  const std::string dir(argv[1]);
-  export_cell(dir, recurrent_cell(cell_kind::lstm, 12, 24, 50, glorot_uniform{}, orthogonal{}, 1.0), 16, 7, true);
-  export_cell(dir, recurrent_cell(cell_kind::gru, 12, 24, 50, lecun_normal{}, orthogonal{1.2}, 0.5), 16, 8, false);
-  std::printf("]\n");
-  return 0;
+  return kindling_test::export_to_directory(argc, argv, [](const std::string& dir) {
+    export_cell(dir, recurrent_cell(cell_kind::lstm, 12, 24, 50, glorot_uniform{}, orthogonal{}, 1.0), 16, 7, true);
+    export_cell(dir, recurrent_cell(cell_kind::gru, 12, 24, 50, lecun_normal{}, orthogonal{1.2}, 0.5), 16, 8, false);
+    std::printf("]\n");
+  });
 }

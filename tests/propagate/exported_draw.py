@@ -1,0 +1,22 @@
+"""What the NumPy checks of the propagation printers share (check_attention.py,
+check_convolution.py, check_recurrent.py): running a printer of reference/ on a fresh
+directory and reading what it printed.
+
+Imported from beside those scripts: python puts a script's own folder first on its path,
+so ctest's `/usr/bin/python3 tests/propagate/check_*.py PRINTER` finds this module.
+"""
+import contextlib
+import json
+import subprocess
+import tempfile
+
+
+@contextlib.contextmanager
+def exported_draw(printer):
+    """Runs `printer DIRECTORY` (a program of reference/, which writes its drawn arrays
+    there as .npy files) in a temporary directory; gives that directory and the JSON list
+    the printer wrote on stdout, the directory kept until the `with` block ends.  A
+    printer that fails raises subprocess.CalledProcessError, which fails the check."""
+    with tempfile.TemporaryDirectory() as directory:
+        out = subprocess.run([printer, directory], check=True, capture_output=True, text=True).stdout
+        yield directory, json.loads(out)
