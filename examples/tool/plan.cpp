@@ -115,11 +115,13 @@ void check_cell_memory(const recurrent_cell& c, std::uint64_t batch, std::size_t
 }
 
 // An attention draw keeps its four [d, d] weights and, for `batch` sequences of L
-// tokens, the input, queries, keys, values, mix and output (d x L batch each, doubles),
-// and one head's scores and softmax weights (L x L); up to `threads` draws at once.
+// tokens, the input, queries, keys, values, mix and output and the gradients of the
+// backward pass (loss, mix, queries, keys, values, input; d x L batch each, doubles),
+// and one head's scores, softmax weights and their gradients (L x L); up to `threads`
+// draws at once.
 void check_attention_memory(const attention_block& a, std::uint64_t batch, std::size_t threads) {
   const double d = static_cast<double>(a.width()), l = static_cast<double>(a.length());
-  const double peak = 8.0 * (4.0 * d * d + 7.0 * d * l * static_cast<double>(batch) + 3.0 * l * l) *
+  const double peak = 8.0 * (4.0 * d * d + 13.0 * d * l * static_cast<double>(batch) + 6.0 * l * l) *
                       static_cast<double>(threads);
   if (peak > static_cast<double>(memory_budget)) {
     throw std::length_error("--batch " + std::to_string(batch) + " needs about " + bytes_text(peak) +
@@ -168,10 +170,11 @@ struct plan_rows {
 
 // An attention block's rows (propagate/attention.hpp): its four projections, the scaled
 // scores, the softmax weights (their concentration E[sum_j p_ij^2]; measured only), the
-// mix and the output.  fwd_var is the prediction from the schemes where there is one
-// (projections, scores); each judged row's verdict compares the draws with the
-// prediction given each draw (compare_attention), so the mix and output rows are
-// judged although they have no prediction from the schemes alone.
+// mix and the output, forward and backward (the gradient with respect to each, from the
+// block's own unit loss gradient).  fwd_var/bwd_var are the predictions from the schemes
+// where there is one; each judged verdict compares the draws with the prediction given
+// each draw (compare_attention), so rows without a prediction from the schemes alone
+// (forward mix and output, backward value) are judged too.
 void add_attention_rows(const attention_block& a, const attention_report& r, double input_moment, bool measure,
                         plan_rows& t) {
   for (const attention_row& row : r.rows) {
@@ -180,12 +183,19 @@ void add_attention_rows(const attention_block& a, const attention_report& r, dou
     const detail::table_cells cells = detail::attention_cells(row, label);
     const json fan_in = row.projection ? json(row.width) : json(nullptr), fan_out = fan_in;
     const bool planned = !std::isnan(row.planned);
-    std::vector<double> draws;
+    const bool planned_gradient = !std::isnan(row.planned_gradient);
+    std::vector<double> draws, gradient_draws;
     for (const attention_moments& m : r.draws) {
       const std::size_t i = static_cast<std::size_t>(&row - r.rows.data());
       const double values[] = {m.query, m.key, m.value, m.score, m.concentration, m.mix, m.output};
+      const double gradients[] = {m.query_gradient, m.key_gradient,     m.value_gradient, m.score_gradient,
+                                  m.softmax_gradient, m.mix_gradient, m.output_gradient};
       draws.push_back(values[i]);
+      gradient_draws.push_back(gradients[i]);
     }
+    std::vector<std::string> measured_only;
+    if (!row.judged) measured_only.push_back("measured_forward_variance");
+    if (!row.gradient_judged) measured_only.push_back("measured_backward_variance");
     json j = {{"index", t.index},
               {"label", label},
               {"kind", "attention"},
@@ -200,40 +210,52 @@ void add_attention_rows(const attention_block& a, const attention_report& r, dou
               {"weight_std", row.projection ? json(std::sqrt(row.weight_variance)) : json(nullptr)},
               {"input_variance", input_moment},
               {"forward_variance", planned ? json(row.planned) : json(nullptr)},
-              {"backward_variance", nullptr},
+              {"backward_variance", planned_gradient ? json(row.planned_gradient) : json(nullptr)},
               {"measured_forward_variance", row.median},
-              {"measured_backward_variance", nullptr},
-              {"measured_only", !row.judged ? json({"measured_forward_variance"}) : json::array()}};
-    if (row.judged) {
-      j["measured_forward"] = {{"median", row.median},
-                               {"spread_factor", std::exp(row.spread)},
-                               {"mean_over_predicted", std::exp(row.verdict.deviation)},  // given each draw
-                               {"band_factor", std::exp(row.verdict.tolerance)},
-                               {"agrees", row.verdict.agrees},
-                               {"draws", draws}};
-      j["agrees"] = row.verdict.agrees;
+              {"measured_backward_variance", row.gradient_median},
+              {"measured_only", measured_only}};
+    // A judged direction: the draws and the verdict, its mean ratio given each draw.
+    const auto judged = [](double median, double spread, const measured_moment& v, const std::vector<double>& d) {
+      return json{{"median", median},
+                  {"spread_factor", std::exp(spread)},
+                  {"mean_over_predicted", std::exp(v.deviation)},
+                  {"band_factor", std::exp(v.tolerance)},
+                  {"agrees", v.agrees},
+                  {"draws", d}};
+    };
+    if (row.judged) j["measured_forward"] = judged(row.median, row.spread, row.verdict, draws);
+    if (row.gradient_judged) {
+      j["measured_backward"] = judged(row.gradient_median, row.gradient_spread, row.gradient_verdict, gradient_draws);
     }
+    if (row.judged || row.gradient_judged) j["agrees"] = row.agrees();
     t.layers.push_back(j);
     const double x = static_cast<double>(t.index);
     if (planned) t.series[0].points.push_back({x, row.planned});
-    if (measure) t.series[2].points.push_back({x, row.median});
-    std::string text = detail::table_line(t.index, cells, t.label_width, measure);
-    const bool bad = row.judged && !row.verdict.agrees;
-    if (bad) {
-      t.warnings.push_back("layer " + std::to_string(t.index) + " (" + label + "): disagrees: mean/predicted = " +
-                           number_text(std::exp(row.verdict.deviation)) + " given the draw, outside the band x/" +
-                           number_text(std::exp(row.verdict.tolerance)));
-      if (measure) t.agrees = false;
+    if (planned_gradient) t.series[1].points.push_back({x, row.planned_gradient});
+    if (measure) {
+      t.series[2].points.push_back({x, row.median});
+      t.series[3].points.push_back({x, row.gradient_median});
     }
+    std::string text = detail::table_line(t.index, cells, t.label_width, measure);
+    const bool bad = !row.agrees();
+    const auto warn = [&](const char* direction, const measured_moment& v) {
+      t.warnings.push_back("layer " + std::to_string(t.index) + " (" + label + "): disagrees " + direction +
+                           ": mean/predicted = " + number_text(std::exp(v.deviation)) +
+                           " given the draw, outside the band x/" + number_text(std::exp(v.tolerance)));
+    };
+    if (row.judged && !row.verdict.agrees) warn("forward", row.verdict);
+    if (row.gradient_judged && !row.gradient_verdict.agrees) warn("backward", row.gradient_verdict);
+    if (bad && measure) t.agrees = false;
     if (row.name == "output") {
-      char info[512];
+      char info[768];
       std::snprintf(info, sizeof info,
                     "\n    attention: %llu heads of %llu features over %llu tokens, fed E[x^2] = %s; measured only: "
-                    "softmax E[sum p^2] = %s (uniform attention: %s), output E[y^2] = %s (fed to the layers above)",
+                    "softmax E[sum p^2] = %s (uniform attention: %s), output E[y^2] = %s (fed to the layers above), "
+                    "input gradient E[(dL/dx)^2] = %s",
                     static_cast<unsigned long long>(a.heads()), static_cast<unsigned long long>(a.head_width()),
                     static_cast<unsigned long long>(a.length()), number_text(input_moment).c_str(),
                     number_text(r.row("softmax").median).c_str(), number_text(1.0 / static_cast<double>(a.length())).c_str(),
-                    number_text(row.median).c_str());
+                    number_text(row.median).c_str(), number_text(r.input_gradient()).c_str());
       text += info;
     }
     t.lines.push_back(text);
@@ -527,9 +549,10 @@ int run_plan(const plan_options& o) {
                   "state, and each part's bwd columns start from its own unit loss gradient\n", o.trials, static_cast<unsigned long long>(o.batch));
     }
     if (!sections.attention.empty()) {
-      std::printf("attention blocks: %zu draws of %llu sequences, forward only; a row agrees when its mean ratio to the "
-                  "prediction given each draw is within the band (compare_attention, false alarm <= %g a block); the "
-                  "layers above a block are predicted from its measured output\n",
+      std::printf("attention blocks: %zu draws of %llu sequences, backward from the block's own unit loss gradient; a "
+                  "row agrees when its mean ratio to the prediction given each draw is within the band, forward and "
+                  "backward (compare_attention, false alarm <= %g a block); the layers above a block are predicted "
+                  "from its measured output\n",
                   o.trials, static_cast<unsigned long long>(o.batch), attention_options{}.false_alarm);
     }
     for (const std::string& m : method_lines(methods, sections.cells.size(), sections.attention.size())) std::printf("%s\n", m.c_str());

@@ -7,8 +7,12 @@
 // LeCun et al. 1998 (1 / fan_in); a dense layer's output moment fan_in Var W E[x^2]
 // (common practice).  The 1 + 2/(d L) of the scores' mean over Gaussian inputs and the
 // conditional predictions of the mix and output are derived in the header comment (ours).
-// The softmax weights have no closed form: measured only, and the whole pass is checked
-// against NumPy from the same weights (tests/propagate/check_attention.py, extra.cmake).
+// The backward predictions (mix, softmax weights, values) are derived the same way in the
+// header comment (ours; the chain rule of the forward pass).  The softmax weights, the
+// scores' and the queries' and keys' gradients have no closed form: measured only, and
+// the whole pass, forward and backward, is checked against NumPy from the same weights
+// (tests/propagate/check_attention.py, extra.cmake; its backward pass against finite
+// differences).
 #include "kindling/propagate/attention.hpp"
 #include "kindling/schemes/fan_scaled.hpp"
 
@@ -28,14 +32,16 @@ using kindling_test::mentions;
 using kindling_test::message_of;
 
 namespace {
+// Verdicts that say NO, forward and backward.
 std::size_t disagreeing(const attention_report& r) {
   std::size_t n = 0;
-  for (const auto& row : r.rows) n += row.judged && !row.verdict.agrees;
+  for (const auto& row : r.rows) n += (row.judged && !row.verdict.agrees) + (row.gradient_judged && !row.gradient_verdict.agrees);
   return n;
 }
 }  // namespace
 
-TEST_CASE("attention, one head and several: every projection, the scores, the mix and the output agree, seeds") {
+TEST_CASE("attention, one head and several: every projection, the scores, the mix and the output agree forward and "
+          "backward, seeds") {
   for (const std::uint64_t seed : {1, 2, 3, 4}) {
     for (const std::uint64_t heads : {1, 4}) {
       CAPTURE(seed);
@@ -62,6 +68,23 @@ TEST_CASE("attention, one head and several: every projection, the scores, the mi
   CHECK(r.row("score").median == doctest::Approx(r.row("score").planned).epsilon(0.15));
   CHECK(std::isnan(r.row("mix").planned));
   CHECK(!r.row("softmax").judged);
+  // Backward from a unit loss gradient: E[(dL/do)^2] = d Var W_o = 1 (a dense layer's
+  // backward pass, fan-out 64: common practice), E[(dL/dp)^2] = d_k E[(dL/do)^2] d Var W_v
+  // E[x^2] = 16 (header comment); the scores', queries' and keys' gradients go through
+  // the softmax's Jacobian: measured only.
+  CHECK(r.row("mix").planned_gradient == doctest::Approx(1.0).epsilon(1e-14));
+  CHECK(r.row("softmax").planned_gradient == doctest::Approx(16.0).epsilon(1e-14));
+  CHECK(r.row("mix").gradient_median == doctest::Approx(1.0).epsilon(0.15));
+  CHECK(r.row("softmax").gradient_median == doctest::Approx(16.0).epsilon(0.15));
+  CHECK(r.row("output").gradient_median == doctest::Approx(1.0).epsilon(0.05));
+  for (const char* name : {"query", "key", "score"}) {
+    CAPTURE(name);
+    CHECK(std::isnan(r.row(name).planned_gradient));
+    CHECK(!r.row(name).gradient_judged);
+    CHECK(r.row(name).gradient_median > 0.0);
+  }
+  CHECK(r.row("value").gradient_judged);
+  CHECK(r.input_gradient() > 0.0);
   // Scores of variance about 1 over 16 keys: attention between uniform (1/16) and one-hot.
   CHECK(r.row("softmax").median > 1.0 / 16.0);
   CHECK(r.row("softmax").median < 0.3);
@@ -76,7 +99,7 @@ TEST_CASE("projections drawn 3x too large: scores 81x, a saturated softmax, and 
   const attention_report good = compare_attention(assumed, 8, stream::root(31));
   INFO(bad.table());
   INFO(good.table());
-  CHECK(disagreeing(bad) == 6);
+  CHECK(disagreeing(bad) == 9);  // six forward verdicts, and backward the mix, softmax and value
   CHECK(std::exp(bad.row("score").verdict.deviation) == doctest::Approx(81.0).epsilon(0.2));
   CHECK(bad.row("score").median / good.row("score").median == doctest::Approx(81.0).epsilon(0.2));
   // Saturation: with a score standard deviation of about 9 the largest weight of a row
@@ -106,6 +129,32 @@ TEST_CASE("projections drawn 3x too large: scores 81x, a saturated softmax, and 
   CHECK(!v.row("value").verdict.agrees);
   CHECK(!v.row("mix").verdict.agrees);
   CHECK(v.row("output").verdict.agrees);  // given the mix it read, W_o is as assumed
+  // Backward: dL/dp_ij = dL/do_i . v_j reads W_v (9x); dL/do and dL/dv read W_o only.
+  CHECK(!v.row("softmax").gradient_verdict.agrees);
+  CHECK(std::exp(v.row("softmax").gradient_verdict.deviation) == doctest::Approx(9.0).epsilon(0.2));
+  CHECK(v.row("mix").gradient_verdict.agrees);
+  CHECK(v.row("value").gradient_verdict.agrees);
+  CHECK(disagreeing(v) == 3);
+}
+
+TEST_CASE("an output projection drawn 3x too large is flagged forward at the output and backward at the mix and "
+          "value, and nowhere else") {
+  // W_o at gain 3: Var W_o 9x, so E[y^2] 9x given the mix, E[(dL/do)^2] = Var W_o |g|^2
+  // 9x, and dL/dv_j = W_o^T (sum_i p_ij g_i) 9x (header comment).  The softmax's gradient
+  // reads dL/do as computed, times W_v as assumed: it agrees given the draw.
+  const attention_block assumed(64, 4, 16, glorot_uniform{}, glorot_uniform{});
+  const attention_block drawn(64, 4, 16, glorot_uniform{}, glorot_uniform{3.0});
+  const attention_report r = compare_attention(drawn, assumed, 8, stream::root(33));
+  INFO(r.table());
+  CHECK(!r.row("output").verdict.agrees);
+  CHECK(!r.row("mix").gradient_verdict.agrees);
+  CHECK(!r.row("value").gradient_verdict.agrees);
+  CHECK(std::exp(r.row("mix").gradient_verdict.deviation) == doctest::Approx(9.0).epsilon(0.2));
+  CHECK(disagreeing(r) == 3);
+  CHECK(r.row("softmax").gradient_median / r.row("softmax").planned_gradient == doctest::Approx(9.0).epsilon(0.2));
+  // The table says which direction disagrees.
+  CHECK(mentions(r.table(), "disagrees backward: mean/predicted = "));
+  CHECK(mentions(r.table(), "disagrees forward: mean/predicted = "));
 }
 
 TEST_CASE("an attention block's measured draws are the same bits on any executor") {
@@ -113,7 +162,8 @@ TEST_CASE("an attention block's measured draws are the same bits on any executor
   attention_options o;
   o.trials = 4;
   check_same_draws([&](auto executor) { return compare_attention(block, 5, stream::root(5), o, executor); }, o.trials,
-                   &attention_moments::output, &attention_moments::score, &attention_moments::mix);
+                   &attention_moments::output, &attention_moments::score, &attention_moments::mix,
+                   &attention_moments::input_gradient, &attention_moments::softmax_gradient);
 }
 
 TEST_CASE("an attention block with heads not dividing the width, no tokens or no width is refused, naming it") {
@@ -126,6 +176,11 @@ TEST_CASE("an attention block with heads not dividing the width, no tokens or no
   const attention_block a(16, 2, 4, glorot_uniform{}), b(16, 4, 4, glorot_uniform{});
   CHECK(mentions(message_of<std::invalid_argument>([&] { compare_attention(a, b, 4, stream::root(1)); }),
                  "argument 'predicted' has width 16, 4 heads"));
+  const realized_attention net = draw_attention(a, stream::root(1));
+  const Eigen::MatrixXd x = Eigen::MatrixXd::Ones(16, 8), g = Eigen::MatrixXd::Ones(16, 4);
+  CHECK(mentions(message_of<std::invalid_argument>([&] { run_attention(a, net, x, g); }),
+                 "kindling::run_attention: argument 'output_gradient' is 16 x 4, expected the shape of argument 'input' "
+                 "(16 x 8)"));
 }
 
 TEST_CASE("rate: false-alarm rate of the attention verdict on correct blocks, at or below nominal") {
@@ -141,7 +196,7 @@ TEST_CASE("rate: false-alarm rate of the attention verdict on correct blocks, at
     const std::size_t no = disagreeing(compare_attention(block, batch, stream::root(seed), o));
     ++tables;
     tables_no += no > 0;
-    rows += 6;
+    rows += 9;  // verdicts: six forward, three backward
     rows_no += no;
     default_no += disagreeing(compare_attention(block, batch, stream::root(seed)));
   };
@@ -153,8 +208,8 @@ TEST_CASE("rate: false-alarm rate of the attention verdict on correct blocks, at
     run(attention_block(64, 4, 16, glorot_normal{}, glorot_uniform{}), 8, 7000 + seed);
   const double table_rate = static_cast<double>(tables_no) / static_cast<double>(tables);
   const double row_rate = static_cast<double>(rows_no) / static_cast<double>(rows);
-  MESSAGE("nominal 0.2 a table: observed " << table_rate << " a table, " << row_rate << " a row (nominal "
-                                           << 0.2 / 6.0 << "); defaults: " << default_no << " NO rows of " << rows);
+  MESSAGE("nominal 0.2 a table: observed " << table_rate << " a table, " << row_rate << " a verdict (nominal "
+                                           << 0.2 / 9.0 << "); defaults: " << default_no << " NO verdicts of " << rows);
   // 240 tables: a binomial at 0.2 stays below 0.29 with probability > 0.999.
   CHECK(table_rate <= 0.29);
   CHECK(default_no == 0);
@@ -163,8 +218,9 @@ TEST_CASE("rate: false-alarm rate of the attention verdict on correct blocks, at
 // The table has the columns of propagation_report::table() and `kindling plan` (one
 // formatter, detail::table_line): a projection row is a dense layer of fans (d, d)
 // without an activation, its weights' sd LeCun's sqrt(1/fan_in) (LeCun et al. 1998,
-// sec. 4.6; common practice) = sqrt(1/32); the softmax row has no prediction
-// ("measured") and no verdict ("-").
+// sec. 4.6; common practice) = sqrt(1/32); the softmax row has no forward prediction
+// ("measured") but a backward one, d_k (d Var W_o) (d Var W_v) E[x^2] = 16 x 1 x 1 = 16
+// (header comment), and a backward verdict; the score row has neither backward.
 TEST_CASE("an attention table has the propagation table's columns") {
   const attention_block block(32, 2, 8, lecun_normal{}, lecun_normal{});
   attention_options o;
@@ -192,5 +248,9 @@ TEST_CASE("an attention table has the propagation table's columns") {
   REQUIRE(lines[5].size() == 14);
   CHECK(lines[5][1] == "softmax");
   CHECK(lines[5][7] == "measured");
-  CHECK(lines[5][13] == "-");
+  CHECK(lines[5][8] == "16");
+  CHECK((lines[5][13] == "yes" || lines[5][13] == "NO"));
+  REQUIRE(lines[4].size() == 14);
+  CHECK(lines[4][8] == "measured");
+  CHECK(std::stod(lines[4][11]) == doctest::Approx(r.row("score").gradient_median).epsilon(1e-3));
 }

@@ -5,8 +5,13 @@ The printer (reference/print_attention.cpp) exports draw 0 of three attention bl
 the four drawn projections and the inputs, with the moments kindling measured in that
 draw.  Here the same forward pass is written from its definition (Vaswani et al.,
 NeurIPS 2017, sec. 3.2.1 and 3.2.2: scaled dot-product attention per head, heads
-concatenated, then the output projection) with numpy.einsum and a softmax over the keys;
-every moment must agree to 1e-6 relative.
+concatenated, then the output projection) with numpy.einsum and a softmax over the keys,
+and the backward pass of the exported loss gradient g = dL/dy by hand (the chain rule,
+with the softmax's Jacobian diag(p) - p p^T); every moment must agree to 1e-6 relative.
+The hand-written backward pass is itself checked against central finite differences of
+L(x) = sum(g * y(x)) along random directions (its input gradient) and along random
+directions of each projection (the gradient of L with respect to W is dL/d(tensor) x^T,
+so this covers dL/dq, dL/dk and dL/dv as well).
 Usage: check_attention.py <kindling_propagate_print_attention>
 """
 import sys
@@ -16,7 +21,7 @@ import numpy as np
 from exported_draw import exported_draw
 
 
-def forward(Wq, Wk, Wv, Wo, x, heads, length):
+def forward(Wq, Wk, Wv, Wo, x, heads, length, g=None):
     d = x.shape[0]
     dk = d // heads
     batch = x.shape[1] // length
@@ -31,10 +36,12 @@ def forward(Wq, Wk, Wv, Wo, x, heads, length):
     oh = np.einsum("bhij,bhjc->bhic", p, vh)
     o = oh.transpose(0, 2, 1, 3).reshape(batch, length, d)
     y = o @ Wo.T
+    if g is not None:  # the loss L = sum(g * y): its value, for the finite differences
+        return float(np.sum(g.T.reshape(batch, length, d) * y))
     norms = (tokens ** 2).sum(axis=-1)                                  # |x_i|^2, [b, i]
     mixed = np.einsum("bhij,bjf->bhif", p, tokens)                      # sum_j p_ij x_j
     ms = lambda a: float(np.mean(a * a))
-    return {
+    return p, qh, kh, vh, tokens, o, {
         "input": ms(tokens), "query": ms(q), "key": ms(k), "value": ms(v), "score": ms(s),
         "concentration": float(np.mean((p ** 2).sum(axis=-1))), "largest_weight": float(np.mean(p.max(axis=-1))),
         "mix": ms(o), "output": ms(y),
@@ -45,6 +52,65 @@ def forward(Wq, Wk, Wv, Wo, x, heads, length):
     }
 
 
+def backward(Wq, Wk, Wv, Wo, x, g, heads, length):
+    """The chain rule through the pass above; returns the moments and the gradients
+    with respect to x and to each projection (for the finite differences)."""
+    d = x.shape[0]
+    dk = d // heads
+    batch = x.shape[1] // length
+    p, qh, kh, vh, tokens, o, ref = forward(Wq, Wk, Wv, Wo, x, heads, length)
+    gy = g.T.reshape(batch, length, d)                                  # dL/dy, [b, i, d]
+    go = gy @ Wo                                                        # dL/do = W_o^T g
+    goh = go.reshape(batch, length, heads, dk).transpose(0, 2, 1, 3)    # [b, h, i, c]
+    gv = np.einsum("bhij,bhic->bhjc", p, goh)                           # sum_i p_ij dL/do_i
+    gp = np.einsum("bhic,bhjc->bhij", goh, vh)                          # dL/do_i . v_j
+    gs = p * (gp - (p * gp).sum(axis=-1, keepdims=True))                # softmax Jacobian
+    gq = np.einsum("bhij,bhjc->bhic", gs, kh) / np.sqrt(dk)
+    gk = np.einsum("bhij,bhic->bhjc", gs, qh) / np.sqrt(dk)
+    merge = lambda a: a.transpose(0, 2, 1, 3).reshape(batch, length, d)
+    gq, gk, gv = merge(gq), merge(gk), merge(gv)
+    gx = gq @ Wq + gk @ Wk + gv @ Wv
+    ms = lambda a: float(np.mean(a * a))
+    xnorm = (tokens ** 2).sum(axis=-1)                                  # |x_j|^2, [b, j]
+    gonorm = (goh ** 2).sum(axis=-1)                                    # |dL/do_i (head)|^2, [b, h, i]
+    m = np.einsum("bhij,bif->bhjf", p, gy)                              # sum_i p_ij g_i
+    ref.update({
+        "output_gradient": ms(gy), "mix_gradient": ms(go), "softmax_gradient": ms(gp), "score_gradient": ms(gs),
+        "query_gradient": ms(gq), "key_gradient": ms(gk), "value_gradient": ms(gv), "input_gradient": ms(gx),
+        "gradient_norm": float(np.mean((gy ** 2).sum(axis=-1))),
+        "gradient_pair_norm": float(np.mean(np.einsum("bhi,bj->bhij", gonorm, xnorm))),
+        "mixed_gradient_norm": float(np.mean((m ** 2).sum(axis=-1))),
+    })
+    tok = lambda a: a.reshape(batch * length, d).T                      # back to [d, L batch]
+    grads = {"x": tok(gx), "Wq": tok(gq) @ tok(tokens).T, "Wk": tok(gk) @ tok(tokens).T,
+             "Wv": tok(gv) @ tok(tokens).T, "Wo": tok(gy) @ tok(o).T}
+    return ref, grads
+
+
+def finite_differences(W, x, g, heads, length, grads, rng):
+    """Largest relative difference between the hand-written gradients and central
+    differences of L along three random unit directions of x and of each projection."""
+    worst = 0.0
+    args = {"Wq": 0, "Wk": 1, "Wv": 2, "Wo": 3}
+    for name, grad in grads.items():
+        for _ in range(3):
+            u = rng.standard_normal(grad.shape)
+            u /= np.linalg.norm(u)
+            eps = 1e-5
+            def loss(sign):
+                Ws = list(W)
+                xs = x
+                if name == "x":
+                    xs = x + sign * eps * u
+                else:
+                    Ws[args[name]] = W[args[name]] + sign * eps * u
+                return forward(*Ws, xs, heads, length, g)
+            numeric = (loss(1) - loss(-1)) / (2 * eps)
+            exact = float(np.sum(grad * u))
+            worst = max(worst, abs(numeric - exact) / max(abs(exact), 1e-3))
+    return worst
+
+
 def main():
     failures = 0
     with exported_draw(sys.argv[1]) as (directory, blocks):
@@ -52,7 +118,13 @@ def main():
             stem = f"{directory}/{block['name']}"
             W = [np.load(f"{stem}.{p}_weight.npy") for p in ("query", "key", "value", "output")]
             x = np.load(stem + ".input.npy")
-            ref = forward(*W, x, block["heads"], block["length"])
+            g = np.load(stem + ".output_gradient.npy")
+            ref, grads = backward(*W, x, g, block["heads"], block["length"])
+            worst = finite_differences(W, x, g, block["heads"], block["length"], grads, np.random.default_rng(11))
+            ok = worst <= 1e-5
+            failures += not ok
+            print(f"{block['name']} backward pass by hand against central differences: largest relative "
+                  f"difference {worst:.2e} {'ok' if ok else 'FAILS (expected <= 1e-5)'}")
             for key, theirs in ref.items():
                 mine = block[key]
                 rel = abs(mine - theirs) / abs(theirs)

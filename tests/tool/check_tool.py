@@ -472,9 +472,20 @@ elif CASE == "json":
            f"the query row's prediction: {query}")
     score = rows[3]
     expect(abs(score["forward_variance"] - fed * fed * (1 + 2 / (16 * 24))) < 1e-12, f"the score row: {score}")
-    expect(all(r["agrees"] for r in rows if "agrees" in r) and "agrees" not in rows[4]
+    expect(all(r["agrees"] for r in rows if "agrees" in r) and "measured_forward" not in rows[4]
            and len(rows[0]["measured_forward"]["draws"]) == 6,
-           f"the attention rows should agree (softmax: measured only): {rows}")
+           f"the attention rows should agree (softmax: measured only forward): {rows}")
+    # backward from the block's own unit loss gradient (attention.hpp's header): the mix's
+    # gradient W_o^T g has d Var W_o = 16 / 16 = 1 (a dense layer's backward pass, common
+    # practice); the softmax weights' dL/dp_ij = dL/do_i . v_j has d_k (d Var W_o)(d Var W_v)
+    # E[x^2] = 4 x fed; the scores', queries' and keys' gradients are measured only
+    mix, softmax = rows[5], rows[4]
+    expect(abs(mix["backward_variance"] - 1) < 1e-12 and abs(softmax["backward_variance"] - 4 * fed) < 1e-12
+           and rows[3]["backward_variance"] is None
+           and rows[3]["measured_only"] == ["measured_backward_variance"]
+           and len(mix["measured_backward"]["draws"]) == 6 and mix["measured_backward"]["agrees"]
+           and softmax["agrees"] is True and rows[2]["measured_backward"]["agrees"],
+           f"the attention rows' backward predictions and verdicts: {rows}")
     # the head reads the 16 x 24 map above the block: fan_in 384, fed the measured output moment
     expect(head["fan_in"] == 384 and head.get("agrees") is True, f"the head above the block: {head}")
     output = rows[6]["measured_forward_variance"]

@@ -48,16 +48,49 @@
 // Student's t band with the false-alarm rate split (Bonferroni) over the six rows, plus
 // a finite-width allowance c w accumulated in the direction of the forward pass, w the
 // sum of 1/n over the sums the pass went through: 1/d for the projections, + 1/d_k for
-// the score, + 1/L for the mix, + 1/d for the output.  Forward only: the backward pass
-// through the softmax is not measured here.
+// the score, + 1/L for the mix, + 1/d for the output.
+//
+// Backward.  Each draw also sends a loss gradient g = dL/dy ~ N(0, E[g^2]) (from
+// t.named("output_gradient"), a [d, L batch] matrix) back through the block, by the chain
+// rule of the forward pass above:
+//     dL/do = W_o^T g;   per head  dL/dv_j = sum_i p_ij dL/do_i,   dL/dp_ij = dL/do_i . v_j,
+//     dL/ds_ij = p_ij (dL/dp_ij - sum_j' p_ij' dL/dp_ij')   (the softmax's Jacobian),
+//     dL/dq_i = sum_j dL/ds_ij k_j / sqrt(d_k),   dL/dk_j = sum_i dL/ds_ij q_i / sqrt(d_k),
+//     dL/dx = W_q^T dL/dq + W_k^T dL/dk + W_v^T dL/dv.
+// A row's backward moment is the mean square of the gradient with respect to its tensor
+// (as measure.hpp's gradient with respect to a layer's pre-activation).  Predicted, each
+// given what the pass computed before the weight acted, and exact for that reason:
+//   - mix o: W_o is independent of g, so E[(dL/do_c)^2 | g] = Var W_o |g_i|^2; from the
+//     schemes alone d Var W_o E[g^2] (a dense layer's backward pass, fan-out d).
+//   - softmax p: dL/dp_ij = sum_c (dL/do_i)_c (w_v,c . x_j) over the head's rows of W_v,
+//     which is independent of dL/do (made by W_o and g) and of x, so
+//     E[(dL/dp_ij)^2 | dL/do, x] = Var W_v |dL/do_i (head)|^2 |x_j|^2; from the schemes
+//     alone d_k (d Var W_o E[g^2]) (d Var W_v E[x^2]) (x independent of dL/do).
+//   - value v: dL/dv_(c,j) = sum_r W_o[r, c] m_(r,j) with m_j = sum_i p_ij g_i, and W_o is
+//     independent of p and g, so E[(dL/dv)^2 | p, g] = Var W_o |m_j|^2 (the mirror of the
+//     forward mix); it depends on the softmax weights: no prediction from the schemes.
+//   - scores, queries, keys and the block's input: the softmax's Jacobian depends on W_q
+//     and W_k themselves (through p), so no weight acts independently of what it
+//     multiplies: measured only.  The input gradient is reported (`input_gradient`) but
+//     not judged.
+// The three judged backward rows join the six forward ones: nine comparisons, the
+// false-alarm rate split over nine.  Their allowance continues the forward pass's: the
+// whole forward w (2/d + 1/d_k + 1/L), + 1/d for the mix (the sum in W_o^T g), + 1/d + 1/d_k
+// for the softmax (and the sum in dL/do . v_j), + 1/d + 1/L for the value (the sum over
+// queries i).
 // False-alarm rate, measured (tests/propagate/attention.cpp, "rate: ..."): 240 correct
 // blocks (200 of width 16, 1 or 4 heads, 8 tokens, 8 draws of 4 sequences, Glorot and
 // LeCun; 40 of width 64, 4 heads, 16 tokens, 8 draws of 8), no allowance: nominal 0.2 a
-// table -> observed 0.13 (0.028 a row against a nominal 0.033); with the defaults no NO
-// in 1440 rows.  Power: at 8 draws of 8 sequences (width 64, 4 heads, 16 tokens) a row's
-// band is about x/1.07 (projections) to x/1.3 (mix, output); projections drawn at gain 3
-// are flagged at all six rows (scores 81x), a value projection alone 3x off at value and
-// mix.  The passes run in double (the weights drawn as doubles), as in recurrent.hpp.
+// table -> observed 0.16 (0.022 a verdict against a nominal 0.022); with the defaults no
+// NO in 2160 verdicts.  A longer run of the same rule (3500 tables, 2000 small and 1500
+// of width 64): 0.16-0.18 a table; forward 0.022-0.023 and backward 0.022 a verdict
+// against 0.022 -- at the nominal rate a verdict, below it a table (Bonferroni).
+// Power: at 8 draws of 8 sequences (width 64, 4 heads, 16 tokens) a row's band is about
+// x/1.07 (projections) to x/1.3 (mix, output) forward and x/1.25 to x/1.45 backward;
+// projections drawn at gain 3 are flagged at all nine verdicts (scores 81x), a value
+// projection alone 3x off at value and mix forward and at the softmax backward, an output
+// projection alone at the output forward and at the mix and value backward.  The passes
+// run in double (the weights drawn as doubles), as in recurrent.hpp.
 #ifndef KINDLING_PROPAGATE_ATTENTION_HPP
 #define KINDLING_PROPAGATE_ATTENTION_HPP
 
@@ -234,12 +267,24 @@ struct attention_moments {
   double pair_norm = 0;             // mean over (i, j) of |x_i|^2 |x_j|^2: E[s^2] = Var W_q Var W_k pair_norm
   double mixed_norm = 0;            // mean over (head, i) of |sum_j p_ij x_j|^2: E[o^2] = Var W_v mixed_norm
   double mix_norm = 0;              // mean over tokens of |o_i|^2: E[y^2] = Var W_o mix_norm
+  // Backward (run_attention with an output gradient; zero otherwise): mean squares of the
+  // gradients with respect to each tensor, and what their conditional predictions read.
+  double output_gradient = 0;       // E[g^2], g = dL/dy (drawn)
+  double mix_gradient = 0;          // E[(dL/do)^2]
+  double softmax_gradient = 0;      // E[(dL/dp)^2] over the L^2 weights of every head
+  double score_gradient = 0;        // E[(dL/ds)^2]
+  double query_gradient = 0, key_gradient = 0, value_gradient = 0;  // E[(dL/dq)^2], ...
+  double input_gradient = 0;        // E[(dL/dx)^2]: measured only
+  double gradient_norm = 0;         // mean over tokens of |g_i|^2: E[(dL/do)^2] = Var W_o gradient_norm
+  double gradient_pair_norm = 0;    // mean over (head, i, j) of |dL/do_i (head)|^2 |x_j|^2:
+                                    //   E[(dL/dp)^2] = Var W_v gradient_pair_norm
+  double mixed_gradient_norm = 0;   // mean over (head, j) of |sum_i p_ij g_i|^2:
+                                    //   E[(dL/dv)^2] = Var W_o mixed_gradient_norm
 };
 
-/// One forward pass of `input` ([width, length batch], column b L + i token i of
-/// sequence b) through the drawn block.
+namespace detail {
 inline attention_moments run_attention(const attention_block& block, const realized_attention& net,
-                                       const Eigen::MatrixXd& input) {
+                                       const Eigen::MatrixXd& input, const Eigen::MatrixXd* output_gradient) {
   constexpr const char* where = "kindling::run_attention";
   const auto d = static_cast<Eigen::Index>(block.width()), L = static_cast<Eigen::Index>(block.length());
   const auto H = static_cast<Eigen::Index>(block.heads()), dk = d / H;
@@ -256,8 +301,24 @@ inline attention_moments run_attention(const attention_block& block, const reali
                                 std::to_string(input.cols()) + ", expected " + std::to_string(d) +
                                 " rows (width) and a positive multiple of length = " + std::to_string(L) + " columns");
   }
+  if (output_gradient != nullptr && (output_gradient->rows() != d || output_gradient->cols() != input.cols())) {
+    throw std::invalid_argument(std::string(where) + ": argument 'output_gradient' is " +
+                                std::to_string(output_gradient->rows()) + " x " + std::to_string(output_gradient->cols()) +
+                                ", expected the shape of argument 'input' (" + std::to_string(d) + " x " +
+                                std::to_string(input.cols()) + ")");
+  }
   const Eigen::Index B = input.cols() / L;
   const Eigen::MatrixXd q = net.weight[0] * input, k = net.weight[1] * input, v = net.weight[2] * input;
+  // Backward: dL/do before the heads run (W_o^T g), and per head the gradients below.
+  const bool backward = output_gradient != nullptr;
+  Eigen::MatrixXd go, gq, gk, gv;
+  if (backward) {
+    go = net.weight[3].transpose() * *output_gradient;
+    gq.resize(d, input.cols());
+    gk.resize(d, input.cols());
+    gv.resize(d, input.cols());
+  }
+  double softmax_gradient = 0, score_gradient = 0, gradient_pairs = 0, mixed_gradients = 0;
   Eigen::MatrixXd o(d, input.cols());
   const double scale = 1.0 / std::sqrt(static_cast<double>(dk));
   double score = 0, concentration = 0, largest = 0, mixed_inputs = 0, pair_norm = 0;
@@ -275,6 +336,18 @@ inline attention_moments run_attention(const attention_block& block, const reali
       largest += p.rowwise().maxCoeff().sum();
       o.block(h * dk, b * L, dk, L).noalias() = v.block(h * dk, b * L, dk, L) * p.transpose();
       mixed_inputs += (x * p.transpose()).squaredNorm();
+      if (!backward) continue;
+      const auto go_h = go.block(h * dk, b * L, dk, L);                         // dL/do, [c, query]
+      gv.block(h * dk, b * L, dk, L).noalias() = go_h * p;                      // dL/dv_j = sum_i p_ij dL/do_i
+      const Eigen::MatrixXd gp = go_h.transpose() * v.block(h * dk, b * L, dk, L);  // [query, key]
+      softmax_gradient += gp.squaredNorm();
+      const Eigen::VectorXd carried = (p.cwiseProduct(gp)).rowwise().sum();   // sum_j' p_ij' dL/dp_ij'
+      const Eigen::MatrixXd gs = p.cwiseProduct(gp.colwise() - carried);
+      score_gradient += gs.squaredNorm();
+      gq.block(h * dk, b * L, dk, L).noalias() = (k.block(h * dk, b * L, dk, L) * gs.transpose()) * scale;
+      gk.block(h * dk, b * L, dk, L).noalias() = (q.block(h * dk, b * L, dk, L) * gs) * scale;
+      gradient_pairs += go_h.squaredNorm() * norms * static_cast<double>(L);  // sum_(i,j) |dL/do_i|^2 |x_j|^2
+      mixed_gradients += (output_gradient->middleCols(b * L, L) * p).squaredNorm();
     }
   }
   const Eigen::MatrixXd y = net.weight[3] * o;
@@ -294,12 +367,43 @@ inline attention_moments run_attention(const attention_block& block, const reali
   m.pair_norm = pair_norm / static_cast<double>(B);
   m.mixed_norm = mixed_inputs / rows;
   m.mix_norm = o.squaredNorm() / tokens;
+  if (backward) {
+    const Eigen::MatrixXd gx =
+        net.weight[0].transpose() * gq + net.weight[1].transpose() * gk + net.weight[2].transpose() * gv;
+    const double pairs = rows * static_cast<double>(L);  // (head, query, key) over the batch
+    m.output_gradient = output_gradient->squaredNorm() / n;
+    m.mix_gradient = go.squaredNorm() / n;
+    m.softmax_gradient = softmax_gradient / pairs;
+    m.score_gradient = score_gradient / pairs;
+    m.query_gradient = gq.squaredNorm() / n;
+    m.key_gradient = gk.squaredNorm() / n;
+    m.value_gradient = gv.squaredNorm() / n;
+    m.input_gradient = gx.squaredNorm() / n;
+    m.gradient_norm = output_gradient->squaredNorm() / tokens;
+    m.gradient_pair_norm = gradient_pairs / pairs;
+    m.mixed_gradient_norm = mixed_gradients / rows;
+  }
   return m;
+}
+}  // namespace detail
+
+/// One forward pass of `input` ([width, length batch], column b L + i token i of
+/// sequence b) through the drawn block; the backward moments stay zero.
+inline attention_moments run_attention(const attention_block& block, const realized_attention& net,
+                                       const Eigen::MatrixXd& input) {
+  return detail::run_attention(block, net, input, nullptr);
+}
+
+/// The forward pass, then `output_gradient` (dL/dy, the shape of `input`) back through
+/// it to the block's input (the header comment's chain rule).
+inline attention_moments run_attention(const attention_block& block, const realized_attention& net,
+                                       const Eigen::MatrixXd& input, const Eigen::MatrixXd& output_gradient) {
+  return detail::run_attention(block, net, input, &output_gradient);
 }
 
 struct attention_options {
   std::size_t trials = 8;               // independent draws, at least 2
-  double false_alarm = 1e-3;            // for the six predicted rows together, in (0, 1)
+  double false_alarm = 1e-3;            // for the nine judged moments together, in (0, 1)
   double finite_width_allowance = 1.0;  // c >= 0: the band widens by c w (header comment)
   double input_second_moment = 1.0;     // E[x^2] of the inputs
 };
@@ -316,12 +420,34 @@ struct attention_row {
   bool projection = false;   // query, key, value, output: a dense layer, fans (width, width)
   std::string scheme;        // a projection's scheme
   double weight_variance = 0;  // a projection's Var W per element
+  // Backward: the gradient with respect to the row's tensor (header comment).
+  double planned_gradient = 0;      // from the schemes alone; NaN: measured only
+  double gradient_median = 0;       // of the measured moment over the draws
+  double gradient_spread = 0;       // standard deviation over draws of ln(moment)
+  bool gradient_judged = false;     // mix, softmax and value
+  measured_moment gradient_verdict; // over the ratios m_k / p_k, when gradient_judged
+  /// Every verdict of the row holds (true for a row without one).
+  bool agrees() const { return (!judged || verdict.agrees) && (!gradient_judged || gradient_verdict.agrees); }
 };
 
 namespace detail {
+inline double median_of(std::vector<double> v) {
+  std::sort(v.begin(), v.end());
+  const std::size_t k = v.size();
+  return k % 2 == 1 ? v[k / 2] : 0.5 * (v[k / 2 - 1] + v[k / 2]);
+}
+
+inline double log_spread(const std::vector<double>& v) {
+  double mean = 0, ss = 0;
+  for (double x : v) mean += std::log(x);
+  mean /= static_cast<double>(v.size());
+  for (double x : v) ss += (std::log(x) - mean) * (std::log(x) - mean);
+  return std::sqrt(ss / static_cast<double>(v.size() - 1));
+}
+
 // A row's cells in the columns of every propagation table (measure.hpp): the
 // projections are dense layers without an activation; fwd_var is the prediction from
-// the schemes, "measured" where there is none; no backward columns (forward only).
+// the schemes, "measured" where there is none; the backward columns when a backward pass ran.
 inline table_cells attention_cells(const attention_row& r, std::string label) {
   table_cells c;
   c.label = std::move(label);
@@ -336,8 +462,27 @@ inline table_cells attention_cells(const attention_row& r, std::string label) {
   c.fwd_var = std::isnan(r.planned) ? "measured" : table_number(r.planned);
   c.fwd_med = table_number(r.median);
   c.fwd_spread = table_number(std::exp(r.spread), 3);
-  c.agrees = !r.judged ? "-" : r.verdict.agrees ? "yes" : "NO";
+  if (r.gradient_median > 0.0) {  // a backward pass ran
+    c.bwd_var = std::isnan(r.planned_gradient) ? "measured" : table_number(r.planned_gradient);
+    c.bwd_med = table_number(r.gradient_median);
+    c.bwd_spread = table_number(std::exp(r.gradient_spread), 3);
+  }
+  c.agrees = !r.judged && !r.gradient_judged ? "-" : r.agrees() ? "yes" : "NO";
   return c;
+}
+
+// The lines under a row that disagrees, one a direction.
+inline std::string attention_disagreement(const attention_row& r) {
+  std::string s;
+  char line[256];
+  const auto add = [&](const char* direction, const measured_moment& v) {
+    std::snprintf(line, sizeof line, "    disagrees %s: mean/predicted = %.4g given the draw, outside the band x/%.4g\n",
+                  direction, std::exp(v.deviation), std::exp(v.tolerance));
+    s += line;
+  };
+  if (r.judged && !r.verdict.agrees) add("forward", r.verdict);
+  if (r.gradient_judged && !r.gradient_verdict.agrees) add("backward", r.gradient_verdict);
+  return s;
 }
 }  // namespace detail
 
@@ -350,8 +495,14 @@ struct attention_report {
   double quantile = 0;
   bool all_agree() const {
     for (const auto& r : rows)
-      if (r.judged && !r.verdict.agrees) return false;
+      if (!r.agrees()) return false;
     return true;
+  }
+  /// The median over the draws of E[(dL/dx)^2] at the block's input (measured only).
+  double input_gradient() const {
+    std::vector<double> v;
+    for (const auto& m : draws) v.push_back(m.input_gradient);
+    return v.empty() ? 0.0 : detail::median_of(std::move(v));
   }
   const attention_row& row(const std::string& name) const {
     for (const auto& r : rows)
@@ -359,27 +510,24 @@ struct attention_report {
     throw std::out_of_range("kindling::attention_report::row: argument 'name' = '" + name +
                             "', expected query, key, value, score, softmax, mix or output");
   }
-  /// A plain-text table with the columns of propagation_report::table() (the backward
-  /// ones "-": forward only); the softmax row's moment is the concentration E[sum p^2].
+  /// A plain-text table with the columns of propagation_report::table(); the softmax
+  /// row's forward moment is the concentration E[sum p^2], its backward one E[(dL/dp)^2].
   std::string table() const {
     const int width = detail::table_label_width(7);
     std::string s = detail::table_header(width, true) + "\n";
-    char line[512];
+    char line[640];
     for (std::size_t i = 0; i < rows.size(); ++i) {
-      const attention_row& r = rows[i];
-      s += detail::table_line(i + 1, detail::attention_cells(r, r.name), width, true) + "\n";
-      if (r.judged && !r.verdict.agrees) {
-        std::snprintf(line, sizeof line, "    disagrees: mean/predicted = %.4g given the draw, outside the band x/%.4g\n",
-                      std::exp(r.verdict.deviation), std::exp(r.verdict.tolerance));
-        s += line;
-      }
+      s += detail::table_line(i + 1, detail::attention_cells(rows[i], rows[i].name), width, true) + "\n";
+      s += detail::attention_disagreement(rows[i]);
     }
     std::snprintf(line, sizeof line,
-                  "%zu draws of %llu sequence%s; fwd_var: predicted from the schemes (measured: no closed form); a row "
-                  "agrees when its mean ratio to the prediction given the draw is within t(%zu) = %.3g standard "
-                  "errors plus a finite-width allowance (false alarm <= %g for the table); forward only\n",
+                  "%zu draws of %llu sequence%s, a unit loss gradient at the output; fwd_var/bwd_var: predicted from "
+                  "the schemes (measured: no closed form); a row agrees when its mean ratio to the prediction given "
+                  "the draw is within t(%zu) = %.3g standard errors plus a finite-width allowance (false alarm <= %g "
+                  "for the table; backward judged at mix, softmax and value); the block's input gradient "
+                  "E[(dL/dx)^2] = %.4g (measured only)\n",
                   trials, static_cast<unsigned long long>(batch), batch == 1 ? "" : "s", trials > 0 ? trials - 1 : 0,
-                  quantile, false_alarm);
+                  quantile, false_alarm, input_gradient());
     s += line;
     return s;
   }
@@ -391,22 +539,11 @@ inline attention_moments measure_attention_draw(const attention_block& block, co
   const realized_attention net = draw_attention(block, t);
   Eigen::MatrixXd x(static_cast<Eigen::Index>(block.width()), static_cast<Eigen::Index>(block.length() * batch));
   fill(view_of(x), dist::normal{0.0, std::sqrt(input_moment)}, t.named("input"));
-  return run_attention(block, net, x);
+  Eigen::MatrixXd g(x.rows(), x.cols());
+  fill(view_of(g), dist::normal{0.0, 1.0}, t.named("output_gradient"));
+  return run_attention(block, net, x, g);
 }
 
-inline double median_of(std::vector<double> v) {
-  std::sort(v.begin(), v.end());
-  const std::size_t k = v.size();
-  return k % 2 == 1 ? v[k / 2] : 0.5 * (v[k / 2 - 1] + v[k / 2]);
-}
-
-inline double log_spread(const std::vector<double>& v) {
-  double mean = 0, ss = 0;
-  for (double x : v) mean += std::log(x);
-  mean /= static_cast<double>(v.size());
-  for (double x : v) ss += (std::log(x) - mean) * (std::log(x) - mean);
-  return std::sqrt(ss / static_cast<double>(v.size() - 1));
-}
 }  // namespace detail
 
 /// Draws `measured` options.trials times (draw k from s.indexed(k)), runs `batch`
@@ -436,62 +573,92 @@ attention_report compare_attention(const attention_block& measured, const attent
     report.draws[k] = detail::measure_attention_draw(measured, s.indexed(k), batch, options.input_second_moment);
   };
   exec(options.trials, std::function<void(std::size_t)>(task));
-  report.quantile = detail::student_t_two_sided(options.false_alarm / 6.0, options.trials - 1);
 
   // The prediction given draw k: `predicted`'s weight variances times what draw k's pass
-  // computed before each weight acted.
+  // computed before each weight acted (header comment), forward and backward.
   const double d = static_cast<double>(measured.width()), dk = static_cast<double>(measured.head_width());
   const double l = static_cast<double>(measured.length()), c = options.finite_width_allowance;
+  const double x2 = options.input_second_moment, nan = std::numeric_limits<double>::quiet_NaN();
   const auto var = [&](std::size_t i) { return predicted.weight_variance(i); };
-  const auto ratio_to = [&](const attention_moments& m, std::size_t i) {
-    switch (i) {
-      case 0: return m.query / (var(0) * m.token_norm);
-      case 1: return m.key / (var(1) * m.token_norm);
-      case 2: return m.value / (var(2) * m.token_norm);
-      case 3: return m.score / (var(0) * var(1) * m.pair_norm);
-      case 4: return m.mix / (var(2) * m.mixed_norm);
-      default: return m.output / (var(3) * m.mix_norm);
-    }
-  };
+  using moment_of = double (*)(const attention_moments&);
+  using ratio_of = std::function<double(const attention_moments&)>;
+  // One row: its tensor's moments forward and backward, what each is predicted from, and
+  // the projection (0 query .. 3 output; -1 none) whose weights made the tensor.
   struct spec {
     const char* name;
-    double attention_moments::*moment;
     std::uint64_t width;
+    int projection;
+    moment_of forward;
     double planned;
-    int judged;  // index for ratio_to, -1: measured only
-    double allowance;
+    ratio_of forward_ratio;  // empty: measured only
+    double forward_allowance;
+    moment_of backward;
+    double planned_gradient;
+    ratio_of backward_ratio;  // empty: measured only
+    double backward_allowance;
   };
-  const double x2 = options.input_second_moment, nan = std::numeric_limits<double>::quiet_NaN();
-  const std::uint64_t w = measured.width();
+  const double whole = 2 / d + 1 / dk + 1 / l;  // the forward pass's w, where the backward pass starts
+  const double mix_gradient = d * var(3);       // E[(dL/do)^2] for E[g^2] = 1
+  const std::uint64_t w = measured.width(), tokens = measured.length();
   const spec specs[] = {
-      {"query", &attention_moments::query, w, predicted.projection_moment(0, x2), 0, c / d},
-      {"key", &attention_moments::key, w, predicted.projection_moment(1, x2), 1, c / d},
-      {"value", &attention_moments::value, w, predicted.projection_moment(2, x2), 2, c / d},
-      {"score", &attention_moments::score, measured.length(), predicted.score_moment(x2), 3, c * (1 / d + 1 / dk)},
-      {"softmax", &attention_moments::concentration, measured.length(), nan, -1, 0.0},
-      {"mix", &attention_moments::mix, w, nan, 4, c * (1 / d + 1 / dk + 1 / l)},
-      {"output", &attention_moments::output, w, nan, 5, c * (2 / d + 1 / dk + 1 / l)},
+      {"query", w, 0, [](const attention_moments& m) { return m.query; }, predicted.projection_moment(0, x2),
+       [&](const attention_moments& m) { return m.query / (var(0) * m.token_norm); }, c / d,
+       [](const attention_moments& m) { return m.query_gradient; }, nan, {}, 0.0},
+      {"key", w, 1, [](const attention_moments& m) { return m.key; }, predicted.projection_moment(1, x2),
+       [&](const attention_moments& m) { return m.key / (var(1) * m.token_norm); }, c / d,
+       [](const attention_moments& m) { return m.key_gradient; }, nan, {}, 0.0},
+      {"value", w, 2, [](const attention_moments& m) { return m.value; }, predicted.projection_moment(2, x2),
+       [&](const attention_moments& m) { return m.value / (var(2) * m.token_norm); }, c / d,
+       [](const attention_moments& m) { return m.value_gradient; }, nan,
+       [&](const attention_moments& m) { return m.value_gradient / (var(3) * m.mixed_gradient_norm); },
+       c * (whole + 1 / d + 1 / l)},
+      {"score", tokens, -1, [](const attention_moments& m) { return m.score; }, predicted.score_moment(x2),
+       [&](const attention_moments& m) { return m.score / (var(0) * var(1) * m.pair_norm); }, c * (1 / d + 1 / dk),
+       [](const attention_moments& m) { return m.score_gradient; }, nan, {}, 0.0},
+      {"softmax", tokens, -1, [](const attention_moments& m) { return m.concentration; }, nan, {}, 0.0,
+       [](const attention_moments& m) { return m.softmax_gradient; }, dk * mix_gradient * d * var(2) * x2,
+       [&](const attention_moments& m) { return m.softmax_gradient / (var(2) * m.gradient_pair_norm); },
+       c * (whole + 2 / d + 1 / dk)},
+      {"mix", w, -1, [](const attention_moments& m) { return m.mix; }, nan,
+       [&](const attention_moments& m) { return m.mix / (var(2) * m.mixed_norm); }, c * (1 / d + 1 / dk + 1 / l),
+       [](const attention_moments& m) { return m.mix_gradient; }, mix_gradient,
+       [&](const attention_moments& m) { return m.mix_gradient / (var(3) * m.gradient_norm); }, c * (whole + 1 / d)},
+      {"output", w, 3, [](const attention_moments& m) { return m.output; }, nan,
+       [&](const attention_moments& m) { return m.output / (var(3) * m.mix_norm); }, c * whole,
+       [](const attention_moments& m) { return m.output_gradient; }, 1.0, {}, 0.0},
+  };
+  std::size_t comparisons = 0;
+  for (const spec& sp : specs) comparisons += (sp.forward_ratio ? 1 : 0) + (sp.backward_ratio ? 1 : 0);
+  report.quantile = detail::student_t_two_sided(options.false_alarm / static_cast<double>(comparisons), options.trials - 1);
+  const auto over_draws = [&](const auto& f) {
+    std::vector<double> v;
+    for (const auto& m : report.draws) v.push_back(f(m));
+    return v;
   };
   for (const spec& sp : specs) {
     attention_row r;
     r.name = sp.name;
     r.width = sp.width;
     r.planned = sp.planned;
-    const int which = &sp - specs < 3 ? static_cast<int>(&sp - specs) : &sp - specs == 6 ? 3 : -1;
-    if (which >= 0) {  // query, key, value, output: the projections' schemes
+    r.planned_gradient = sp.planned_gradient;
+    if (sp.projection >= 0) {  // the weights drawn
+      const auto i = static_cast<std::size_t>(sp.projection);
       r.projection = true;
-      r.scheme = measured.scheme(static_cast<std::size_t>(which));  // the weights drawn
-      r.weight_variance = measured.weight_variance(static_cast<std::size_t>(which));
+      r.scheme = measured.scheme(i);
+      r.weight_variance = measured.weight_variance(i);
     }
-    std::vector<double> values;
-    for (const auto& m : report.draws) values.push_back(m.*(sp.moment));
-    r.median = detail::median_of(values);
-    r.spread = r.median > 0.0 ? detail::log_spread(values) : 0.0;
-    if (sp.judged >= 0) {
-      std::vector<double> ratios;
-      for (const auto& m : report.draws) ratios.push_back(ratio_to(m, static_cast<std::size_t>(sp.judged)));
+    const std::vector<double> forward = over_draws(sp.forward), backward = over_draws(sp.backward);
+    r.median = detail::median_of(forward);
+    r.spread = r.median > 0.0 ? detail::log_spread(forward) : 0.0;
+    r.gradient_median = detail::median_of(backward);
+    r.gradient_spread = r.gradient_median > 0.0 ? detail::log_spread(backward) : 0.0;
+    if (sp.forward_ratio) {
       r.judged = true;
-      r.verdict = detail::judge_moment(1.0, std::move(ratios), report.quantile, sp.allowance);
+      r.verdict = detail::judge_moment(1.0, over_draws(sp.forward_ratio), report.quantile, sp.forward_allowance);
+    }
+    if (sp.backward_ratio) {
+      r.gradient_judged = true;
+      r.gradient_verdict = detail::judge_moment(1.0, over_draws(sp.backward_ratio), report.quantile, sp.backward_allowance);
     }
     report.rows.push_back(std::move(r));
   }
