@@ -280,18 +280,15 @@ struct judged_part {
 };
 
 // The lines under the table: one stack's method as the library words it; with cuts,
-// each stack's method under its rows and the budgets of every judged part (stacks,
+// each stack's method (its budget worded for its rows) under its rows and the budgets of every judged part (stacks,
 // cells, blocks) summed for the whole table (Bonferroni).
 std::vector<std::string> method_lines(const std::vector<judged_part>& parts, std::size_t cells, std::size_t blocks) {
   if (parts.empty()) return {};
   if (parts.size() + cells + blocks < 2) return {parts[0].method};
   std::vector<std::string> out;
-  const std::string whole = "for the whole table";
   for (const judged_part& p : parts) {
-    std::string m = p.method;
-    const std::size_t at = m.find(whole);
-    if (at != std::string::npos) m.replace(at, whole.size(), "for these rows");
-    out.push_back("rows " + std::to_string(p.first) + (p.last > p.first ? "-" + std::to_string(p.last) : "") + ": " + m);
+    out.push_back("rows " + std::to_string(p.first) + (p.last > p.first ? "-" + std::to_string(p.last) : "") + ": " +
+                  p.method);
   }
   const double sum = measure_options{}.false_alarm * static_cast<double>(parts.size()) +
                      recurrent_options{}.false_alarm * static_cast<double>(cells) +
@@ -375,7 +372,9 @@ int run_plan(const plan_options& o) {
         // first cell keeps the stream of a spec without cells.)
         const stream s = section == 0 ? plan_stream : plan_stream.named("above " + cut_label(sections, section - 1));
         measured = compare_propagation(stack, predicted, o.batch, s, mo, progress);
-        methods.push_back({index + 1, index + stack.depth(), measured.method()});
+        // Cut into parts, each stack's budget covers its own rows (method_lines sums them).
+        methods.push_back({index + 1, index + stack.depth(),
+                           measured.method(sections.cuts.empty() ? "the whole table" : "these rows")});
       }
     }
     for (std::size_t l = 0; l < stack.depth(); ++l) {

@@ -336,6 +336,11 @@ inline void spec_residual(const nlohmann::json& l, const std::string& source, co
     s.alpha = spec_number(r["alpha"], source, rpath + ".alpha", false, true);
   }
   if (r.contains("blocks")) {
+    // L is read by the rules that divide by it; given to another, it would be silently unused.
+    if (s.scaling == "none" || nf) {
+      throw std::invalid_argument("kindling network spec " + source + ": '" + rpath + ".blocks' is given with scaling '" +
+                                  s.scaling + "', expected it only with scaling inverse-sqrt, fixup or fixup-keep-last");
+    }
     s.blocks = spec_width(r["blocks"], source, rpath + ".blocks");
   } else if (s.scaling != "none" && !nf) {
     throw std::invalid_argument("kindling network spec " + source + ": '" + rpath + "' has scaling '" + s.scaling +

@@ -18,7 +18,7 @@ import sys
 
 import numpy as np
 
-from exported_draw import exported_draw
+from exported_draw import exported_draw, within
 
 
 def forward(Wq, Wk, Wv, Wo, x, heads, length, g=None):
@@ -121,25 +121,19 @@ def main():
             g = np.load(stem + ".output_gradient.npy")
             ref, grads = backward(*W, x, g, block["heads"], block["length"])
             worst = finite_differences(W, x, g, block["heads"], block["length"], grads, np.random.default_rng(11))
-            ok = worst <= 1e-5
-            failures += not ok
-            print(f"{block['name']} backward pass by hand against central differences: largest relative "
-                  f"difference {worst:.2e} {'ok' if ok else 'FAILS (expected <= 1e-5)'}")
+            failures += not within(f"{block['name']} backward pass by hand against central differences: largest "
+                                   f"relative difference", worst, 1e-5)
             for key, theirs in ref.items():
                 mine = block[key]
-                rel = abs(mine - theirs) / abs(theirs)
-                ok = rel <= 1e-6
-                failures += not ok
-                print(f"{block['name']} {key}: kindling {mine:.10g}, NumPy {theirs:.10g}, relative difference "
-                      f"{rel:.2e} {'ok' if ok else 'FAILS (expected <= 1e-6)'}")
+                failures += not within(f"{block['name']} {key}: kindling {mine:.10g}, NumPy {theirs:.10g}, relative "
+                                       f"difference", abs(mine - theirs) / abs(theirs), 1e-6)
             # The conditional predictions read the weight variances the schemes declare:
             # the drawn weights' own mean square is within a few percent of them.
             for i, name in enumerate(("query", "key", "value", "output")):
                 drawn = float(np.mean(W[i] ** 2))
-                ok = abs(drawn / block["variances"][i] - 1) < 0.15
-                failures += not ok
-                print(f"{block['name']} {name} weight: mean square {drawn:.5g}, declared variance "
-                      f"{block['variances'][i]:.5g} {'ok' if ok else 'FAILS (expected within 15%)'}")
+                failures += not within(f"{block['name']} {name} weight: mean square {drawn:.5g}, declared variance "
+                                       f"{block['variances'][i]:.5g}, relative difference",
+                                       abs(drawn / block["variances"][i] - 1), 0.15)
     sys.exit(1 if failures else 0)
 
 

@@ -1,6 +1,6 @@
 """What the NumPy checks of the propagation printers share (check_attention.py,
 check_convolution.py, check_recurrent.py): running a printer of reference/ on a fresh
-directory and reading what it printed.
+directory and reading what it printed, and printing each comparison's line.
 
 Imported from beside those scripts: python puts a script's own folder first on its path,
 so ctest's `/usr/bin/python3 tests/propagate/check_*.py PRINTER` finds this module.
@@ -20,3 +20,11 @@ def exported_draw(printer):
     with tempfile.TemporaryDirectory() as directory:
         out = subprocess.run([printer, directory], check=True, capture_output=True, text=True).stdout
         yield directory, json.loads(out)
+
+
+def within(what, value, limit):
+    """Prints one check's line, `what` then the value against its limit, and says whether
+    value <= limit (the caller counts the failures)."""
+    ok = value <= limit
+    print(f"{what} {value:.2e} {'ok' if ok else f'FAILS (expected <= {limit:g})'}")
+    return ok

@@ -307,6 +307,10 @@ TEST_CASE("the table has the tool's columns: fans, activation, scheme and weight
   CHECK(std::stod(first[6]) == doctest::Approx(0.125).epsilon(1e-3));
   CHECK(std::stod(first[7]) == doctest::Approx(r.layers[0].predicted.preactivation_variance).epsilon(1e-3));
   CHECK(first[13] == (r.layers[0].agrees ? "yes" : "NO"));
+  // The method line under the table names what its false-alarm budget covers: the whole
+  // table, or the rows of one part of a table cut into parts (kindling plan).
+  CHECK(mentions(r.table(), "(false alarm <= 0.001 for the whole table)"));
+  CHECK(mentions(r.method("these rows"), "(false alarm <= 0.001 for these rows)"));
 }
 
 // The draws are the documented streams: draw k is realize(stack, s.indexed(k)) with the

@@ -402,15 +402,17 @@ struct propagation_report {
     if (!c.gradient.agrees) s += (s.empty() ? "" : "; ") + detail::moment_verdict("backward", c.gradient);
     return s;
   }
-  /// How the verdict was reached, one line (printed under the table).
-  std::string method() const {
-    char line[400];
+  /// How the verdict was reached, one line (printed under the table).  `scope` names
+  /// what the false-alarm budget covers: the whole table, or (a table cut into parts,
+  /// as `kindling plan` prints around recurrent cells and attention blocks) "these rows".
+  std::string method(const char* scope = "the whole table") const {
+    char line[448];
     std::snprintf(line, sizeof line,
                   "%zu draws of %llu sample%s; fwd_med/bwd_med: median over the draws, x/: how much one draw "
                   "varies; a row agrees when the mean over the draws is within t(%zu) = %.3g standard errors "
-                  "plus a finite-width allowance of the prediction (false alarm <= %g for the whole table)",
+                  "plus a finite-width allowance of the prediction (false alarm <= %g for %s)",
                   trials, static_cast<unsigned long long>(batch), batch == 1 ? "" : "s", trials > 0 ? trials - 1 : 0, quantile,
-                  false_alarm);
+                  false_alarm, scope);
     return line;
   }
   /// A plain-text table, one row a layer, with the columns of `kindling plan --measure`
