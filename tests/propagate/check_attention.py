@@ -14,11 +14,10 @@ directions of each projection (the gradient of L with respect to W is dL/d(tenso
 so this covers dL/dq, dL/dk and dL/dv as well).
 Usage: check_attention.py <kindling_propagate_print_attention>
 """
-import sys
 
 import numpy as np
 
-from exported_draw import exported_draw, within
+from exported_draw import check_each, within
 
 
 def forward(Wq, Wk, Wv, Wo, x, heads, length, g=None):
@@ -111,30 +110,27 @@ def finite_differences(W, x, g, heads, length, grads, rng):
     return worst
 
 
-def main():
-    failures = 0
-    with exported_draw(sys.argv[1]) as (directory, blocks):
-        for block in blocks:
-            stem = f"{directory}/{block['name']}"
-            W = [np.load(f"{stem}.{p}_weight.npy") for p in ("query", "key", "value", "output")]
-            x = np.load(stem + ".input.npy")
-            g = np.load(stem + ".output_gradient.npy")
-            ref, grads = backward(*W, x, g, block["heads"], block["length"])
-            worst = finite_differences(W, x, g, block["heads"], block["length"], grads, np.random.default_rng(11))
-            failures += not within(f"{block['name']} backward pass by hand against central differences: largest "
-                                   f"relative difference", worst, 1e-5)
-            for key, theirs in ref.items():
-                mine = block[key]
-                failures += not within(f"{block['name']} {key}: kindling {mine:.10g}, NumPy {theirs:.10g}, relative "
-                                       f"difference", abs(mine - theirs) / abs(theirs), 1e-6)
-            # The conditional predictions read the weight variances the schemes declare:
-            # the drawn weights' own mean square is within a few percent of them.
-            for i, name in enumerate(("query", "key", "value", "output")):
-                drawn = float(np.mean(W[i] ** 2))
-                failures += not within(f"{block['name']} {name} weight: mean square {drawn:.5g}, declared variance "
-                                       f"{block['variances'][i]:.5g}, relative difference",
-                                       abs(drawn / block["variances"][i] - 1), 0.15)
-    sys.exit(1 if failures else 0)
+def check_block(directory, block):
+    stem = f"{directory}/{block['name']}"
+    W = [np.load(f"{stem}.{p}_weight.npy") for p in ("query", "key", "value", "output")]
+    x = np.load(stem + ".input.npy")
+    g = np.load(stem + ".output_gradient.npy")
+    ref, grads = backward(*W, x, g, block["heads"], block["length"])
+    worst = finite_differences(W, x, g, block["heads"], block["length"], grads, np.random.default_rng(11))
+    failures = not within(f"{block['name']} backward pass by hand against central differences: largest relative "
+                          f"difference", worst, 1e-5)
+    for key, theirs in ref.items():
+        mine = block[key]
+        failures += not within(f"{block['name']} {key}: kindling {mine:.10g}, NumPy {theirs:.10g}, relative "
+                               f"difference", abs(mine - theirs) / abs(theirs), 1e-6)
+    # The conditional predictions read the weight variances the schemes declare: the
+    # drawn weights' own mean square is within a few percent of them.
+    for i, name in enumerate(("query", "key", "value", "output")):
+        drawn = float(np.mean(W[i] ** 2))
+        failures += not within(f"{block['name']} {name} weight: mean square {drawn:.5g}, declared variance "
+                               f"{block['variances'][i]:.5g}, relative difference",
+                               abs(drawn / block["variances"][i] - 1), 0.15)
+    return failures
 
 
-main()
+check_each(check_block)

@@ -10,11 +10,10 @@ candidate], h = u h_prev + (1 - u) n), forward and back through time by the chai
 step by step; every moment must agree to 1e-6 relative.
 Usage: check_recurrent.py <kindling_propagate_print_recurrent>
 """
-import sys
 
 import numpy as np
 
-from exported_draw import exported_draw, within
+from exported_draw import check_each, within
 
 
 def sigmoid(z):
@@ -87,28 +86,26 @@ def gru(W, U, b, xs, g):
     return out
 
 
-def main():
+def check_cell(directory, cell):
+    stem = f"{directory}/{cell['kind']}"
+    W, U = np.load(stem + ".input_weight.npy"), np.load(stem + ".recurrent_weight.npy")
+    b = np.load(stem + ".bias.npy").reshape(-1)
+    x, g = np.load(stem + ".input.npy"), np.load(stem + ".output_gradient.npy")
+    n = W.shape[1]
+    xs = [x[t * n:(t + 1) * n] for t in range(cell["steps"])]
+    ref = (lstm if cell["kind"] == "lstm" else gru)(W, U, b, xs, g)
     failures = 0
-    with exported_draw(sys.argv[1]) as (directory, cells):
-        for cell in cells:
-            stem = f"{directory}/{cell['kind']}"
-            W, U = np.load(stem + ".input_weight.npy"), np.load(stem + ".recurrent_weight.npy")
-            b = np.load(stem + ".bias.npy").reshape(-1)
-            x, g = np.load(stem + ".input.npy"), np.load(stem + ".output_gradient.npy")
-            n = W.shape[1]
-            xs = [x[t * n:(t + 1) * n] for t in range(cell["steps"])]
-            ref = (lstm if cell["kind"] == "lstm" else gru)(W, U, b, xs, g)
-            for key in ("gates", "state", "cell", "state_gradient", "cell_gradient"):
-                mine, theirs = np.array(cell[key], dtype=float), np.array(ref[key], dtype=float)
-                if mine.shape != theirs.shape:
-                    print(f"{cell['kind']} {key}: shape {mine.shape}, NumPy {theirs.shape}")
-                    failures += 1
-                    continue
-                if mine.size == 0:
-                    continue
-                rel = float(np.max(np.abs(mine - theirs) / np.abs(theirs)))
-                failures += not within(f"{cell['kind']} {key}: {mine.size} values, max relative difference", rel, 1e-6)
-    sys.exit(1 if failures else 0)
+    for key in ("gates", "state", "cell", "state_gradient", "cell_gradient"):
+        mine, theirs = np.array(cell[key], dtype=float), np.array(ref[key], dtype=float)
+        if mine.shape != theirs.shape:
+            print(f"{cell['kind']} {key}: shape {mine.shape}, NumPy {theirs.shape}")
+            failures += 1
+            continue
+        if mine.size == 0:
+            continue
+        rel = float(np.max(np.abs(mine - theirs) / np.abs(theirs)))
+        failures += not within(f"{cell['kind']} {key}: {mine.size} values, max relative difference", rel, 1e-6)
+    return failures
 
 
-main()
+check_each(check_cell)

@@ -8,6 +8,7 @@ so ctest's `/usr/bin/python3 tests/propagate/check_*.py PRINTER` finds this modu
 import contextlib
 import json
 import subprocess
+import sys
 import tempfile
 
 
@@ -28,3 +29,15 @@ def within(what, value, limit):
     ok = value <= limit
     print(f"{what} {value:.2e} {'ok' if ok else f'FAILS (expected <= {limit:g})'}")
     return ok
+
+
+def check_each(check):
+    """Runs the printer named by the command line's first argument and calls
+    check(directory, item) for each item it printed, which returns its number of failed
+    comparisons; exits 1 if there was any, or if the printer printed nothing to check,
+    0 otherwise."""
+    with exported_draw(sys.argv[1]) as (directory, items):
+        failures = sum(check(directory, item) for item in items)
+    if not items:
+        print("FAILS: the printer exported nothing to check")
+    sys.exit(1 if failures or not items else 0)
