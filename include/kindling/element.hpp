@@ -131,22 +131,22 @@ inline int side_of(double v, const element_bounds& bd) noexcept {
 template <class E>
 struct element_codec;
 
-template <>
-struct element_codec<float> {
-  using bits = std::uint32_t;
-  static constexpr bits sign = 0x80000000u;
-  static bits round(float v) noexcept { return bits_of(v); }
-  static float make(bits b) noexcept { return float_from_bits(b); }
-  static double value(bits b) noexcept { return static_cast<double>(float_from_bits(b)); }
+// float and double: computed in themselves, stored as their own IEEE pattern.
+template <class T, class U>
+struct native_codec {
+  using bits = U;
+  static constexpr bits sign = static_cast<bits>(bits{1} << (8 * sizeof(bits) - 1));
+  static bits round(T v) noexcept { return bits_of(v); }
+  static T make(bits b) noexcept {
+    if constexpr (sizeof(T) == 4) return float_from_bits(b);
+    else return double_from_bits(b);
+  }
+  static double value(bits b) noexcept { return static_cast<double>(make(b)); }
 };
 template <>
-struct element_codec<double> {
-  using bits = std::uint64_t;
-  static constexpr bits sign = 0x8000000000000000u;
-  static bits round(double v) noexcept { return bits_of(v); }
-  static double make(bits b) noexcept { return double_from_bits(b); }
-  static double value(bits b) noexcept { return double_from_bits(b); }
-};
+struct element_codec<float> : native_codec<float, std::uint32_t> {};
+template <>
+struct element_codec<double> : native_codec<double, std::uint64_t> {};
 // The 16-bit types: computed in float, rounded by their own rule.
 template <class H, H (*round_from_float)(float) noexcept>
 struct half_codec {

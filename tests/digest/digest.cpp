@@ -22,12 +22,7 @@
 
 namespace {
 
-using kindling::region;
-using kindling::shape;
-using kindling::storage_order;
-using kindling::strided_view;
-using kindling::strides;
-namespace dist = kindling::dist;
+using namespace kindling;  // the battery reads as a user's calls would
 
 // The bit pattern of an element as an unsigned integer of the same size.
 inline std::uint64_t bits_of(float x) {

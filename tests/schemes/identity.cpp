@@ -17,10 +17,7 @@ namespace {
 using kindling_test::as_double;
 using kindling_test::mentions;
 using kindling_test::message_of;
-using kindling::shape;
-using kindling::strided_view;
-using kindling::weight_info;
-using kindling::weight_layout;
+using namespace kindling;
 
 template <class E, class Layer>
 std::vector<E> identity_of(const shape& global, const Layer& layer, double gain = 1) {
