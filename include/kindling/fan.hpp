@@ -21,6 +21,7 @@
 #include <utility>
 #include <vector>
 
+#include "detail/compiled_mode.hpp"
 #include "detail/error.hpp"
 
 namespace kindling {
@@ -70,7 +71,16 @@ namespace detail {
 // Largest count a double represents exactly, and with it every count and product here.
 inline constexpr std::uint64_t max_exact_count = std::uint64_t{1} << 53;
 
-inline std::string shape_text(const std::vector<std::uint64_t>& shape) {
+// The shape checks' text and comparison: declared here, defined below in the
+// header-only mode and in the compiled library otherwise (detail/compiled_mode.hpp).
+KINDLING_COMPILED_INLINE std::string shape_text(const std::vector<std::uint64_t>& shape);
+KINDLING_COMPILED_INLINE std::string labels_text(const std::vector<std::string>& labels);
+KINDLING_COMPILED_INLINE void check_against(const char* where, const std::vector<std::uint64_t>& actual,
+                                            const std::vector<std::uint64_t>& expected,
+                                            const std::vector<std::string>& labels, weight_layout layout);
+
+#if defined(KINDLING_COMPILED_DEFINITIONS)
+KINDLING_COMPILED_INLINE std::string shape_text(const std::vector<std::uint64_t>& shape) {
   std::string s = "[";
   for (std::size_t i = 0; i < shape.size(); ++i) {
     if (i != 0) s += ", ";
@@ -79,7 +89,7 @@ inline std::string shape_text(const std::vector<std::uint64_t>& shape) {
   return s + "]";
 }
 
-inline std::string labels_text(const std::vector<std::string>& labels) {
+KINDLING_COMPILED_INLINE std::string labels_text(const std::vector<std::string>& labels) {
   std::string s = "[";
   for (std::size_t i = 0; i < labels.size(); ++i) {
     if (i != 0) s += ", ";
@@ -87,6 +97,7 @@ inline std::string labels_text(const std::vector<std::string>& labels) {
   }
   return s + "]";
 }
+#endif
 
 // a * b, refusing results above 2^53 (and so any 64-bit overflow).
 inline std::uint64_t checked_product(std::uint64_t a, std::uint64_t b, const char* where,
@@ -142,9 +153,10 @@ inline void require_dense_layout(weight_layout layout, const char* where) {
 
 // Compares an actual shape with the expected one of a layout; the message names the
 // argument, shows both shapes and labels the axis that disagrees.
-inline void check_against(const char* where, const std::vector<std::uint64_t>& actual,
-                          const std::vector<std::uint64_t>& expected,
-                          const std::vector<std::string>& labels, weight_layout layout) {
+#if defined(KINDLING_COMPILED_DEFINITIONS)
+KINDLING_COMPILED_INLINE void check_against(const char* where, const std::vector<std::uint64_t>& actual,
+                                            const std::vector<std::uint64_t>& expected,
+                                            const std::vector<std::string>& labels, weight_layout layout) {
   if (actual == expected) return;  // the usual case: no message text to build
   const std::string want = " for layout " + std::string(layout_name(layout)) + " " +
                            labels_text(labels) + " = " + shape_text(expected);
@@ -162,6 +174,7 @@ inline void check_against(const char* where, const std::vector<std::uint64_t>& a
     }
   }
 }
+#endif
 
 inline std::vector<std::string> kernel_labels(std::size_t rank) {
   std::vector<std::string> labels;
@@ -218,18 +231,24 @@ class dense {
                                             : std::vector<std::uint64_t>{in_, out_};
   }
   fans layer_fans() const noexcept { return fans{in_, out_, 1}; }
-  void check_shape(const std::vector<std::uint64_t>& shape) const {
-    const std::vector<std::string> labels =
-        layout_ == weight_layout::out_in ? std::vector<std::string>{"out_features", "in_features"}
-                                         : std::vector<std::string>{"in_features", "out_features"};
-    detail::check_against("kindling::dense::check_shape", shape, weight_shape(), labels, layout_);
-  }
+  void check_shape(const std::vector<std::uint64_t>& shape) const;  // defined below
 
  private:
   std::uint64_t in_;
   std::uint64_t out_;
   weight_layout layout_;
 };
+
+// In the compiled library in that mode (detail/compiled_mode.hpp): every file that
+// initializes a dense weight reaches it.
+#if defined(KINDLING_COMPILED_DEFINITIONS)
+KINDLING_COMPILED_INLINE void dense::check_shape(const std::vector<std::uint64_t>& shape) const {
+  const std::vector<std::string> labels =
+      layout_ == weight_layout::out_in ? std::vector<std::string>{"out_features", "in_features"}
+                                       : std::vector<std::string>{"in_features", "out_features"};
+  detail::check_against("kindling::dense::check_shape", shape, weight_shape(), labels, layout_);
+}
+#endif
 
 namespace detail {
 

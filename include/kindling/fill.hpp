@@ -453,6 +453,26 @@ void fill(X&& x, const D& d, const stream& s, std::uint32_t dom = domain::values
   fill(adapted_view(x), d, s, dom, std::forward<Exec>(exec));
 }
 
+// The views of every element type, const or not, and the rounders: in compiled mode
+// instantiated once, in the compiled library (their constructors' checks are the
+// largest code a file that fills a tensor would otherwise compile).
+#define KINDLING_VIEW_INSTANCES(PREFIX)                                                               \
+  PREFIX class strided_view<float>;                                                                   \
+  PREFIX class strided_view<const float>;                                                             \
+  PREFIX class strided_view<double>;                                                                  \
+  PREFIX class strided_view<const double>;                                                            \
+  PREFIX class strided_view<float16>;                                                                 \
+  PREFIX class strided_view<const float16>;                                                           \
+  PREFIX class strided_view<bfloat16>;                                                                \
+  PREFIX class strided_view<const bfloat16>;                                                          \
+  PREFIX struct detail::element_rounder<float>;                                                       \
+  PREFIX struct detail::element_rounder<double>;                                                      \
+  PREFIX struct detail::element_rounder<float16>;                                                     \
+  PREFIX struct detail::element_rounder<bfloat16>;
+#if defined(KINDLING_COMPILED)
+KINDLING_VIEW_INSTANCES(extern template)
+#endif
+
 }  // namespace kindling
 
 #endif  // KINDLING_FILL_HPP

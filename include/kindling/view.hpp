@@ -24,6 +24,7 @@
 #include <type_traits>
 #include <utility>
 
+#include "detail/compiled_mode.hpp"
 #include "detail/error.hpp"
 
 namespace kindling {
@@ -227,8 +228,23 @@ class region {
 
 namespace detail {
 
+// The views' checks report as the constructor the user called.
+[[noreturn]] inline void fail_argument(const std::string& name, const std::string& value,
+                                       const std::string& expected) {
+  reject_argument<std::invalid_argument>("strided_view", name, value, expected);
+}
+
+// The shape, region and stride checks of every view: declared here, defined below in
+// the header-only mode and in the compiled library otherwise (detail/compiled_mode.hpp),
+// since every file that makes a view reaches them.
+KINDLING_COMPILED_INLINE strides dense_strides(const shape& s, storage_order order);
+KINDLING_COMPILED_INLINE void check_global_shape(const shape& global, const char* argument);
+KINDLING_COMPILED_INLINE void check_region(const shape& global, const region& part);
+KINDLING_COMPILED_INLINE void check_strides(const region& part, const strides& steps);
+
+#if defined(KINDLING_COMPILED_DEFINITIONS)
 // Dense strides in either order; std::length_error if a stride leaves int64.
-inline strides dense_strides(const shape& s, storage_order order) {
+KINDLING_COMPILED_INLINE strides dense_strides(const shape& s, storage_order order) {
   std::array<std::int64_t, max_rank> steps{};
   const std::size_t r = s.rank();
   std::uint64_t step = 1;
@@ -246,14 +262,8 @@ inline strides dense_strides(const shape& s, storage_order order) {
   return strides(steps.begin(), steps.begin() + static_cast<std::ptrdiff_t>(r));
 }
 
-// The views' checks report as the constructor the user called.
-[[noreturn]] inline void fail_argument(const std::string& name, const std::string& value,
-                                       const std::string& expected) {
-  reject_argument<std::invalid_argument>("strided_view", name, value, expected);
-}
-
 // Checks a global shape: rank 1..max_rank, no zero extent, element count in 64 bits.
-inline void check_global_shape(const shape& global, const char* argument) {
+KINDLING_COMPILED_INLINE void check_global_shape(const shape& global, const char* argument) {
   if (global.rank() == 0) {
     fail_argument(argument, "[] (rank 0)",
                   "a rank from 1 to " + std::to_string(max_rank) + " (a scalar is shape {1})");
@@ -269,7 +279,7 @@ inline void check_global_shape(const shape& global, const char* argument) {
 }
 
 // Checks that a region lies inside the global shape and is not empty.
-inline void check_region(const shape& global, const region& part) {
+KINDLING_COMPILED_INLINE void check_region(const shape& global, const region& part) {
   if (part.offset().rank() != part.extent().rank() || part.rank() != global.rank()) {
     fail_argument("region", part.text(),
                   "offset and extent of rank " + std::to_string(global.rank()) + " like the global shape " +
@@ -297,7 +307,7 @@ inline void check_region(const shape& global, const region& part) {
 // necessary: sorted by |stride|, each dimension must step over everything the
 // faster ones span. It accepts every dense or sub-block layout, every reversed or
 // permuted axis, and rejects only interleavings nobody builds on purpose.
-inline void check_strides(const region& part, const strides& steps) {
+KINDLING_COMPILED_INLINE void check_strides(const region& part, const strides& steps) {
   const std::size_t r = part.rank();
   if (steps.rank() != r) {
     fail_argument("strides", steps.text(), "rank " + std::to_string(r) + " like the region " + part.text());
@@ -350,6 +360,7 @@ inline void check_strides(const region& part, const strides& steps) {
     }
   }
 }
+#endif
 
 }  // namespace detail
 

@@ -42,8 +42,23 @@ cmake --build "$work/fp" -j"$jobs" >/dev/null
 "$work/fp/consumer_compiled"
 "$work/fp/consumer_compiled_eigen"
 test "$("$work/fp/consumer_compiled")" = "$("$work/fp/consumer")"
-if nm -C "$work/fp/CMakeFiles/consumer_compiled.dir/consumer.cpp.o" | grep -q ' [TW] .*lanes_avx512'; then
+nm -C "$work/fp/CMakeFiles/consumer_compiled.dir/consumer.cpp.o" >"$work/core_compiled.syms"
+if grep -q ' [TW] .*lanes_avx512' "$work/core_compiled.syms"; then
   echo "a compiled-mode consumer compiled the vector kernels itself" >&2; exit 1
+fi
+# The audits: the same verdicts in both modes, and the compiled consumer links the
+# passes (detail::conformance, check_symmetry) instead of compiling them.
+"$work/fp/consumer_audit"
+test "$("$work/fp/consumer_audit_compiled")" = "$("$work/fp/consumer_audit")"
+# (nm's output goes to a file first: under pipefail, grep -q closing the pipe early
+# would make nm's SIGPIPE the pipeline's status.)
+nm -C "$work/fp/CMakeFiles/consumer_audit_compiled.dir/consumer_audit.cpp.o" >"$work/audit_compiled.syms"
+nm -C "$work/fp/CMakeFiles/consumer_audit.dir/consumer_audit.cpp.o" >"$work/audit_header_only.syms"
+if grep -Eq ' [TW] .*(detail::conformance<|check_symmetry<)' "$work/audit_compiled.syms"; then
+  echo "a compiled-mode consumer compiled the audits' passes itself" >&2; exit 1
+fi
+if ! grep -Eq ' [TW] .*check_symmetry<' "$work/audit_header_only.syms"; then
+  echo "the header-only consumer should compile check_symmetry itself (is the check above looking for the right name?)" >&2; exit 1
 fi
 
 # pkg-config: compile the core consumer with the flags the .pc file gives.

@@ -84,7 +84,10 @@ inline std::string percent_text(double alpha) {
 }
 
 // Human form of a scheme name: "he-normal" -> "He normal".
-inline std::string display_name(const std::string& name) {
+// In the compiled library in that mode (detail/compiled_mode.hpp).
+KINDLING_COMPILED_INLINE std::string display_name(const std::string& name);
+#if defined(KINDLING_COMPILED_DEFINITIONS)
+KINDLING_COMPILED_INLINE std::string display_name(const std::string& name) {
   std::string text = name;
   std::replace(text.begin(), text.end(), '-', ' ');
   const std::pair<const char*, const char*> proper[] = {{"glorot", "Glorot"}, {"lecun", "LeCun"},
@@ -95,6 +98,7 @@ inline std::string display_name(const std::string& name) {
   }
   return text;
 }
+#endif
 
 // What the variance says about the fan, when the scheme is a variance-scaling rule.
 struct fan_hint {
@@ -103,7 +107,10 @@ struct fan_hint {
   kindling::fans fans;
 };
 
-inline std::string fan_text(fan_basis b, const fans& f) {
+// In the compiled library in that mode (detail/compiled_mode.hpp).
+KINDLING_COMPILED_INLINE std::string fan_text(fan_basis b, const fans& f);
+#if defined(KINDLING_COMPILED_DEFINITIONS)
+KINDLING_COMPILED_INLINE std::string fan_text(fan_basis b, const fans& f) {
   const fan_scaled rule{1, b, draw_shape::normal, 2};
   std::string text = std::string(basis_name(b)) + " " + short_number(rule.fan(f), 6);
   if (b == fan_basis::average) {
@@ -111,6 +118,7 @@ inline std::string fan_text(fan_basis b, const fans& f) {
   }
   return text;
 }
+#endif
 
 // The moments of a sample: mean, unbiased variance, fourth central moment.
 struct sample_moments {
@@ -355,6 +363,22 @@ audit_report conformance(const strided_view<E>& v, weight_layout layout, const d
   if (n >= 2) report.add(variance_finding(in, hint));
   return report;
 }
+
+// The serial pass of every element type, const or not: in compiled mode
+// (detail/compiled_mode.hpp) instantiated once, in the compiled library, and only declared
+// in users' files (PREFIX `extern template` there, `template` in the library), so a
+// file that audits a tensor does not compile the pass again.
+#define KINDLING_CONFORMANCE_INSTANCE(PREFIX, E)                                                      \
+  PREFIX audit_report conformance<E, serial_executor>(const strided_view<E>&, weight_layout,         \
+                                                      const declared&, double, const std::string&,    \
+                                                      const fan_hint*, const serial_executor&);
+#define KINDLING_AUDIT_INSTANCES(INSTANCE, PREFIX)                                                    \
+  INSTANCE(PREFIX, const float) INSTANCE(PREFIX, const double) INSTANCE(PREFIX, const float16)        \
+  INSTANCE(PREFIX, const bfloat16) INSTANCE(PREFIX, float) INSTANCE(PREFIX, double)                   \
+  INSTANCE(PREFIX, float16) INSTANCE(PREFIX, bfloat16)
+#if defined(KINDLING_COMPILED)
+KINDLING_AUDIT_INSTANCES(KINDLING_CONFORMANCE_INSTANCE, extern template)
+#endif
 
 template <class T>
 struct is_variant : std::false_type {};

@@ -759,6 +759,14 @@ audit_report check_symmetry(const strided_view<E>& v, const symmetry_options& op
   return report;
 }
 
+// Every element type's check_symmetry, in compiled mode instantiated once in the
+// compiled library (as detail::conformance, conformance.hpp).
+#define KINDLING_SYMMETRY_INSTANCE(PREFIX, E) \
+  PREFIX audit_report check_symmetry<E>(const strided_view<E>&, const symmetry_options&);
+#if defined(KINDLING_COMPILED)
+KINDLING_AUDIT_INSTANCES(KINDLING_SYMMETRY_INSTANCE, extern template)
+#endif
+
 /// Are two tensors (two seeds, two parameter names) uncorrelated? Both views must have
 /// the same number of elements; values are paired in each view's row-major order.
 template <class E, class F>

@@ -22,6 +22,8 @@
 #include <limits>
 #include <cmath>
 
+#include "compiled_mode.hpp"
+
 #if defined(__FAST_MATH__)
 #error "kindling must not be compiled with -ffast-math (or -Ofast): its values are defined bit for bit by IEEE arithmetic (see DEVELOPERS.md, reproducibility format). Remove -ffast-math / -Ofast for the files that include kindling."
 #endif
@@ -283,7 +285,11 @@ inline double normal_pdf(double x) noexcept {
 // gaussian_factor(x), so the tails keep their relative accuracy: within 8 ulp
 // relative for x < 0 (6 measured), 2^-52 absolute for x >= 0.
 
-inline double normal_cdf(double x) noexcept {
+// Declared for every file, defined here in the header-only mode and in the compiled
+// library otherwise (compiled_mode.hpp): the largest function of this header.
+KINDLING_COMPILED_INLINE double normal_cdf(double x) noexcept;
+#if defined(KINDLING_COMPILED_DEFINITIONS)
+KINDLING_COMPILED_INLINE double normal_cdf(double x) noexcept {
   constexpr double inv_sqrt2 = 0x1.6a09e667f3bcdp-1;
   constexpr double inv_sqrt_pi = 0x1.20dd750429b6dp-1;
   // Numerators and denominators in increasing powers; denominators have leading 1.
@@ -319,6 +325,7 @@ inline double normal_cdf(double x) noexcept {
   const double half_g = 0.5 * gaussian_factor(x);  // Phi(-|x|) = half_g r
   return x < 0 ? half_g * r : std::fma(-half_g, r, 1.0);
 }
+#endif
 
 // ---- Phi^-1 -------------------------------------------------------------------------
 // M. J. Wichura, "Algorithm AS 241: The percentage points of the normal distribution",

@@ -156,7 +156,11 @@ inline cut_probabilities cut_probabilities_of(double a, double b) noexcept {
   return {lower, upper, mass};
 }
 
-inline cut_probabilities validated_cuts(const char* type, double a, double b) {
+// The truncated normal's argument check: defined in the compiled library in that mode
+// (detail/compiled_mode.hpp), since every file that names a fan-scaled scheme reaches it.
+KINDLING_COMPILED_INLINE cut_probabilities validated_cuts(const char* type, double a, double b);
+#if defined(KINDLING_COMPILED_DEFINITIONS)
+KINDLING_COMPILED_INLINE cut_probabilities validated_cuts(const char* type, double a, double b) {
   if (a != a || a == std::numeric_limits<double>::infinity())
     reject(type, "cut_lo", a, "a number or -inf, below cut_hi");
   if (b != b || b == -std::numeric_limits<double>::infinity())
@@ -170,6 +174,7 @@ inline cut_probabilities validated_cuts(const char* type, double a, double b) {
                argument_text(c.mass) + ")");
   return c;
 }
+#endif
 
 // One step below x (x finite, > lowest).
 inline double next_below(double x) noexcept {
@@ -471,8 +476,10 @@ void generate(const D& d, const stream& s, std::uint32_t domain, std::uint64_t f
 /// Distributions vol. 1, 2nd ed., sec. 10.1), a phi(a) taken as 0 at an infinite cut.
 /// Uses kindling's own Phi and pdf, so it is the same on every build. Relative accuracy
 /// about 1e-15 for cuts near the centre; far in one tail the formula cancels (about
-/// 1e-12 for [8, 9]).
-inline double truncated_normal_stddev(double cut_lo, double cut_hi) {
+/// 1e-12 for [8, 9]).  (In the compiled library in that mode, detail/compiled_mode.hpp.)
+KINDLING_COMPILED_INLINE double truncated_normal_stddev(double cut_lo, double cut_hi);
+#if defined(KINDLING_COMPILED_DEFINITIONS)
+KINDLING_COMPILED_INLINE double truncated_normal_stddev(double cut_lo, double cut_hi) {
   const detail::cut_probabilities c = detail::validated_cuts("truncated_normal", cut_lo, cut_hi);
   const double pdf_lo = detail::normal_pdf(cut_lo), pdf_hi = detail::normal_pdf(cut_hi);
   const double hi_term = std::isinf(cut_hi) ? 0.0 : cut_hi * pdf_hi;
@@ -481,6 +488,7 @@ inline double truncated_normal_stddev(double cut_lo, double cut_hi) {
   const double var = std::fma(-mean, mean, 1.0 + moment / c.mass);
   return std::sqrt(std::max(var, 0.0));
 }
+#endif
 
 }  // namespace kindling
 

@@ -74,20 +74,28 @@ declared declare_with(const D& d, declared_family family, double a, double b, Mo
   return r;
 }
 
-inline declared declare(const dist::uniform& d) {
+// Each distribution's declaration: defined below in the header-only mode, in the
+// compiled library otherwise (detail/compiled_mode.hpp).
+KINDLING_COMPILED_INLINE declared declare(const dist::uniform& d);
+KINDLING_COMPILED_INLINE declared declare(const dist::symmetric_uniform& d);
+KINDLING_COMPILED_INLINE declared declare(const dist::normal& d);
+KINDLING_COMPILED_INLINE declared declare(const dist::truncated_normal& d);
+
+#if defined(KINDLING_COMPILED_DEFINITIONS)
+KINDLING_COMPILED_INLINE declared declare(const dist::uniform& d) {
   return declare_with(d, declared_family::uniform, d.lo, d.hi, [&](declared&) {
     const double w = d.hi - d.lo;
     // uniform: Var = w²/12, μ4 = w⁴/80 (standard formulas)
     return declared_moments{0.5 * (d.lo + d.hi), w * w / 12, w * w * w * w / 80};
   });
 }
-inline declared declare(const dist::symmetric_uniform& d) {
+KINDLING_COMPILED_INLINE declared declare(const dist::symmetric_uniform& d) {
   dist::validate(d);  // its own message (naming 'bound'), not the uniform's it becomes
   declared r = declare(dist::uniform{-d.bound, d.bound});
   r.bounds = bounds_of(d);
   return r;
 }
-inline declared declare(const dist::normal& d) {
+KINDLING_COMPILED_INLINE declared declare(const dist::normal& d) {
   return declare_with(d, declared_family::normal, d.mean, d.stddev, [&](declared&) {
     const double variance = d.stddev * d.stddev;
     return declared_moments{d.mean, variance, 3 * variance * variance};
@@ -96,7 +104,7 @@ inline declared declare(const dist::normal& d) {
 // Raw moments of the standard normal cut to [lo, hi] by the recurrence
 // m_k = (k-1) m_{k-2} - (hi^{k-1} φ(hi) - lo^{k-1} φ(lo)) / Z (integration by parts;
 // Johnson, Kotz & Balakrishnan, Continuous Univariate Distributions vol. 1, ch. 13).
-inline declared declare(const dist::truncated_normal& d) {
+KINDLING_COMPILED_INLINE declared declare(const dist::truncated_normal& d) {
   return declare_with(d, declared_family::truncated_normal, d.mean, d.stddev, [&](declared& r) {
     r.cut_lo = d.cut_lo;
     r.cut_hi = d.cut_hi;
@@ -117,6 +125,7 @@ inline declared declare(const dist::truncated_normal& d) {
                             std::pow(d.stddev, 4) * c4};
   });
 }
+#endif  // KINDLING_COMPILED_DEFINITIONS
 
 }  // namespace kindling::detail
 
