@@ -184,15 +184,6 @@ void add_attention_rows(const attention_block& a, const attention_report& r, dou
     const json fan_in = row.projection ? json(row.width) : json(nullptr), fan_out = fan_in;
     const bool planned = !std::isnan(row.planned);
     const bool planned_gradient = !std::isnan(row.planned_gradient);
-    std::vector<double> draws, gradient_draws;
-    for (const attention_moments& m : r.draws) {
-      const std::size_t i = static_cast<std::size_t>(&row - r.rows.data());
-      const double values[] = {m.query, m.key, m.value, m.score, m.concentration, m.mix, m.output};
-      const double gradients[] = {m.query_gradient, m.key_gradient,     m.value_gradient, m.score_gradient,
-                                  m.softmax_gradient, m.mix_gradient, m.output_gradient};
-      draws.push_back(values[i]);
-      gradient_draws.push_back(gradients[i]);
-    }
     std::vector<std::string> measured_only;
     if (!row.judged) measured_only.push_back("measured_forward_variance");
     if (!row.gradient_judged) measured_only.push_back("measured_backward_variance");
@@ -223,9 +214,9 @@ void add_attention_rows(const attention_block& a, const attention_report& r, dou
                   {"agrees", v.agrees},
                   {"draws", d}};
     };
-    if (row.judged) j["measured_forward"] = judged(row.median, row.spread, row.verdict, draws);
+    if (row.judged) j["measured_forward"] = judged(row.median, row.spread, row.verdict, row.draws);
     if (row.gradient_judged) {
-      j["measured_backward"] = judged(row.gradient_median, row.gradient_spread, row.gradient_verdict, gradient_draws);
+      j["measured_backward"] = judged(row.gradient_median, row.gradient_spread, row.gradient_verdict, row.gradient_draws);
     }
     if (row.judged || row.gradient_judged) j["agrees"] = row.agrees();
     t.layers.push_back(j);

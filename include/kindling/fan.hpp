@@ -349,6 +349,32 @@ class channel_kernel {
   const char* check_where_;
 };
 
+// The public constructor of both layer kinds, written once: Kind names the layer in
+// messages and gives its default layout and direction.
+template <class Kind>
+class channel_layer : public channel_kernel {
+ public:
+  channel_layer(std::uint64_t in_channels, std::uint64_t out_channels,
+                std::vector<std::uint64_t> kernel, std::uint64_t groups = 1,
+                weight_layout layout = Kind::default_layout)
+      : channel_kernel(in_channels, out_channels, std::move(kernel), groups, layout, Kind::where,
+                       Kind::check_where, Kind::transposed) {}
+};
+
+struct convolution_kind {
+  static constexpr weight_layout default_layout = weight_layout::out_in_spatial;
+  static constexpr const char* where = "kindling::convolution";
+  static constexpr const char* check_where = "kindling::convolution::check_shape";
+  static constexpr bool transposed = false;
+};
+
+struct transposed_convolution_kind {
+  static constexpr weight_layout default_layout = weight_layout::in_out_spatial;
+  static constexpr const char* where = "kindling::transposed_convolution";
+  static constexpr const char* check_where = "kindling::transposed_convolution::check_shape";
+  static constexpr bool transposed = true;
+};
+
 }  // namespace detail
 
 // A convolution with 1, 2 or 3 spatial dimensions and `groups` channel groups.
@@ -361,13 +387,11 @@ class channel_kernel {
 // fan-out off the output axis of the weight get out_channels * receptive_field for a
 // grouped convolution (common practice, from memory); we count connections instead.
 // Layouts: out_in_spatial (default), spatial_in_out, out_spatial_in.
-class convolution : public detail::channel_kernel {
+// Constructor: convolution(in_channels, out_channels, kernel, groups = 1,
+//                          layout = out_in_spatial).
+class convolution : public detail::channel_layer<detail::convolution_kind> {
  public:
-  convolution(std::uint64_t in_channels, std::uint64_t out_channels,
-              std::vector<std::uint64_t> kernel, std::uint64_t groups = 1,
-              weight_layout layout = weight_layout::out_in_spatial)
-      : channel_kernel(in_channels, out_channels, std::move(kernel), groups, layout,
-                       "kindling::convolution", "kindling::convolution::check_shape", false) {}
+  using channel_layer::channel_layer;
 
   // A depthwise convolution: groups = channels, each input channel feeding
   // `multiplier` output channels, so fan_in = receptive_field and
@@ -398,14 +422,12 @@ class convolution : public detail::channel_kernel {
 // Reading this weight as if it were a convolution's [out, in/g, k...] yields the
 // swapped pair (fan_in = out/g * rf, fan_out = in * rf): a known pitfall (from memory).
 // Layouts: in_out_spatial (default), spatial_out_in.
-class transposed_convolution : public detail::channel_kernel {
+// Constructor: transposed_convolution(in_channels, out_channels, kernel, groups = 1,
+//                                     layout = in_out_spatial).
+class transposed_convolution
+    : public detail::channel_layer<detail::transposed_convolution_kind> {
  public:
-  transposed_convolution(std::uint64_t in_channels, std::uint64_t out_channels,
-                         std::vector<std::uint64_t> kernel, std::uint64_t groups = 1,
-                         weight_layout layout = weight_layout::in_out_spatial)
-      : channel_kernel(in_channels, out_channels, std::move(kernel), groups, layout,
-                       "kindling::transposed_convolution",
-                       "kindling::transposed_convolution::check_shape", true) {}
+  using channel_layer::channel_layer;
 };
 
 // A lookup table of `vocabulary` rows of `dimension` values, stored [vocabulary, dimension].

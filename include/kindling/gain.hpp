@@ -245,7 +245,7 @@ double gaussian_expectation(F&& f, double mean = 0.0, double variance = 1.0,
 // split_at and covered by panels of half a standard deviation, each with a 20-point
 // Gauss-Legendre rule, so no rule straddles the kink (960 evaluations of f).  Accuracy
 // for the activations here: about 1e-15 relative, also for tanh at variance 25 (see
-// tests/fan_gain/gain.cpp).
+// tests/gain.cpp).
 template <class F>
 double gaussian_expectation_split(F&& f, double split_at, double mean = 0.0,
                                   double variance = 1.0) {

@@ -85,6 +85,15 @@ TEST_CASE("attention, one head and several: every projection, the scores, the mi
   }
   CHECK(r.row("value").gradient_judged);
   CHECK(r.input_gradient() > 0.0);
+  // Each row carries its own tensor's moment of every draw, in the order of r.draws.
+  REQUIRE(r.row("key").draws.size() == r.draws.size());
+  REQUIRE(r.row("softmax").gradient_draws.size() == r.draws.size());
+  for (std::size_t k = 0; k < r.draws.size(); ++k) {
+    CHECK(r.row("key").draws[k] == r.draws[k].key);
+    CHECK(r.row("softmax").draws[k] == r.draws[k].concentration);
+    CHECK(r.row("softmax").gradient_draws[k] == r.draws[k].softmax_gradient);
+    CHECK(r.row("output").gradient_draws[k] == r.draws[k].output_gradient);
+  }
   // Scores of variance about 1 over 16 keys: attention between uniform (1/16) and one-hot.
   CHECK(r.row("softmax").median > 1.0 / 16.0);
   CHECK(r.row("softmax").median < 0.3);

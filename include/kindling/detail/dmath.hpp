@@ -10,9 +10,9 @@
 // under g++ and clang++, -O0 .. -O3, -march=native, x86-64 and aarch64.
 //
 // Polynomials are truncated Taylor series (their constants are printed by
-// tests/sample/dmath_coefficients.py); the rational functions for erfc and Phi^-1 are
+// tests/detail/dmath_coefficients.py); the rational functions for erfc and Phi^-1 are
 // the published ones cited beside them. Accuracy is stated per function and checked in
-// tests/sample/dmath.cpp (against std::) and tests/sample/scipy_reference.py (scipy).
+// tests/detail/dmath.cpp (against std::) and tests/detail/scipy_reference.py (scipy).
 #ifndef KINDLING_DETAIL_DMATH_HPP
 #define KINDLING_DETAIL_DMATH_HPP
 
@@ -74,7 +74,7 @@ inline T horner(T x, const T (&c)[N]) noexcept {
 }
 
 // Per-type layout and constants of the kernels below (printed by
-// tests/sample/dmath_coefficients.py). Float kernels carry shorter series.
+// tests/detail/dmath_coefficients.py). Float kernels carry shorter series.
 template <class T>
 struct kernel_constants;
 
@@ -281,7 +281,7 @@ inline double normal_pdf(double x) noexcept {
 //   0.46875 < y <= 4: erfc(y) = exp(-y^2) N2(y) / D2(y)
 //   y > 4:            erfc(y) = exp(-y^2) / y (1/sqrt(pi) - z N3(z) / D3(z)), z = 1/y^2
 // Coefficients from memory of CALERF, verified against scipy.special in
-// tests/sample/scipy_reference.py. Here y = |x| / sqrt(2) and exp(-y^2) is
+// tests/detail/scipy_reference.py. Here y = |x| / sqrt(2) and exp(-y^2) is
 // gaussian_factor(x), so the tails keep their relative accuracy: within 8 ulp
 // relative for x < 0 (6 measured), 2^-52 absolute for x >= 0.
 

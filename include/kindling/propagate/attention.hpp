@@ -415,6 +415,7 @@ struct attention_row {
   double planned = 0;        // the prediction from the schemes alone; NaN: measured only
   double median = 0;         // of the measured moment over the draws
   double spread = 0;         // standard deviation over draws of ln(moment)
+  std::vector<double> draws; // the measured moment of each draw, in the order of report.draws
   bool judged = false;       // has a prediction given the draw (not the softmax row)
   measured_moment verdict;   // over the ratios m_k / p_k (predicted 1), when judged
   bool projection = false;   // query, key, value, output: a dense layer, fans (width, width)
@@ -424,6 +425,7 @@ struct attention_row {
   double planned_gradient = 0;      // from the schemes alone; NaN: measured only
   double gradient_median = 0;       // of the measured moment over the draws
   double gradient_spread = 0;       // standard deviation over draws of ln(moment)
+  std::vector<double> gradient_draws;  // the backward moment of each draw
   bool gradient_judged = false;     // mix, softmax and value
   measured_moment gradient_verdict; // over the ratios m_k / p_k, when gradient_judged
   /// Every verdict of the row holds (true for a row without one).
@@ -647,11 +649,12 @@ attention_report compare_attention(const attention_block& measured, const attent
       r.scheme = measured.scheme(i);
       r.weight_variance = measured.weight_variance(i);
     }
-    const std::vector<double> forward = over_draws(sp.forward), backward = over_draws(sp.backward);
-    r.median = detail::median_of(forward);
-    r.spread = r.median > 0.0 ? detail::log_spread(forward) : 0.0;
-    r.gradient_median = detail::median_of(backward);
-    r.gradient_spread = r.gradient_median > 0.0 ? detail::log_spread(backward) : 0.0;
+    r.draws = over_draws(sp.forward);
+    r.gradient_draws = over_draws(sp.backward);
+    r.median = detail::median_of(r.draws);
+    r.spread = r.median > 0.0 ? detail::log_spread(r.draws) : 0.0;
+    r.gradient_median = detail::median_of(r.gradient_draws);
+    r.gradient_spread = r.gradient_median > 0.0 ? detail::log_spread(r.gradient_draws) : 0.0;
     if (sp.forward_ratio) {
       r.judged = true;
       r.verdict = detail::judge_moment(1.0, over_draws(sp.forward_ratio), report.quantile, sp.forward_allowance);

@@ -5,8 +5,8 @@
 // below are quoted from memory to 15 digits and were verified on this machine with
 // numpy.polynomial.hermite.hermgauss and numpy.polynomial.legendre.leggauss (numpy
 // 1.24.2) before being committed.  The full comparison with numpy's
-// hermite_e.hermegauss for n up to 200 is the ctest "fan_gain: Gauss-Hermite rules
-// match numpy hermegauss" (tests/fan_gain/check_rules.py).
+// hermite_e.hermegauss for n up to 200 is the ctest "detail: Gauss-Hermite rules
+// match numpy hermegauss" (tests/detail/check_rules.py).
 #include <doctest/doctest.h>
 
 #include <cmath>

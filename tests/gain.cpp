@@ -6,8 +6,8 @@
 //   E[tanh(z)^2] = 0.39429449039784126, 1/sqrt = 1.5925374197228312   scipy.integrate.quad
 //   SELU fixed point E[selu(z)] = 0, E[selu(z)^2] = 1             Klambauer et al. 2017
 //   tanh 5/3, sigmoid 1                                            common practice
-// The live comparison of the computed gains with scipy is the ctest "fan_gain: computed
-// gains match scipy quad" (tests/fan_gain/check_rules.py).
+// The live comparison of the computed gains with scipy is the ctest "detail: computed
+// gains match scipy quad" (tests/detail/check_rules.py).
 #include <doctest/doctest.h>
 
 #include <cmath>

@@ -1,4 +1,4 @@
-// Prints Gauss-Hermite rules and computed gains for tests/fan_gain/check_rules.py.
+// Prints Gauss-Hermite rules and computed gains for tests/detail/check_rules.py.
 // Not a doctest file: reference/ is outside the glob of tests/CMakeLists.txt, so this
 // program keeps its own main (built by kindling_reference_check).
 #include <cstdio>

@@ -3,7 +3,7 @@
 
 #include <doctest/doctest.h>
 
-#include "../support/errors.hpp"
+#include "support/errors.hpp"
 
 #include <cstdint>
 #include <stdexcept>

@@ -9,7 +9,7 @@
 
 #include <doctest/doctest.h>
 
-#include "../support/random123.hpp"
+#include "support/random123.hpp"
 
 #include <algorithm>
 #include <atomic>

@@ -1,6 +1,6 @@
 """Compare kindling's Gauss-Hermite rules and computed gains with numpy and scipy.
 
-Usage: check_rules.py PROGRAM   (PROGRAM is kindling_fan_gain_print)
+Usage: check_rules.py PROGRAM   (PROGRAM is kindling_gauss_hermite_print)
 
 References (Debian python3-numpy, python3-scipy on this machine):
 - numpy.polynomial.hermite_e.hermegauss(n): probabilists' Gauss-Hermite rule; its

@@ -1,6 +1,6 @@
-// Prints kindling's values for tests/sample/scipy_reference.py, which checks them
-// against scipy.stats and numpy, run by the ctest entry "sample: scipy reference ..."
-// (tests/sample/extra.cmake). Not a doctest file: reference/ is outside the glob of
+// Prints kindling's values for tests/detail/scipy_reference.py, which checks them
+// against scipy.stats and numpy, run by the ctest entry "detail: scipy reference ..."
+// (tests/detail/extra.cmake). Not a doctest file: reference/ is outside the glob of
 // tests/CMakeLists.txt, so this program keeps its own main (built by
 // kindling_reference_check).
 //

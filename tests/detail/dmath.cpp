@@ -3,7 +3,7 @@
 // References: std:: functions evaluated in long double (glibc; a more precise type than
 // the one under test, so its own error is negligible at the stated tolerances), and
 // values of scipy.stats.norm (scipy 1.10.1, printed on this machine with
-// /usr/bin/python3; the broader scipy comparison is tests/sample/scipy_reference.py).
+// /usr/bin/python3; the broader scipy comparison is tests/detail/scipy_reference.py).
 #include <doctest/doctest.h>
 
 #include <algorithm>
