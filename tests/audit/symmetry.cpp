@@ -5,6 +5,7 @@
 
 #include <doctest/doctest.h>
 
+#include <algorithm>
 #include <cmath>
 #include <vector>
 
@@ -319,3 +320,67 @@ TEST_CASE_TEMPLATE("the units' pass gives the same bits in its AVX2 form as in i
   CHECK(generic.flat_units == std::vector<std::uint64_t>{5});
 }
 #endif
+
+TEST_CASE("bfloat16 units read in place give the same summary as their float values") {
+  // A contiguous bfloat16 unit is summarized straight from its stored halves; a unit
+  // spread over memory (column-major storage) through a float buffer; both must give the
+  // bits of the same values stored as float (the sketch sums each value in the same
+  // order, and a bfloat16 is exactly a float).
+  constexpr std::uint64_t rows = 70, cols = 1000;
+  std::vector<bfloat16> packed(rows * cols), columns(rows * cols);
+  fill(strided_view<bfloat16>(packed.data(), shape(rows, cols)), dist::normal{0, 0.05},
+       make_stream(11, "heat.exchanger.weight"));
+  for (std::uint64_t j = 0; j < cols; ++j) packed[9 * cols + j] = packed[9 * cols];  // one flat unit
+  std::vector<float> as_float(rows * cols);
+  for (std::uint64_t r = 0; r < rows; ++r) {
+    for (std::uint64_t j = 0; j < cols; ++j) {
+      columns[j * rows + r] = packed[r * cols + j];
+      as_float[r * cols + j] = to_float(packed[r * cols + j]);
+    }
+  }
+  const auto summary = [](const auto& reader) {
+    detail::unit_summary s;
+    s.rows = reader.rows(), s.cols = reader.cols(), s.width = std::min(s.cols, detail::sketch_width);
+    s.sketch.assign(static_cast<std::size_t>(s.rows * s.width), 0.0f);
+    s.sketch_norm.assign(static_cast<std::size_t>(s.rows), 0.0f);
+    detail::summarize_unit_rows(reader, s);
+    return s;
+  };
+  const detail::unit_reader<const bfloat16> in_place(strided_view<const bfloat16>(packed.data(), shape(rows, cols)),
+                                                      weight_layout::out_in);
+  const detail::unit_reader<const bfloat16> buffered(
+      strided_view<const bfloat16>(columns.data(), shape(rows, cols), storage_order::column_major),
+      weight_layout::out_in);
+  const detail::unit_reader<const float> reference(strided_view<const float>(as_float.data(), shape(rows, cols)),
+                                                   weight_layout::out_in);
+  REQUIRE(in_place.contiguous_unit(0) != nullptr);
+  REQUIRE(buffered.contiguous_unit(0) == nullptr);
+  const detail::unit_summary a = summary(in_place), b = summary(buffered), f = summary(reference);
+  CHECK(a.sketch == f.sketch);
+  CHECK(b.sketch == f.sketch);
+  CHECK(a.sketch_norm == f.sketch_norm);
+  CHECK(b.sketch_norm == f.sketch_norm);
+  CHECK(a.flat_units == std::vector<std::uint64_t>{9});
+  CHECK(b.flat_units == a.flat_units);
+  CHECK(f.flat_units == a.flat_units);
+}
+
+TEST_CASE("the units keyed by hash sort as std::sort sorts their words") {
+  // keyed_units sorts by radix; the order must be std::sort's, on keys that differ in
+  // every byte and on keys that share whole bytes (whose passes are skipped).
+  for (const std::uint64_t keep : {~std::uint64_t{0}, std::uint64_t{0x00FF00000000FF00u}, std::uint64_t{0}}) {
+    CAPTURE(keep);
+    const std::uint64_t units = 5000;
+    detail::keyed_units entries(units);
+    std::vector<std::uint64_t> words;
+    for (std::uint64_t u = 0; u < units; ++u) {
+      const std::uint64_t hash = detail::mix64(u % 1700 + 1) & keep;  // runs of equal hashes
+      entries.add(hash, u);
+      words.push_back((hash & ~std::uint64_t{8191}) | u);  // 13 unit bits for 5000 units
+    }
+    entries.sort();
+    std::sort(words.begin(), words.end());
+    REQUIRE(entries.size() == words.size());
+    for (std::size_t i = 0; i < words.size(); ++i) REQUIRE(entries.unit(i) == (words[i] & 8191u));
+  }
+}

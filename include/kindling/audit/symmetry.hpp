@@ -209,8 +209,80 @@ T sign_of_connection(std::uint64_t j) noexcept {
   return (mix64(j ^ 0x736b65746368u) & 1u) ? T(1) : T(-1);
 }
 
-// The units' pass of summarize_units, into s (sized by the caller): each unit's count of
-// values that differ from its first, its sketch and the sketch's norm. Inlined into each
+// How summarize_unit_rows reads a unit's value j: in place (float, double), from a
+// buffer the reader filled (any other layout or type), or straight from the stored
+// bfloat16 halves (a bfloat16 is the upper half of a float), so that the loop converts
+// as it goes instead of writing and reading a buffer.
+template <class T>
+struct values_at {
+  const T* w;
+  T operator()(std::uint64_t j) const noexcept { return w[j]; }
+};
+struct bfloat16_halves_at {
+  const unsigned char* bytes;
+  float operator()(std::uint64_t j) const noexcept {
+    std::uint16_t half;
+    std::memcpy(&half, bytes + 2 * j, sizeof half);
+    const std::uint32_t bits = std::uint32_t{half} << 16;
+    float x;
+    std::memcpy(&x, &bits, sizeof x);
+    return x;
+  }
+};
+
+// One unit r of summarize_units, its values read by at(j): the count of values that
+// differ from its first, its sketch and the sketch's norm. Returns false when a value is
+// not finite (s.finite is then false). The loops keep independent accumulators and a
+// fixed trip count, so that they vectorize without reassociation: each sketch value is
+// summed in the same order whichever code runs.
+template <class T, class At>
+#if defined(__GNUC__)
+__attribute__((always_inline))
+#endif
+inline bool summarize_unit_row(std::uint64_t r, const At& at, const std::vector<T>& sign, unit_summary& s) {
+  constexpr std::size_t lanes = 16;
+  const T first = at(0);
+  // A unit is flat when no value differs from its first (a count of the values that
+  // differ, rather than a minimum and maximum, so that the loop vectorizes).
+  std::uint32_t differ[lanes] = {};
+  std::size_t j = 0;
+  for (; j + lanes <= s.cols; j += lanes) {
+    for (std::size_t l = 0; l < lanes; ++l) differ[l] += at(j + l) != first ? 1u : 0u;
+  }
+  for (; j < s.cols; ++j) differ[0] += at(j) != first ? 1u : 0u;
+  std::uint64_t differing = 0;
+  for (std::size_t l = 0; l < lanes; ++l) differing += differ[l];
+  T acc[sketch_width] = {};
+  std::uint64_t j0 = 0;
+  if (s.width == sketch_width) {  // a fixed trip count, so that the loop vectorizes
+    for (; j0 + sketch_width <= s.cols; j0 += sketch_width) {
+      for (std::size_t t = 0; t < sketch_width; ++t) acc[t] += sign[j0 + t] * at(j0 + t);
+    }
+  }
+  for (; j0 < s.cols; j0 += s.width) {
+    const std::uint64_t len = std::min(s.width, s.cols - j0);
+    for (std::uint64_t t = 0; t < len; ++t) acc[t] += sign[j0 + t] * at(j0 + t);
+  }
+  // A NaN or an infinity in the unit leaves a sketch value that is not finite (so do
+  // sums that overflow: then the values themselves are looked at).
+  bool sketch_finite = true;
+  for (std::uint64_t t = 0; t < s.width; ++t) sketch_finite = sketch_finite && std::isfinite(acc[t]);
+  if (!sketch_finite) {
+    for (std::uint64_t i = 0; i < s.cols; ++i) s.finite = s.finite && std::isfinite(at(i));
+    if (!s.finite) return false;
+  }
+  float* out = &s.sketch[static_cast<std::size_t>(r * s.width)];
+  double norm = 0;
+  for (std::uint64_t t = 0; t < s.width; ++t) out[t] = static_cast<float>(acc[t]), norm += double(out[t]) * out[t];
+  s.sketch_norm[r] = static_cast<float>(std::sqrt(norm));
+  if (r == 0) s.first = static_cast<double>(first);
+  s.all_equal = s.all_equal && differing == 0 && static_cast<double>(first) == s.first;
+  if (differing == 0 && first == 0) s.zero_units.push_back(r);
+  if (s.cols >= 2 && differing == 0) s.flat_units.push_back(r);
+  return true;
+}
+
+// The units' pass of summarize_units, into s (sized by the caller). Inlined into each
 // caller, so the AVX2 caller below vectorizes it with eight-float vectors: the same
 // operations lane by lane (no fused multiply-add), so the same bits whichever runs.
 template <class E>
@@ -219,49 +291,24 @@ __attribute__((always_inline))
 #endif
 inline void summarize_unit_rows(const unit_reader<E>& reader, unit_summary& s) {
   using T = typename unit_reader<E>::compute;
-  std::vector<T> buffer(reader.direct() ? 0 : static_cast<std::size_t>(s.cols)), sign(static_cast<std::size_t>(s.cols));
+  constexpr bool halves =
+      std::is_same<typename stored_type<typename unit_reader<E>::element>::type, bfloat16>::value;
+  const bool in_place = reader.direct() || (halves && reader.contiguous_unit(0) != nullptr);
+  std::vector<T> buffer(in_place ? 0 : static_cast<std::size_t>(s.cols)), sign(static_cast<std::size_t>(s.cols));
   for (std::uint64_t j = 0; j < s.cols; ++j) sign[j] = sign_of_connection<T>(j);
-  constexpr std::size_t lanes = 16;  // independent accumulators, so the loops vectorize without reassociation
   for (std::uint64_t r = 0; r < s.rows; ++r) {
-    const T* w = reader.unit(r, buffer.data());
-    // A unit is flat when no value differs from its first (a count of the values that
-    // differ, rather than a minimum and maximum, so that the loop vectorizes).
-    const T first = w[0];
-    std::uint32_t differ[lanes] = {};
-    std::size_t j = 0;
-    for (; j + lanes <= s.cols; j += lanes) {
-      for (std::size_t l = 0; l < lanes; ++l) differ[l] += w[j + l] != first ? 1u : 0u;
-    }
-    for (; j < s.cols; ++j) differ[0] += w[j] != first ? 1u : 0u;
-    std::uint64_t differing = 0;
-    for (std::size_t l = 0; l < lanes; ++l) differing += differ[l];
-    T acc[sketch_width] = {};
-    std::uint64_t j0 = 0;
-    if (s.width == sketch_width) {  // a fixed trip count, so that the loop vectorizes
-      for (; j0 + sketch_width <= s.cols; j0 += sketch_width) {
-        for (std::size_t t = 0; t < sketch_width; ++t) acc[t] += sign[j0 + t] * w[j0 + t];
+    bool ok;
+    if constexpr (halves) {
+      if (in_place) {
+        const auto* bytes = reinterpret_cast<const unsigned char*>(reader.contiguous_unit(r));
+        ok = summarize_unit_row<T>(r, bfloat16_halves_at{bytes}, sign, s);
+      } else {
+        ok = summarize_unit_row<T>(r, values_at<T>{reader.unit(r, buffer.data())}, sign, s);
       }
+    } else {
+      ok = summarize_unit_row<T>(r, values_at<T>{reader.unit(r, buffer.data())}, sign, s);
     }
-    for (; j0 < s.cols; j0 += s.width) {
-      const std::uint64_t len = std::min(s.width, s.cols - j0);
-      for (std::uint64_t t = 0; t < len; ++t) acc[t] += sign[j0 + t] * w[j0 + t];
-    }
-    // A NaN or an infinity in the unit leaves a sketch value that is not finite (so do
-    // sums that overflow: then the values themselves are looked at).
-    bool sketch_finite = true;
-    for (std::uint64_t t = 0; t < s.width; ++t) sketch_finite = sketch_finite && std::isfinite(acc[t]);
-    if (!sketch_finite) {
-      for (std::uint64_t i = 0; i < s.cols; ++i) s.finite = s.finite && std::isfinite(w[i]);
-      if (!s.finite) return;
-    }
-    float* out = &s.sketch[static_cast<std::size_t>(r * s.width)];
-    double norm = 0;
-    for (std::uint64_t t = 0; t < s.width; ++t) out[t] = static_cast<float>(acc[t]), norm += double(out[t]) * out[t];
-    s.sketch_norm[r] = static_cast<float>(std::sqrt(norm));
-    if (r == 0) s.first = static_cast<double>(first);
-    s.all_equal = s.all_equal && differing == 0 && static_cast<double>(first) == s.first;
-    if (differing == 0 && first == 0) s.zero_units.push_back(r);
-    if (s.cols >= 2 && differing == 0) s.flat_units.push_back(r);
+    if (!ok) return;
   }
 }
 
@@ -340,7 +387,23 @@ class keyed_units {
   }
   void clear() { words_.clear(); }
   void add(std::uint64_t hash, std::uint64_t unit) { words_.push_back((hash & ~unit_mask()) | unit); }
-  void sort() { std::sort(words_.begin(), words_.end()); }
+  /// Sorts the words in increasing order: a least-significant-digit radix sort, eight
+  /// passes of a byte (linear in the units; the same order as std::sort, which it
+  /// replaced: the pass ran several such sorts a band), a pass skipped when every word
+  /// has the same byte there.
+  void sort() {
+    const std::size_t n = words_.size();
+    spare_.resize(n);
+    for (int shift = 0; shift < 64; shift += 8) {
+      std::size_t start[256] = {};
+      for (const std::uint64_t w : words_) ++start[(w >> shift) & 0xFFu];
+      if (n == 0 || start[(words_[0] >> shift) & 0xFFu] == n) continue;
+      std::size_t sum = 0;
+      for (std::size_t& c : start) sum += c, c = sum - c;
+      for (const std::uint64_t w : words_) spare_[start[(w >> shift) & 0xFFu]++] = w;
+      words_.swap(spare_);
+    }
+  }
   std::size_t size() const noexcept { return words_.size(); }
   std::uint64_t unit(std::size_t i) const noexcept { return words_[i] & unit_mask(); }
   /// Calls each(first, last) for each run of two or more equal keys (after sort()).
@@ -359,7 +422,7 @@ class keyed_units {
     return unit_bits_ >= 64 ? ~std::uint64_t{0} : (std::uint64_t{1} << unit_bits_) - 1;
   }
   int unit_bits_ = 0;
-  std::vector<std::uint64_t> words_;
+  std::vector<std::uint64_t> words_, spare_;
 };
 
 template <class E>
@@ -393,25 +456,57 @@ struct equal_rates {
 template <class E>
 equal_rates equal_value_rates(const unit_reader<E>& reader) {
   using T = typename unit_reader<E>::compute;
+  using stored = typename stored_type<typename unit_reader<E>::element>::type;
   const std::uint64_t per = std::max<std::uint64_t>(1, (std::uint64_t{1} << 20) / reader.cols());
   const std::uint64_t step = std::max<std::uint64_t>(1, reader.rows() / per);
   std::vector<T> buffer(reader.direct() ? 0 : reader.cols());
+  equal_rates out;
+  double n = 0;
+  // Each distinct value's count c, in increasing order of value_bits (the order of the sums).
+  const auto add_value = [&](double c) {
+    out.pair += c * (c - 1) / (n * (n - 1));
+    double all = 1;
+    for (std::uint64_t t = 0; t < reader.cols() && all > 0; ++t) all *= (c - double(t)) / (n - double(t));
+    out.unit += all;
+  };
+  if constexpr (std::is_same<stored, bfloat16>::value || std::is_same<stored, float16>::value) {
+    // 16-bit values are counted by bit pattern: no sort. Among finite values the order
+    // of the patterns (as unsigned) is that of value_bits (+0, the positive values
+    // upwards, the negative ones by magnitude), once -0 (0x8000) is counted as +0, so
+    // the sums are the same bits as the sort's below.
+    std::vector<std::uint32_t> counts(std::size_t{1} << 16, 0);
+    std::uint64_t total = 0;
+    bool finite = true;
+    for (std::uint64_t r = 0; r < reader.rows() && total < (std::uint64_t{1} << 20); r += step) {
+      const T* w = reader.unit(r, buffer.data());
+      for (std::uint64_t j = 0; j < reader.cols(); ++j) {
+        finite = finite && std::isfinite(w[j]);
+        ++counts[element_codec<stored>::round(static_cast<float>(w[j]))];
+      }
+      total += reader.cols();
+    }
+    if (finite) {
+      counts[0] += counts[0x8000];
+      counts[0x8000] = 0;
+      n = static_cast<double>(total);
+      for (const std::uint32_t c : counts) {
+        if (c != 0) add_value(static_cast<double>(c));
+      }
+      out.pair_unit = std::pow(out.pair, static_cast<double>(reader.cols()));
+      return out;
+    }
+  }
   std::vector<std::uint64_t> bits;
   for (std::uint64_t r = 0; r < reader.rows() && bits.size() < (std::size_t{1} << 20); r += step) {
     const T* w = reader.unit(r, buffer.data());
     for (std::uint64_t j = 0; j < reader.cols(); ++j) bits.push_back(value_bits(static_cast<double>(w[j])));
   }
   std::sort(bits.begin(), bits.end());
-  const double n = static_cast<double>(bits.size());
-  equal_rates out;
+  n = static_cast<double>(bits.size());
   for (std::size_t i = 0; i < bits.size();) {
     std::size_t k = i + 1;
     while (k < bits.size() && bits[k] == bits[i]) ++k;
-    const double c = static_cast<double>(k - i);
-    out.pair += c * (c - 1) / (n * (n - 1));
-    double all = 1;
-    for (std::uint64_t t = 0; t < reader.cols() && all > 0; ++t) all *= (c - double(t)) / (n - double(t));
-    out.unit += all;
+    add_value(static_cast<double>(k - i));
     i = k;
   }
   out.pair_unit = std::pow(out.pair, static_cast<double>(reader.cols()));

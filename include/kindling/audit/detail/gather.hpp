@@ -132,6 +132,12 @@ class unit_reader {
   /// True when units are read in place (no conversion, no gather).
   bool direct() const noexcept { return direct_; }
 
+  /// The cols stored values of unit o in place, when a unit's values are consecutive in
+  /// memory; else nullptr.
+  const element* contiguous_unit(std::uint64_t o) const noexcept {
+    return contiguous_ ? data_ + static_cast<std::ptrdiff_t>(o) * unit_step_ : nullptr;
+  }
+
   /// The cols values of unit o: in the view itself, or written to buffer (cols values).
   const compute* unit(std::uint64_t o, compute* buffer) const {
     const element* base = data_ + static_cast<std::ptrdiff_t>(o) * unit_step_;
