@@ -469,8 +469,7 @@ audit_report check_scheme(const strided_view<E>& v, const Layer& layer, const Sc
                           const audit_options& options = {}, const Exec& exec = Exec{}) {
   static_assert(detail::has_distribution<Scheme>::value, "kindling::check_scheme needs a scheme with distribution(fans); "
                 "for orthogonal or delta_orthogonal use check_orthogonal or check_delta_orthogonal (audit/structure.hpp)");
-  layer.check_shape(detail::shape_vector(v.global_shape()));
-  const weight_layout layout = detail::layout_of(layer);
+  const weight_layout layout = weight_info_of(layer, v.global_shape()).layout;  // checks the shape
   if constexpr (detail::is_packed<Layer>::value) {
     if (!v.is_whole()) {
       throw std::invalid_argument("kindling::check_scheme: argument 'view' holds only a region of a packed "
@@ -482,7 +481,7 @@ audit_report check_scheme(const strided_view<E>& v, const Layer& layer, const Sc
     each.alpha = options.alpha / static_cast<double>(blocks.size());
     for (const packed_block& b : blocks) {
       strided_view<E> part = v;
-      detail::block_part(v, b, &part);
+      packed_block_view(v, b, &part);
       // Each block is a weight of its own; its sentences say which block.
       const audit_report one = check_scheme(part, weight_info{b.block_fans, layout}, scheme, each, exec);
       for (audit_finding f : one.findings()) {

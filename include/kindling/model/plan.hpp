@@ -13,6 +13,7 @@
 #ifndef KINDLING_MODEL_PLAN_HPP
 #define KINDLING_MODEL_PLAN_HPP
 
+#include <algorithm>
 #include <cstdint>
 #include <cstring>
 #include <set>
@@ -142,7 +143,7 @@ void initialize_parameter(const model_parameter& p, std::uint64_t seed, const st
         std::string(element_kind_name(p.element)) + " elements, the element type of parameter '" + p.name + "'");
   }
   const std::vector<std::uint64_t> want = p.full_shape();
-  if (detail::shape_vector(v.global_shape()) != want) {
+  if (!std::equal(want.begin(), want.end(), v.global_shape().begin(), v.global_shape().end())) {
     detail::reject_argument<std::invalid_argument>(
         "kindling::initialize_parameter", "v", "a view of global shape " + v.global_shape().text(),
         "the global shape " + detail::shape_text(want) + " of parameter '" + p.name + "'");
