@@ -363,6 +363,17 @@ TEST_CASE("bfloat16 units read in place give the same summary as their float val
   CHECK(a.flat_units == std::vector<std::uint64_t>{9});
   CHECK(b.flat_units == a.flat_units);
   CHECK(f.flat_units == a.flat_units);
+  // The sketch itself, summed here as its definition says: value t of unit r is the sum
+  // over j = t, t + 64, ... of sign(j) w[r, j], in float, in that order.
+  for (const std::uint64_t r : {std::uint64_t{0}, std::uint64_t{9}, rows - 1}) {
+    for (std::uint64_t t = 0; t < detail::sketch_width; ++t) {
+      float acc = 0;
+      for (std::uint64_t j = t; j < cols; j += detail::sketch_width) {
+        acc += detail::sign_of_connection<float>(j) * as_float[r * cols + j];
+      }
+      CHECK(a.sketch[r * detail::sketch_width + t] == acc);
+    }
+  }
 }
 
 TEST_CASE("the units keyed by hash sort as std::sort sorts their words") {
