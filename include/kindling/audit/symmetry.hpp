@@ -230,11 +230,6 @@ struct bfloat16_halves_at {
   }
 };
 
-// One unit r of summarize_units, its values read by at(j): the count of values that
-// differ from its first, its sketch and the sketch's norm. Returns false when a value is
-// not finite (s.finite is then false). The loops keep independent accumulators and a
-// fixed trip count, so that they vectorize without reassociation: each sketch value is
-// summed in the same order whichever code runs.
 // The sign of connection j applied as a flip of the sign bit: x * sign exactly (a product
 // with +-1 is exact), without a multiplication that a build with FMA enabled (-march=...)
 // could fuse with the sum into a multiply-add, which rounds once instead of twice and
@@ -253,6 +248,11 @@ inline T with_sign(T x, value_bits_t<T> flip) noexcept {
   return x;
 }
 
+// One unit r of summarize_units, its values read by at(j): the count of values that
+// differ from its first, its sketch and the sketch's norm. Returns false when a value is
+// not finite (s.finite is then false). The loops keep independent accumulators and a
+// fixed trip count, so that they vectorize without reassociation: each sketch value is
+// summed in the same order whichever code runs.
 template <class T, class At>
 #if defined(__GNUC__)
 __attribute__((always_inline))
