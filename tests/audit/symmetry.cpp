@@ -395,3 +395,29 @@ TEST_CASE("the units keyed by hash sort as std::sort sorts their words") {
     for (std::size_t i = 0; i < words.size(); ++i) REQUIRE(entries.unit(i) == (words[i] & 8191u));
   }
 }
+
+TEST_CASE_TEMPLATE("16-bit units' equal-value rates, counted by bit pattern, are the bits of the sorted count", E, bfloat16,
+                   float16) {
+  // equal_value_rates counts float16 and bfloat16 values by bit pattern instead of sorting
+  // them; its sums must be the bits of the sort over the same values stored as float
+  // (flat units, a negative zero and coarse draws give many equal values).
+  for (const std::uint64_t cols : {std::uint64_t{3}, std::uint64_t{8}, std::uint64_t{300}}) {
+    CAPTURE(cols);
+    const std::uint64_t rows = 2000;
+    std::vector<E> h(rows * cols);
+    fill(strided_view<E>(h.data(), shape(rows, cols)), dist::normal{0, 0.01}, make_stream(5, "belt.roller.weight"));
+    for (std::uint64_t j = 0; j < cols; ++j) h[3 * cols + j] = h[3 * cols];
+    h[7] = E{0x8000};  // -0, the same weight as +0
+    h[8] = E{0x0000};
+    std::vector<float> f(h.size());
+    for (std::size_t k = 0; k < h.size(); ++k) f[k] = to_float(h[k]);
+    const detail::equal_rates a = detail::equal_value_rates(
+        detail::unit_reader<const E>(strided_view<const E>(h.data(), shape(rows, cols)), weight_layout::out_in));
+    const detail::equal_rates b = detail::equal_value_rates(
+        detail::unit_reader<const float>(strided_view<const float>(f.data(), shape(rows, cols)), weight_layout::out_in));
+    CHECK(a.pair > 0.0);
+    CHECK(a.pair == b.pair);
+    CHECK(a.unit == b.unit);
+    CHECK(a.pair_unit == b.pair_unit);
+  }
+}
