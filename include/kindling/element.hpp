@@ -100,9 +100,21 @@ inline bfloat16 round_to_bfloat16(float x) noexcept {
   return {static_cast<std::uint16_t>(rounded >> 16)};
 }
 
-inline float to_float(bfloat16 x) noexcept {
-  return detail::float_from_bits(static_cast<std::uint32_t>(x.bits) << 16);
+namespace detail {
+// A bfloat16 is the upper half of a binary32: its bits, shifted up, are the float
+// exactly. The one place that says so; the audits' loops over stored halves call it.
+inline float float_of_bfloat16_bits(std::uint16_t bits) noexcept {
+  return float_from_bits(static_cast<std::uint32_t>(bits) << 16);
 }
+// The bfloat16 stored at bytes + 2 j, as a float (memcpy: any alignment).
+inline float float_of_bfloat16_at(const void* bytes, std::uint64_t j) noexcept {
+  std::uint16_t bits;
+  std::memcpy(&bits, static_cast<const unsigned char*>(bytes) + 2 * j, sizeof bits);
+  return float_of_bfloat16_bits(bits);
+}
+}  // namespace detail
+
+inline float to_float(bfloat16 x) noexcept { return detail::float_of_bfloat16_bits(x.bits); }
 
 namespace detail {
 

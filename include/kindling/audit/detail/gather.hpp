@@ -144,12 +144,7 @@ class unit_reader {
     if (direct_) return reinterpret_cast<const compute*>(base);
     if constexpr (std::is_same<typename stored_type<element>::type, bfloat16>::value) {
       if (contiguous_) {  // a bfloat16 is the upper half of a float: a loop that vectorizes
-        for (std::uint64_t j = 0; j < cols_; ++j) {
-          std::uint16_t half;
-          std::memcpy(&half, base + j, sizeof half);
-          const std::uint32_t bits = std::uint32_t{half} << 16;
-          std::memcpy(buffer + j, &bits, sizeof bits);
-        }
+        for (std::uint64_t j = 0; j < cols_; ++j) buffer[j] = float_of_bfloat16_at(base, j);
         return buffer;
       }
     }
