@@ -396,6 +396,45 @@ TEST_CASE("the units keyed by hash sort as std::sort sorts their words") {
   }
 }
 
+TEST_CASE("keyed_units sorts an empty list and a list of one") {
+  detail::keyed_units entries(1);
+  entries.sort();
+  CHECK(entries.size() == 0);
+  entries.add(0x1234567800000000u, 0);
+  entries.sort();
+  REQUIRE(entries.size() == 1);
+  CHECK(entries.unit(0) == 0);
+}
+
+TEST_CASE("a band key's sign word is the chain of shifts it replaced") {
+  // sign_word ORs each sign into its place; the definition is a left shift per dot, the
+  // first dot ending in the highest of len bits.
+  std::vector<float> dots(64);
+  for (std::size_t k = 0; k < dots.size(); ++k) dots[k] = static_cast<float>(detail::mix64(k + 11) % 7) - 3.0f;
+  dots[5] = 0.0f, dots[6] = -0.0f;  // zero is not > 0
+  for (const std::uint64_t len : {std::uint64_t{1}, std::uint64_t{16}, std::uint64_t{48}, std::uint64_t{64}}) {
+    CAPTURE(len);
+    std::uint64_t chain = 0;
+    for (std::uint64_t k = 0; k < len; ++k) chain = (chain << 1) | (dots[k] > 0 ? 1u : 0u);
+    CHECK(detail::sign_word(dots.data(), len) == chain);
+  }
+}
+
+TEST_CASE("units with equal sketches hash alike, -0 and +0 included; others apart") {
+  detail::unit_summary s;
+  s.rows = 4, s.cols = 100, s.width = detail::sketch_width;
+  s.sketch.assign(s.rows * s.width, 0.0f);
+  for (std::uint64_t t = 0; t < s.width; ++t) {
+    s.sketch[t] = s.sketch[s.width + t] = static_cast<float>(t) - 20.0f;
+    s.sketch[2 * s.width + t] = static_cast<float>(t) - 20.0f;
+  }
+  s.sketch[s.width + 20] = -0.0f;       // unit 1: unit 0 with -0 where unit 0 has +0
+  s.sketch[2 * s.width + 63] += 1.0f;  // unit 2: unit 0 but its last value
+  CHECK(detail::sketch_hash(s, 0) == detail::sketch_hash(s, 1));
+  CHECK(detail::sketch_hash(s, 0) != detail::sketch_hash(s, 2));
+  CHECK(detail::sketch_hash(s, 0) != detail::sketch_hash(s, 3));
+}
+
 TEST_CASE_TEMPLATE("16-bit units' equal-value rates, counted by bit pattern, are the bits of the sorted count", E, bfloat16,
                    float16) {
   // equal_value_rates counts float16 and bfloat16 values by bit pattern instead of sorting

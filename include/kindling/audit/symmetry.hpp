@@ -220,14 +220,7 @@ struct values_at {
 };
 struct bfloat16_halves_at {
   const unsigned char* bytes;
-  float operator()(std::uint64_t j) const noexcept {
-    std::uint16_t half;
-    std::memcpy(&half, bytes + 2 * j, sizeof half);
-    const std::uint32_t bits = std::uint32_t{half} << 16;
-    float x;
-    std::memcpy(&x, &bits, sizeof x);
-    return x;
-  }
+  float operator()(std::uint64_t j) const noexcept { return float_of_bfloat16_at(bytes, j); }
 };
 
 // The sign of connection j applied as a flip of the sign bit: x * sign exactly (a product
@@ -387,16 +380,25 @@ struct unit_pair_reader {
   std::vector<T> a_buffer, b_buffer;
 };
 
+// A hash of unit r's sketch (-0 and +0 hashed alike), for grouping equal units: any
+// function of the sketch's values serves, since a collision is settled by comparing the
+// units. Two values a word and four independent chains of mix64, joined at the end: one
+// chain over the 64 values waited on 64 multiply latencies in a row, which made the
+// grouping a twentieth of a bfloat16 audit (bench/RESULTS.md).
 inline std::uint64_t sketch_hash(const unit_summary& s, std::uint64_t r) {
-  std::uint64_t h = 0x6b696e646c696e67u;
-  for (std::uint64_t t = 0; t < s.width; ++t) {
+  const auto word = [&](std::uint64_t t) -> std::uint64_t {
+    if (t >= s.width) return 0x7a65726fu;  // past the end: a fixed filler
     float x = s.sketch[static_cast<std::size_t>(r * s.width + t)];
     if (x == 0) x = 0;
     std::uint32_t bits;
     std::memcpy(&bits, &x, sizeof bits);
-    h = mix64(h ^ bits);
+    return bits;
+  };
+  std::uint64_t h[4] = {0x6b696e646c696e67u, 0x736b65746368u, 0x756e697473u, 0x68617368u};
+  for (std::uint64_t t = 0; t < s.width; t += 8) {
+    for (std::uint64_t l = 0; l < 4; ++l) h[l] = mix64(h[l] ^ (word(t + 2 * l) << 32 | word(t + 2 * l + 1)));
   }
-  return h;
+  return mix64(h[0] ^ mix64(h[1] ^ mix64(h[2] ^ mix64(h[3] ^ s.width))));
 }
 
 // Units keyed by a hash, as one sorted 64-bit word each: the hash's high bits, and
@@ -416,13 +418,20 @@ class keyed_units {
   /// has the same byte there.
   void sort() {
     const std::size_t n = words_.size();
+    if (n < 2) return;
     spare_.resize(n);
-    for (int shift = 0; shift < 64; shift += 8) {
-      std::size_t start[256] = {};
-      for (const std::uint64_t w : words_) ++start[(w >> shift) & 0xFFu];
-      if (n == 0 || start[(words_[0] >> shift) & 0xFFu] == n) continue;
+    // The eight passes' counts in one read of the words (a pass moves the words, not
+    // the bytes each holds, so the counts of every pass are known before the first).
+    counts_.assign(8 * 256, 0);
+    for (const std::uint64_t w : words_) {
+      for (int pass = 0; pass < 8; ++pass) ++counts_[static_cast<std::size_t>(pass * 256) + ((w >> (8 * pass)) & 0xFFu)];
+    }
+    for (int pass = 0; pass < 8; ++pass) {
+      std::size_t* start = &counts_[static_cast<std::size_t>(pass * 256)];
+      const int shift = 8 * pass;
+      if (start[(words_[0] >> shift) & 0xFFu] == n) continue;
       std::size_t sum = 0;
-      for (std::size_t& c : start) sum += c, c = sum - c;
+      for (int b = 0; b < 256; ++b) sum += start[b], start[b] = sum - start[b];
       for (const std::uint64_t w : words_) spare_[start[(w >> shift) & 0xFFu]++] = w;
       words_.swap(spare_);
     }
@@ -446,6 +455,7 @@ class keyed_units {
   }
   int unit_bits_ = 0;
   std::vector<std::uint64_t> words_, spare_;
+  std::vector<std::size_t> counts_;  // sort()'s byte counts, kept between calls
 };
 
 template <class E>
@@ -627,6 +637,15 @@ __attribute__((target("avx2"))) inline void sixteen_dots_avx2(const float* matri
 }
 #endif
 
+/// The signs of len <= 64 dot products as one word: bit len - 1 - k is set when
+/// dots[k] > 0 (the first dot in the highest bit). Independent ORs rather than a chain of
+/// shifts, so that the band keys do not wait on one another.
+inline std::uint64_t sign_word(const float* dots, std::uint64_t len) noexcept {
+  std::uint64_t word = 0;
+  for (std::uint64_t k = 0; k < len; ++k) word |= std::uint64_t{dots[k] > 0 ? 1u : 0u} << (len - 1 - k);
+  return word;
+}
+
 template <class E>
 near_search near_pairs(const unit_summary& s, unit_pair_reader<E>& units, const symmetry_options& o) {
   near_search out;
@@ -702,10 +721,9 @@ near_search near_pairs(const unit_summary& s, unit_pair_reader<E>& units, const 
 #endif
           sixteen_dots(plane.data() + t0, bits, x, s.width, &dots[t0]);
         }
-        std::uint64_t key = 0x62616e64u, word = 0;
-        for (std::uint64_t t = 0; t < bits; ++t) {
-          word = (word << 1) | (dots[t] > 0 ? 1u : 0u);
-          if (t % 64 == 63 || t + 1 == bits) key = mix64(key ^ word), word = 0;
+        std::uint64_t key = 0x62616e64u;
+        for (std::uint64_t t0 = 0; t0 < bits; t0 += 64) {
+          key = mix64(key ^ sign_word(&dots[t0], std::min<std::uint64_t>(64, bits - t0)));
         }
         entries.add(key, r);
       }
