@@ -91,6 +91,34 @@ TEST_CASE("16-bit values are counted by bit pattern: counts, sums and exceptions
   CHECK(distinct[1] == std::pair<double, std::uint64_t>(1.0, 1));
 }
 
+TEST_CASE_TEMPLATE("distinct values walked in pattern order are the sorted and merged finite values", E, bfloat16,
+                   float16) {
+  // Every one of the 65536 patterns present, each with its own count: the walk must give
+  // what sorting the finite values and merging -0 with +0 gives.
+  std::vector<std::uint64_t> counts(65536);
+  for (std::size_t b = 0; b < counts.size(); ++b) counts[b] = b % 7 == 3 ? 0 : b + 1;
+  std::vector<std::pair<double, std::uint64_t>> want;
+  for (std::size_t b = 0; b < counts.size(); ++b) {
+    const double x = detail::pattern_value<E>(static_cast<std::uint16_t>(b));
+    if (counts[b] != 0 && std::isfinite(x)) want.emplace_back(x == 0 ? 0.0 : x, counts[b]);
+  }
+  std::sort(want.begin(), want.end());
+  std::vector<std::pair<double, std::uint64_t>> merged;
+  for (const auto& v : want) {
+    if (!merged.empty() && merged.back().first == v.first) {
+      merged.back().second += v.second;
+    } else {
+      merged.push_back(v);
+    }
+  }
+  const auto got = detail::distinct_values<E>(counts);
+  REQUIRE(got.size() == merged.size());
+  for (std::size_t i = 0; i < got.size(); ++i) {
+    CAPTURE(i);
+    REQUIRE(got[i] == merged[i]);
+  }
+}
+
 TEST_CASE("float keys are bins in the order of the line, and each edge splits the values as its probability says") {
   // Values on both sides of zero, at key boundaries, subnormal, and the largest floats.
   std::vector<float> x{0.0f, -0.0f, 1.0f, -1.0f, 1.0078125f, -1.0078125f, 1.0078124f, 0.0221f, -0.0221f, 3e-39f,

@@ -558,27 +558,23 @@ double float_below_position(const Stored& stored, std::uint32_t q) {
   return magnitude + 1 >= infinity_key ? 0.0 : stored.at_most_value(-at(magnitude + 1));
 }
 
-/// The distinct finite values among the pattern counts, in increasing order, with their
-/// counts (-0 and +0 are one value).
+/// The distinct finite values among the 65536 pattern counts of a 16-bit type, in
+/// increasing order, with their counts (-0 and +0 are one value). No sort: the types are
+/// sign-magnitude (IEEE 754 layout), so the negative patterns from the largest magnitude
+/// down, then zero, then the positive ones upwards are already the order of the line.
 template <class E>
 std::vector<std::pair<double, std::uint64_t>> distinct_values(const std::vector<std::uint64_t>& patterns) {
   using element = std::remove_const_t<E>;
+  static_assert(sizeof(element) == 2, "distinct_values walks the patterns of a 16-bit type");
   std::vector<std::pair<double, std::uint64_t>> values;
-  for (std::size_t b = 0; b < patterns.size(); ++b) {
-    if (patterns[b] == 0) continue;
+  const auto add = [&](std::uint32_t b) {
+    if (patterns[b] == 0) return;
     const double x = pattern_value<element>(static_cast<std::uint16_t>(b));
-    if (std::isfinite(x)) values.emplace_back(x == 0 ? 0.0 : x, patterns[b]);
-  }
-  std::sort(values.begin(), values.end());
-  std::size_t kept = 0;
-  for (std::size_t i = 0; i < values.size(); ++i) {
-    if (kept > 0 && values[kept - 1].first == values[i].first) {
-      values[kept - 1].second += values[i].second;
-    } else {
-      values[kept++] = values[i];
-    }
-  }
-  values.resize(kept);
+    if (std::isfinite(x)) values.emplace_back(x, patterns[b]);
+  };
+  for (std::uint32_t m = 0x7FFFu; m >= 1; --m) add(0x8000u | m);
+  if (const std::uint64_t zeros = patterns[0] + patterns[0x8000u]; zeros != 0) values.emplace_back(0.0, zeros);
+  for (std::uint32_t m = 1; m <= 0x7FFFu; ++m) add(m);
   return values;
 }
 
