@@ -231,11 +231,11 @@ class mapped_range {
     if (size == 0 || page == 0) return;
     const std::uint64_t start = at - at % page;
     const std::size_t length = size + static_cast<std::size_t>(at - start);
-    int flags = MAP_PRIVATE;
-#ifdef MAP_POPULATE
-    flags |= MAP_POPULATE;  // map every page now: one call instead of a fault per page
-#endif
-    void* base = ::mmap(nullptr, length, PROT_READ, flags, fd, static_cast<off_t>(start));
+    // Pages are mapped as they are first read, not all at once (MAP_POPULATE): a fault on
+    // a file mapping maps its neighbours in the page cache too (the kernel's fault-around),
+    // and that cost a whole-checkpoint audit less system time than populating every page
+    // through the kernel's page walk (bench/RESULTS.md, 2026-12-04).
+    void* base = ::mmap(nullptr, length, PROT_READ, MAP_PRIVATE, fd, static_cast<off_t>(start));
     if (base == MAP_FAILED) return;
     base_ = base;
     length_ = length;
