@@ -295,13 +295,18 @@ void audit_values(const checkpoint& file, const checkpoint::tensor& t, const mod
                   tensor_buffer& buffer, double alpha, tensor_verdict* out) {
   const std::vector<std::uint64_t> s = p.full_shape();
   const auto count = static_cast<std::size_t>(t.bytes / sizeof(E));
-  // On a little-endian host a safetensors tensor is audited in place, mapped from the
-  // file: no copy at all. Otherwise (an .npz member, a big-endian host, a mapping the
-  // system refuses or one not aligned for E) it is read once, from the file straight
-  // into the thread's reused buffer as elements of type E, then put in the host's byte
-  // order in place: no staging copy, no per-tensor allocation.
+  // A tensor is read once, from the file straight into the thread's reused buffer as
+  // elements of type E, then put in the host's byte order in place: no staging copy, no
+  // per-tensor allocation. Only a safetensors tensor larger than read_at_most on a
+  // little-endian host is audited in place, mapped from the file, so that the buffer
+  // (resident, unlike a mapping's page-cache pages) stays small. Reading first is not a
+  // cost but a saving on some hosts: reading the page cache through a mapping's 4 KiB
+  // pages took a whole-model audit twice as long as the kernel's copy of the same pages
+  // and the audit of the copy (1.94 s against 0.97 s on a virtual machine; the mapping
+  // was 0.1 s faster on another; bench/RESULTS.md, 2026-12-04).
+  constexpr std::uint64_t read_at_most = std::uint64_t{128} << 20;
   std::shared_ptr<const char> mapped;
-  if (host_is_little_endian()) mapped = file.map(t);
+  if (t.bytes > read_at_most && host_is_little_endian()) mapped = file.map(t);
   const E* values = nullptr;
   if (mapped && reinterpret_cast<std::uintptr_t>(mapped.get()) % alignof(E) == 0) {
     values = reinterpret_cast<const E*>(mapped.get());
