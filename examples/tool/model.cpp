@@ -23,6 +23,8 @@
 #include <thread>
 #include <vector>
 
+#include <sys/mman.h>
+
 #include <kindling/audit/conformance.hpp>
 #include <kindling/audit/structure.hpp>
 #include <kindling/audit/symmetry.hpp>
@@ -261,10 +263,6 @@ audit_report scheme_report(const model_parameter& p, std::uint64_t seed, const s
       p.scheme.variant());
 }
 
-// One audit thread's tensor memory: grown to the largest tensor the thread has read and
-// reused for every later one. A fresh tensor-sized allocation per tensor made the kernel
-// map, clear and unmap its pages each time (about a fifth of a whole-model audit's time,
-// bench/RESULTS.md); reused, its pages are touched once. Peak: the largest tensor.
 bool host_is_little_endian() noexcept {
   const std::uint16_t one = 1;
   unsigned char first = 0;
@@ -272,21 +270,44 @@ bool host_is_little_endian() noexcept {
   return first == 1;
 }
 
+// One audit thread's tensor memory: grown to the largest tensor the thread has read and
+// reused for every later one. A fresh tensor-sized allocation per tensor made the kernel
+// map, clear and unmap its pages each time (about a fifth of a whole-model audit's time,
+// bench/RESULTS.md); reused, its pages are touched once. Peak: the largest tensor.
+// Where the system offers it (Linux), the block asks for transparent huge pages: the
+// audit passes over a tensor of many MiB then miss the TLB far less often.
 class tensor_buffer {
  public:
-  // Storage for `bytes` bytes, suitably aligned for any element type (new[] of unsigned
-  // char aligns as operator new does); its old contents are not kept.
+  tensor_buffer() = default;
+  tensor_buffer(const tensor_buffer&) = delete;
+  tensor_buffer& operator=(const tensor_buffer&) = delete;
+  ~tensor_buffer() { release(); }
+
+  // Storage for `bytes` bytes, page-aligned (so aligned for any element type); its old
+  // contents are not kept.
   unsigned char* take(std::size_t bytes) {
     if (bytes > size_) {
-      data_.reset();  // the old block goes before the new one comes: one block at a time
-      data_.reset(new unsigned char[bytes]);
-      size_ = bytes;
+      release();  // the old block goes before the new one comes: one block at a time
+      constexpr std::size_t huge = std::size_t{2} << 20;
+      const std::size_t length = (bytes + huge - 1) / huge * huge;
+      void* p = ::mmap(nullptr, length, PROT_READ | PROT_WRITE, MAP_PRIVATE | MAP_ANONYMOUS, -1, 0);
+      if (p == MAP_FAILED) throw std::bad_alloc();
+#if defined(MADV_HUGEPAGE)
+      ::madvise(p, length, MADV_HUGEPAGE);  // a hint: refused or not, the block is usable
+#endif
+      data_ = static_cast<unsigned char*>(p);
+      size_ = length;
     }
-    return data_.get();
+    return data_;
   }
 
  private:
-  std::unique_ptr<unsigned char[]> data_;
+  void release() noexcept {
+    if (data_ != nullptr) ::munmap(data_, size_);
+    data_ = nullptr;
+    size_ = 0;
+  }
+  unsigned char* data_ = nullptr;
   std::size_t size_ = 0;
 };
 
