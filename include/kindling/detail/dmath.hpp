@@ -285,11 +285,13 @@ inline double normal_pdf(double x) noexcept {
 // gaussian_factor(x), so the tails keep their relative accuracy: within 8 ulp
 // relative for x < 0 (6 measured), 2^-52 absolute for x >= 0.
 
-// Declared for every file, defined here in the header-only mode and in the compiled
-// library otherwise (compiled_mode.hpp): the largest function of this header.
-KINDLING_COMPILED_INLINE double normal_cdf(double x) noexcept;
-#if defined(KINDLING_COMPILED_DEFINITIONS)
-KINDLING_COMPILED_INLINE double normal_cdf(double x) noexcept {
+// The steps of normal_cdf, written once: inlined into normal_cdf below and into the
+// audits' copy built for CPUs with FMA (audit/detail/declared.hpp), which gives the same
+// bits, as std::fma is correctly rounded in hardware and in libm alike.
+#if defined(__GNUC__)
+__attribute__((always_inline))
+#endif
+inline double normal_cdf_steps(double x) noexcept {
   constexpr double inv_sqrt2 = 0x1.6a09e667f3bcdp-1;
   constexpr double inv_sqrt_pi = 0x1.20dd750429b6dp-1;
   // Numerators and denominators in increasing powers; denominators have leading 1.
@@ -325,6 +327,12 @@ KINDLING_COMPILED_INLINE double normal_cdf(double x) noexcept {
   const double half_g = 0.5 * gaussian_factor(x);  // Phi(-|x|) = half_g r
   return x < 0 ? half_g * r : std::fma(-half_g, r, 1.0);
 }
+
+// Declared for every file, defined here in the header-only mode and in the compiled
+// library otherwise (compiled_mode.hpp): the largest function of this header.
+KINDLING_COMPILED_INLINE double normal_cdf(double x) noexcept;
+#if defined(KINDLING_COMPILED_DEFINITIONS)
+KINDLING_COMPILED_INLINE double normal_cdf(double x) noexcept { return normal_cdf_steps(x); }
 #endif
 
 // ---- Phi^-1 -------------------------------------------------------------------------

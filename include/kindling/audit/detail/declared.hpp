@@ -10,10 +10,31 @@
 
 #include "../../detail/dmath.hpp"
 #include "../../element.hpp"
+#include "../../random/detail/instruction_set.hpp"
 #include "../../random/sample.hpp"
 #include "../result.hpp"
 
 namespace kindling::detail {
+
+// Phi for the audits, which evaluate it thousands of times a tensor (the stored
+// distribution's atoms). A portable x86-64 build has no fused multiply-add instruction,
+// so each of normal_cdf's std::fma is a call into libm (about 35 an evaluation); the copy
+// below is the same steps (normal_cdf_steps, dmath.hpp) built for CPUs with FMA, where
+// each is one instruction. std::fma is correctly rounded either way: the same bits
+// (tests/audit/detail/declared.cpp). The value path keeps normal_cdf itself.
+#if defined(KINDLING_LANES_X86)
+__attribute__((target("fma"), flatten)) inline double normal_cdf_fma(double x) noexcept {
+  return normal_cdf_steps(x);
+}
+#endif
+
+inline double audit_normal_cdf(double x) noexcept {
+#if defined(KINDLING_LANES_X86)
+  static const bool fma = __builtin_cpu_supports("fma");  // a constant of the process
+  if (fma) return normal_cdf_fma(x);
+#endif
+  return normal_cdf(x);
+}
 
 enum class declared_family { uniform, normal, truncated_normal };
 
@@ -28,12 +49,12 @@ struct declared {
   double cdf(double x) const {
     switch (family) {
       case declared_family::uniform: return std::min(1.0, std::max(0.0, (x - a) / (b - a)));
-      case declared_family::normal: return normal_cdf((x - a) / b);
+      case declared_family::normal: return audit_normal_cdf((x - a) / b);
       case declared_family::truncated_normal: {
         const double z = (x - a) / b;
         if (z <= cut_lo) return 0.0;
         if (z >= cut_hi) return 1.0;
-        return std::min(1.0, std::max(0.0, (normal_cdf(z) - phi_lo) / mass));
+        return std::min(1.0, std::max(0.0, (audit_normal_cdf(z) - phi_lo) / mass));
       }
     }
     return 0.0;
