@@ -219,10 +219,13 @@ inline safetensors_index parse_safetensors_header(const std::string& text, std::
 }
 
 /// A range of a file mapped read-only into memory (POSIX mmap), or nothing (false) when
-/// the system refuses the mapping. Reading a tensor in place this way costs no copy
-/// (the kernel's copy of each page was a tenth of a whole-checkpoint audit's time,
-/// bench/RESULTS.md). A file truncated by another process while it is mapped makes a
-/// later access to the lost pages raise SIGBUS; reads through read() report it instead.
+/// the system refuses the mapping. Reading a tensor in place this way costs no copy, but
+/// whether it is faster than read() into a reused buffer depends on the host: the
+/// kernel's copy was a tenth of a whole-checkpoint audit's time on one, and reading
+/// through the mapping made the audit twice as long on a virtual machine
+/// (bench/RESULTS.md, 2026-12-04); `kindling audit` maps only tensors over 128 MiB. A
+/// file truncated by another process while it is mapped makes a later access to the
+/// lost pages raise SIGBUS; reads through read() report it instead.
 class mapped_range {
  public:
   mapped_range() = default;
